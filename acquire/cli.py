@@ -1,0 +1,88 @@
+"""The ``sweepd`` command line: a thin dispatcher.
+
+Kept light on purpose (``sweepd --help`` must not import numpy, pyvisa or matplotlib):
+each subcommand lives in ``acquire.commands.<module>`` with ``add_arguments(parser)``
+and ``run(args) -> int``, and imports its heavy dependencies inside ``run``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+# name -> (module in acquire.commands, one-line help)
+COMMANDS: dict[str, tuple[str, str]] = {
+    "run": ("run", "connect, configure, sweep once and save a Touchstone file"),
+    "sim": ("sim", "serve a simulated analyzer on a local socket and a pseudo-terminal"),
+    "demo": ("demo", "run the main job end to end against the built-in simulator"),
+}
+
+EXIT_OK, EXIT_FAIL, EXIT_ERROR = 0, 1, 2
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="sweepd",
+        description="Unattended, vendor-neutral acquisition of network analyzer sweeps.",
+        epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error.",
+    )
+    parser.add_argument("--version", action="version", version=f"sweepd {_version()}")
+    parser.add_argument(
+        "-v", "--verbose", action="count", default=0, help="more log output on stderr"
+    )
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name, (module, help_text) in COMMANDS.items():
+        command = sub.add_parser(name, help=help_text, description=help_text)
+        _module(module).add_arguments(command)
+        command.set_defaults(_module=module)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "command", None):
+        parser.print_help()
+        return EXIT_ERROR
+    _configure_logging(args.verbose)
+    from drivers.errors import SweepdError
+
+    try:
+        return int(_module(args._module).run(args))
+    except SweepdError as exc:
+        print(f"sweepd: error: {exc}", file=sys.stderr)
+        return EXIT_ERROR
+    except KeyboardInterrupt:
+        print("sweepd: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return EXIT_ERROR
+
+
+def _module(name: str):
+    return importlib.import_module(f"acquire.commands.{name}")
+
+
+def _configure_logging(verbosity: int) -> None:
+    import logging
+
+    level = logging.WARNING - 10 * min(verbosity, 2)
+    logging.basicConfig(
+        level=level,
+        stream=sys.stderr,
+        format="%(asctime)s %(levelname)s %(name)s: %(message)s",
+    )
+
+
+def _version() -> str:
+    try:
+        from importlib.metadata import version
+
+        return version("sweepd")
+    except Exception:  # not installed (running from a checkout)
+        return "0+unknown"
+
+
+if __name__ == "__main__":
+    sys.exit(main())
