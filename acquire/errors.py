@@ -1,0 +1,44 @@
+"""Errors raised by the acquire layer; all hang from ``drivers.errors.SweepdError``."""
+
+from __future__ import annotations
+
+from drivers.errors import SweepdError
+
+__all__ = [
+    "CalError",
+    "ConfigError",
+    "JournalError",
+    "MaskError",
+    "PlanError",
+    "StorageError",
+    "SweepdError",
+    "TouchstoneError",
+]
+
+
+class ConfigError(SweepdError):
+    """A YAML configuration file (plan, mask, kit, ...) is missing or invalid."""
+
+
+class PlanError(ConfigError):
+    """A test plan is invalid; the message names file, key path and what is allowed."""
+
+
+class MaskError(ConfigError):
+    """A limit mask file is invalid or cannot be applied to a sweep."""
+
+
+class CalError(SweepdError):
+    """A calibration cannot be made, loaded or applied (stale, mismatched, implausible)."""
+
+
+class TouchstoneError(SweepdError):
+    """A Touchstone file cannot be read or written; names file and line."""
+
+
+class StorageError(SweepdError):
+    """Results cannot be stored safely (disk full, permissions, name clash)."""
+
+
+class JournalError(SweepdError):
+    """The journal database is unreadable, too new, or inconsistent."""
