@@ -132,7 +132,9 @@ class Node:
                 self.fail(f"must be one of {', '.join(choices)}, got {_show(self.value)}")
         return self.value
 
-    def integer(self, default: Any = _MISSING, *, lo: int | None = None, hi: int | None = None) -> int:
+    def integer(
+        self, default: Any = _MISSING, *, lo: int | None = None, hi: int | None = None
+    ) -> int:
         if not self.present and default is not _MISSING:
             return default
         self.require()
@@ -143,7 +145,9 @@ class Node:
             self.fail(f"must be an integer{_range(lo, hi)}, got {value}")
         return int(value)
 
-    def number(self, default: Any = _MISSING, *, lo: float | None = None, hi: float | None = None) -> float:
+    def number(
+        self, default: Any = _MISSING, *, lo: float | None = None, hi: float | None = None
+    ) -> float:
         if not self.present and default is not _MISSING:
             return default
         self.require()

@@ -1,0 +1,30 @@
+"""``sweepd run PLAN``: connect, configure, sweep once, save, print a summary."""
+
+from __future__ import annotations
+
+import argparse
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("plan", help="test plan (YAML)")
+    parser.add_argument("--resource", help="VISA resource string; overrides the plan's")
+    parser.add_argument("--serial", default="", help="DUT serial recorded with the sweep")
+    parser.add_argument("--output", help="output folder; overrides the plan's output.dir")
+    parser.add_argument("--json", action="store_true", help="print one JSON object for machines")
+
+
+def run(args: argparse.Namespace) -> int:
+    import json
+    from pathlib import Path
+
+    from acquire.measure import measure_and_save
+    from acquire.plan import load_plan
+
+    plan = load_plan(args.plan)
+    out_dir = Path(args.output) if args.output else plan.output.dir
+    result = measure_and_save(plan, out_dir, resource=args.resource, serial=args.serial)
+    if args.json:
+        print(json.dumps(result.summary(), sort_keys=True))
+    else:
+        print(result.one_line())
+    return result.exit_code
