@@ -16,6 +16,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "run": ("run", "connect, configure, sweep once and save a Touchstone file"),
     "sim": ("sim", "serve a simulated analyzer on a local socket and a pseudo-terminal"),
     "demo": ("demo", "run the main job end to end against the built-in simulator"),
+    "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
+    "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
 }
 
 EXIT_OK, EXIT_FAIL, EXIT_ERROR = 0, 1, 2

@@ -29,7 +29,10 @@ _RESOURCE = re.compile(
 ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
-CAL_METHODS = ("one-port", "response-open", "response-short", "thru-response", "none")
+CAL_METHODS = (
+    "one-port", "response-open", "response-short", "response-open-short", "response-open-load",
+    "response-short-load", "thru-response", "enhanced-response", "none",
+)
 PROMPTS = ("terminal", "command", "switch", "scripted")
 
 

@@ -1,0 +1,551 @@
+"""Plan-level checks and the verdict they add up to.
+
+A plan's ``checks:`` list holds masks and derived checks::
+
+    checks:
+      - mask: patch-2g45                       # bare name or path relative to the plan
+      - bandwidth: {below_swr: 2.0, at_least: 60 MHz}     # or below_return_loss: 10 dB
+      - resonance: {within: [2.43 GHz, 2.47 GHz]}
+      - worst_swr: {band: [2.40 GHz, 2.50 GHz], at_most: 1.8}
+
+``parse_checks`` validates that list (errors name file and key path);
+``evaluate_checks`` judges a sweep and returns a ``Verdict``. A check that cannot judge
+the sweep (non-finite data, a mask outside the sweep, a missing S-parameter) gives an
+``error`` result instead of raising, so a verdict always exists and nothing already
+captured is lost. Overall: ``error`` if any check erred, else ``fail`` if any failed,
+else ``pass``; ``none`` when there were no checks. Exit codes: 0 pass/none, 1 fail,
+2 error. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
+"""
+
+from __future__ import annotations
+
+import json
+from abc import ABC, abstractmethod
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from acquire.errors import ConfigError
+from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask, load_mask
+from acquire.sweep import Sweep
+from acquire.units import format_frequency
+from acquire.yamlfile import Node
+from drivers.errors import SweepdError
+
+VERDICT_FORMAT = "sweepd-verdict"
+VERDICT_VERSION = 1
+EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2}
+CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr")
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """One check's outcome. ``details`` is JSON-able; ``mask_result`` feeds plots."""
+
+    kind: str
+    name: str
+    verdict: str  # "pass" | "fail" | "error"
+    summary: str  # one ASCII line
+    details: dict[str, Any] = field(default_factory=dict)
+    message: str | None = None  # the error, when verdict == "error"
+    mask_result: MaskResult | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "kind": self.kind, "name": self.name, "verdict": self.verdict,
+            "summary": self.summary, "message": self.message, **self.details,
+        }
+
+
+class Check(ABC):
+    """A judgement of one sweep."""
+
+    kind: str
+
+    @property
+    @abstractmethod
+    def name(self) -> str:
+        """Short ASCII name, e.g. ``mask patch-2g45``."""
+
+    @property
+    @abstractmethod
+    def parameters(self) -> frozenset[str]:
+        """S-parameters the sweep must hold."""
+
+    @abstractmethod
+    def evaluate(self, sweep: Sweep) -> CheckResult:
+        """Judge the sweep; may raise ``SweepdError`` when it cannot."""
+
+
+# -- the four kinds ------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class MaskCheck(Check):
+    mask: Mask
+    kind = "mask"
+
+    @property
+    def name(self) -> str:
+        return f"mask {self.mask.name}"
+
+    @property
+    def parameters(self) -> frozenset[str]:
+        return self.mask.parameters
+
+    def evaluate(self, sweep: Sweep) -> CheckResult:
+        result = evaluate_mask(self.mask, sweep)
+        worst = result.worst()
+        if worst is None:
+            raise _check_error(self, "no segment overlaps the sweep; nothing was judged")
+        return CheckResult(
+            self.kind, self.name, result.verdict,
+            f"{self.name} {result.verdict}: {worst.summary()}", result.to_dict(), None, result,
+        )
+
+
+@dataclass(frozen=True)
+class BandwidthCheck(Check):
+    """Bandwidth around the resonance, below an SWR or return-loss threshold."""
+
+    at_least_hz: float
+    swr_max: float | None = None
+    return_loss_min_db: float | None = None
+    parameter: str = "S11"
+    kind = "bandwidth"
+
+    @property
+    def name(self) -> str:
+        if self.swr_max is not None:
+            return f"bandwidth below SWR {self.swr_max:g}"
+        return f"bandwidth above {self.return_loss_min_db:g} dB return loss"
+
+    @property
+    def parameters(self) -> frozenset[str]:
+        return frozenset({self.parameter})
+
+    def evaluate(self, sweep: Sweep) -> CheckResult:
+        from acquire.metrics import bandwidth
+
+        f, g = sweep.freq_hz, _param(self, sweep)
+        bw = bandwidth(f, g, swr_max=self.swr_max, return_loss_min_db=self.return_loss_min_db)
+        band = bw.band
+        margin = bw.width_hz - self.at_least_hz
+        details = {
+            "parameter": self.parameter,
+            "threshold": ({"swr": self.swr_max} if self.swr_max is not None
+                          else {"return_loss_db": self.return_loss_min_db}),
+            "threshold_s_db": bw.threshold_db,
+            "required_hz": self.at_least_hz,
+            "measured_hz": bw.width_hz,
+            "lo_hz": band.lo_hz if band else None,
+            "hi_hz": band.hi_hz if band else None,
+            "center_hz": bw.center_hz,
+            "fractional": bw.fractional,
+            "edge_limited": bw.edge_limited,
+            "bands_found": len(bw.bands),
+            "margin_hz": margin,
+        }
+        if band is None:
+            return CheckResult(
+                self.kind, self.name, "fail",
+                f"{self.name} fail: never below the threshold at the resonance "
+                f"{format_frequency(bw.center_hz)}", details,
+            )
+        if bw.edge_limited and margin < 0:
+            raise _check_error(
+                self, f"the band reaches the sweep edge after {format_frequency(bw.width_hz)}; "
+                f"widen the sweep to measure {format_frequency(self.at_least_hz)}",
+            )
+        verdict = "pass" if margin >= 0 else "fail"
+        more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
+        return CheckResult(
+            self.kind, self.name, verdict,
+            f"{self.name} {verdict}: {format_frequency(bw.width_hz)}{more} "
+            f"{format_frequency(band.lo_hz)}..{format_frequency(band.hi_hz)}, "
+            f"required {format_frequency(self.at_least_hz)}",
+            details,
+        )
+
+
+@dataclass(frozen=True)
+class ResonanceCheck(Check):
+    """The resonance (minimum |Γ|, or reactance zero) lies within [lo, hi]."""
+
+    lo_hz: float
+    hi_hz: float
+    method: str = "min_gamma"  # or "reactance_zero"
+    parameter: str = "S11"
+    kind = "resonance"
+
+    @property
+    def name(self) -> str:
+        return f"resonance in {format_frequency(self.lo_hz)}..{format_frequency(self.hi_hz)}"
+
+    @property
+    def parameters(self) -> frozenset[str]:
+        return frozenset({self.parameter})
+
+    def evaluate(self, sweep: Sweep) -> CheckResult:
+        from acquire.metrics import resonance_min_gamma, resonance_reactance
+
+        f, g = sweep.freq_hz, _param(self, sweep)
+        _inside_sweep(self, sweep, self.lo_hz, self.hi_hz)
+        z0 = sweep.z0[int(self.parameter[1]) - 1]
+        res = resonance_min_gamma(f, g)
+        if self.method == "reactance_zero":
+            res = resonance_reactance(f, g, z0, near_hz=res.freq_hz)
+        details: dict[str, Any] = {
+            "parameter": self.parameter, "method": self.method,
+            "within_hz": [self.lo_hz, self.hi_hz],
+            "resonance_hz": res.freq_hz if res else None,
+            "gamma_abs": res.gamma_abs if res else None,
+            "at_sweep_edge": res.at_edge if res else None,
+            "margin_hz": None,
+        }
+        if res is None:
+            return CheckResult(self.kind, self.name, "fail",
+                               f"{self.name} fail: the reactance never crosses zero", details)
+        margin = min(res.freq_hz - self.lo_hz, self.hi_hz - res.freq_hz)
+        details["margin_hz"] = margin
+        verdict = "pass" if margin >= 0 and not res.at_edge else "fail"
+        where = " (minimum at the sweep edge: no resonance inside)" if res.at_edge else ""
+        return CheckResult(
+            self.kind, self.name, verdict,
+            f"{self.name} {verdict}: {format_frequency(res.freq_hz)}{where}", details,
+        )
+
+
+@dataclass(frozen=True)
+class WorstSwrCheck(Check):
+    """The largest SWR in a band stays at or below a limit (a one-segment mask)."""
+
+    lo_hz: float
+    hi_hz: float
+    at_most: float
+    parameter: str = "S11"
+    kind = "worst_swr"
+
+    @property
+    def name(self) -> str:
+        return (f"worst SWR {format_frequency(self.lo_hz)}..{format_frequency(self.hi_hz)} "
+                f"at most {self.at_most:g}")
+
+    @property
+    def parameters(self) -> frozenset[str]:
+        return frozenset({self.parameter})
+
+    def evaluate(self, sweep: Sweep) -> CheckResult:
+        seg = Segment(0, "band", self.parameter, "swr", self.lo_hz, self.hi_hz,
+                      Limit(self.at_most, self.at_most), None)
+        mask = Mask(self.name, "", "plan", (seg,))
+        result = evaluate_mask(mask, sweep)
+        seg_result = result.segments[0]
+        worst = seg_result.worst
+        assert worst is not None
+        details = {
+            "parameter": self.parameter,
+            "band_hz": [self.lo_hz, self.hi_hz],
+            "at_most": self.at_most,
+            "worst_swr": worst.value,
+            "worst_hz": worst.freq_hz,
+            "margin": worst.margin,
+            "positions_judged": int(seg_result.freq_hz.size),
+        }
+        return CheckResult(
+            self.kind, self.name, result.verdict,
+            f"{self.name} {result.verdict}: SWR {worst.value:.3f} at "
+            f"{format_frequency(worst.freq_hz)}", details, None, result,
+        )
+
+
+def _param(check: Check, sweep: Sweep):
+    name = next(iter(check.parameters))
+    i, j = int(name[1]), int(name[2])
+    if max(i, j) > sweep.ports:
+        raise _check_error(check, f"needs {name} but the sweep has {sweep.ports} port(s)")
+    return sweep.param(name)
+
+
+def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
+    from acquire.masks import EDGE_RTOL
+
+    f = sweep.freq_hz
+    tol = EDGE_RTOL * max(abs(float(f[-1])), 1.0)
+    if lo < f[0] - tol or hi > f[-1] + tol:
+        raise _check_error(
+            check, f"{format_frequency(lo)}..{format_frequency(hi)} is not inside the sweep "
+            f"{format_frequency(f[0])}..{format_frequency(f[-1])}",
+        )
+
+
+class CheckError(SweepdError):
+    """A check cannot judge this sweep."""
+
+
+def _check_error(check: Check, message: str) -> CheckError:
+    return CheckError(f"{check.name}: {message}")
+
+
+# -- verdict -------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """All check results for one sweep, with the overall verdict and key metrics."""
+
+    results: tuple[CheckResult, ...]
+    sweep_info: dict[str, Any] = field(default_factory=dict)
+    metrics: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def verdict(self) -> str:
+        states = {r.verdict for r in self.results}
+        for state in ("error", "fail", "pass"):
+            if state in states:
+                return state
+        return "none"
+
+    @property
+    def exit_code(self) -> int:
+        return EXIT_CODES[self.verdict]
+
+    @property
+    def passed(self) -> bool:
+        return self.verdict == "pass"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "format": VERDICT_FORMAT,
+            "version": VERDICT_VERSION,
+            "verdict": self.verdict,
+            "exit_code": self.exit_code,
+            "summary": self.summary_line(),
+            "sweep": self.sweep_info,
+            "checks": [r.to_dict() for r in self.results],
+            "metrics": self.metrics,
+        }
+
+    def to_json(self, indent: int | None = 2) -> str:
+        """Stable JSON (keys in a fixed order, no NaN or infinity)."""
+        return json.dumps(_finite_json(self.to_dict()), indent=indent, allow_nan=False,
+                          ensure_ascii=True)
+
+    def summary_line(self) -> str:
+        """One human line: ``PASS 3/3 checks | ...`` naming the worst or failing parts."""
+        n = len(self.results)
+        if not n:
+            return "NO CHECKS"
+        bad = [r for r in self.results if r.verdict != "pass"]
+        head = f"{self.verdict.upper()} {n - len(bad)}/{n} checks pass"
+        shown = bad or list(self.results)
+        return " | ".join([head, *(r.summary for r in shown)])
+
+    def metrics_line(self) -> str:
+        """Key metrics of S11 (and S21) in one ASCII line."""
+        return metrics_line(self.metrics)
+
+    def report_lines(self) -> list[str]:
+        """Several human lines: one per check, one per mask segment, failing ranges."""
+        lines = [f"verdict: {self.verdict.upper()}"]
+        for r in self.results:
+            lines.extend(_check_lines(r, "  ", ranges=True))
+        return lines
+
+    def comment_lines(self) -> list[str]:
+        """Lines for Touchstone comments (ASCII, without the leading ``!``)."""
+        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})"]
+        for r in self.results:
+            lines.extend(_check_lines(r, "  ", ranges=False))
+        return [_ascii(line) for line in lines]
+
+
+def _check_lines(r: CheckResult, indent: str, *, ranges: bool) -> list[str]:
+    head = f"{indent}{r.verdict.upper():5s} "
+    if r.message is not None:
+        return [head + r.message]
+    if r.kind != "mask" or r.mask_result is None:
+        return [head + r.summary]
+    lines = [head + r.name]
+    for s in r.mask_result.segments:
+        text = f"{s.segment.describe()}: {s.summary(short=True)}"
+        lines.append(f"{indent}      {s.verdict:7s} {text}")
+        if ranges:
+            lines.extend(
+                f"{indent}              fails {format_frequency(a)}..{format_frequency(b)}"
+                for a, b in s.failing_ranges()
+            )
+    return lines
+
+
+def metrics_line(metrics: dict[str, Any]) -> str:
+    """``resonance 2.45 GHz, SWR 1.11, RL 25.6 dB, Z 45.0 + j0.0 ohm; SWR-2 band ...``."""
+    parts = []
+    s11 = metrics.get("S11", {})
+    if "error" in s11:
+        parts.append(f"S11: {s11['error']}")
+    elif s11:
+        where = "minimum |S11|" if s11["resonance_at_sweep_edge"] else "resonance"
+        text = f"{where} {format_frequency(s11['resonance_hz'])}"
+        if s11["swr_min"] is not None:
+            text += f", SWR {s11['swr_min']:.3f}"
+        if s11["return_loss_max_db"] is not None:
+            text += f", RL {s11['return_loss_max_db']:.2f} dB"
+        r, x = s11["impedance_at_resonance_ohm"]
+        if r is not None and x is not None:
+            text += f", Z {r:.1f} {'+' if x >= 0 else '-'} j{abs(x):.1f} ohm"
+        parts.append(text)
+        for key, label in (("bandwidth_swr2", "SWR-2 band"), ("bandwidth_rl10db", "RL-10 band")):
+            band = s11.get(key, {})
+            if band.get("lo_hz") is not None:
+                open_ = " (to the sweep edge)" if band["edge_limited"] else ""
+                parts.append(f"{label} {format_frequency(band['lo_hz'])}.."
+                             f"{format_frequency(band['hi_hz'])} "
+                             f"({format_frequency(band['width_hz'])}){open_}")
+        if s11.get("q_unloaded") is not None:
+            parts.append(f"Q0 {s11['q_unloaded']:.1f}, QL {s11['q_loaded']:.1f}")
+    s21 = metrics.get("S21")
+    if s21:
+        parts.append(f"|S21| {s21['db_min']:.2f} dB at {format_frequency(s21['db_min_hz'])} "
+                     f"to {s21['db_max']:.2f} dB at {format_frequency(s21['db_max_hz'])}")
+    return _ascii("; ".join(parts) or "no metrics")
+
+
+def _ascii(text: str) -> str:
+    return text.encode("ascii", "replace").decode("ascii").replace("\n", " ")
+
+
+def evaluate_checks(
+    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None
+) -> Verdict:
+    """Judge ``sweep`` with every check; errors become ``error`` results."""
+    results = []
+    for check in checks:
+        try:
+            results.append(check.evaluate(sweep))
+        except SweepdError as exc:
+            text = str(exc)
+            rest = text.removeprefix(f"{check.name}: ")
+            results.append(CheckResult(check.kind, check.name, "error",
+                                       f"{check.name} error: {rest}", {}, text))
+    info: dict[str, Any] = {
+        "points": sweep.points,
+        "ports": sweep.ports,
+        "start_hz": float(sweep.freq_hz[0]) if sweep.points else None,
+        "stop_hz": float(sweep.freq_hz[-1]) if sweep.points else None,
+        "z0_ohm": list(sweep.z0),
+    }
+    if source is not None:
+        info["source"] = source
+    for key in ("serial", "plan"):
+        if isinstance(sweep.meta.get(key), str):
+            info[key] = sweep.meta[key]
+    key = {}
+    if metrics and sweep.points:
+        from acquire.metrics import key_metrics
+
+        key = key_metrics(sweep)
+    return Verdict(tuple(results), info, _finite_json(key))
+
+
+def _finite_json(value: Any) -> Any:
+    """Plain JSON values: numpy scalars unwrapped, NaN and infinity as ``None``."""
+    if hasattr(value, "item") and not isinstance(value, (list, dict, str)):
+        value = value.item()
+    if isinstance(value, float):
+        return value if value == value and abs(value) != float("inf") else None
+    if isinstance(value, dict):
+        return {k: _finite_json(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_finite_json(v) for v in value]
+    return value
+
+
+# -- parsing plan entries ------------------------------------------------------------
+
+
+def parse_checks(node: Node) -> list[Check]:
+    """Validate a plan's ``checks:`` list; errors name the plan file and key path."""
+    checks: list[Check] = []
+    for item in node.elements():
+        item.mapping(CHECK_KINDS)
+        if len(item.value) != 1:
+            item.fail(f"must hold exactly one check ({', '.join(CHECK_KINDS)}), "
+                      f"got {len(item.value)} keys")
+        kind = next(iter(item.value))
+        checks.append(_PARSERS[kind](item[kind]))
+    return checks
+
+
+def mask_check(ref: str, base_dir: Path | None = None) -> MaskCheck:
+    """A mask check from a bare name (shipped library) or a path."""
+    from acquire.library import find_config
+
+    return MaskCheck(load_mask(find_config("masks", ref, base_dir)))
+
+
+def _parse_mask(node: Node) -> Check:
+    ref = node.text()
+    try:
+        from acquire.library import find_config
+
+        path = find_config("masks", ref, node.base_dir)
+    except ConfigError as exc:
+        node.fail(str(exc))
+    return MaskCheck(load_mask(path))
+
+
+def _parse_bandwidth(node: Node) -> Check:
+    node.mapping(["below_swr", "below_return_loss", "at_least", "parameter"],
+                 required=["at_least"])
+    has_swr, has_rl = node["below_swr"].present, node["below_return_loss"].present
+    if has_swr == has_rl:
+        node.fail("needs exactly one of below_swr or below_return_loss")
+    swr_max = node["below_swr"].number(lo=1.0) if has_swr else None
+    if swr_max is not None and swr_max == 1.0:
+        node["below_swr"].fail("must be above 1 (SWR 1 is a perfect match, no bandwidth)")
+    rl = node["below_return_loss"].quantity("decibel") if has_rl else None
+    if rl is not None and rl <= 0:
+        node["below_return_loss"].fail("must be a positive return loss in dB, e.g. 10 dB")
+    at_least = node["at_least"].quantity("frequency", lo=0.0)
+    return BandwidthCheck(at_least, swr_max, rl, _reflection(node["parameter"]))
+
+
+def _parse_resonance(node: Node) -> Check:
+    node.mapping(["within", "method", "parameter"], required=["within"])
+    lo, hi = _freq_pair(node["within"])
+    method = node["method"].text("min_gamma", choices=("min_gamma", "reactance_zero"))
+    return ResonanceCheck(lo, hi, method, _reflection(node["parameter"]))
+
+
+def _parse_worst_swr(node: Node) -> Check:
+    node.mapping(["band", "at_most", "parameter"], required=["band", "at_most"])
+    lo, hi = _freq_pair(node["band"])
+    return WorstSwrCheck(lo, hi, node["at_most"].number(lo=1.0), _reflection(node["parameter"]))
+
+
+def _freq_pair(node: Node) -> tuple[float, float]:
+    items = node.elements(min_len=2)
+    if len(items) != 2:
+        node.fail(f"must be a pair [low, high], got {len(items)} values")
+    lo = items[0].quantity("frequency", lo=0.0)
+    hi = items[1].quantity("frequency", lo=0.0)
+    if hi < lo:
+        node.fail(f"low end {format_frequency(lo)} lies above high end {format_frequency(hi)}")
+    return lo, hi
+
+
+def _reflection(node: Node) -> str:
+    text = node.text("S11").strip().upper()
+    if len(text) != 3 or text[0] != "S" or not text[1:].isdigit() or text[1] != text[2] \
+            or text[1] == "0":
+        node.fail(f"must be a reflection parameter such as S11 or S22, got {node.value!r}")
+    return text
+
+
+_PARSERS = {
+    "mask": _parse_mask,
+    "bandwidth": _parse_bandwidth,
+    "resonance": _parse_resonance,
+    "worst_swr": _parse_worst_swr,
+}
