@@ -16,6 +16,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "run": ("run", "connect, configure, sweep once and save a Touchstone file"),
     "sim": ("sim", "serve a simulated analyzer on a local socket and a pseudo-terminal"),
     "demo": ("demo", "run the main job end to end against the built-in simulator"),
+    "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
     "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
 }
