@@ -1,0 +1,124 @@
+"""The demo: the main job end to end against a simulated analyzer in its own process.
+
+It starts ``python -m simulators`` (TCP and a pseudo-terminal), writes demo plans that
+point at it, and then does what a line does: calibrate, measure units against the mask,
+plot, and report where every file is. Each step prints what it does and runs the same
+code paths the real commands use.
+"""
+
+from __future__ import annotations
+
+import shlex
+import sys
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import yaml
+
+from acquire.library import library_dir
+from drivers.errors import SweepdError
+
+
+class DemoError(SweepdError):
+    """A demo step failed."""
+
+
+@dataclass
+class DemoContext:
+    root: Path
+    sim: object  # simulators.process.SimProcess
+    plans: dict[str, Path] = field(default_factory=dict)
+    produced: list[tuple[str, Path]] = field(default_factory=list)
+
+    def fixture(self, op: str, **args: object) -> object:
+        """One control-channel call to the simulated world (fixture, unit, faults)."""
+        from simulators.control import SimControl
+
+        with SimControl(*self.sim.control) as control:
+            return control.call(op, **args)
+
+    def sweepd(self, *argv: str) -> int:
+        from acquire.cli import main
+
+        print(f"  $ sweepd {shlex.join(argv)}", flush=True)
+        code = main(list(argv))
+        if code == 2:
+            raise DemoError(f"'sweepd {argv[0]}' failed (see the message above)")
+        return code
+
+
+def demo_plan(ctx: DemoContext, name: str, resource: str, **changes: object) -> Path:
+    """Copy a shipped plan into the demo folder, pointed at the simulator."""
+    data = yaml.safe_load((library_dir("plans") / f"{name}.yaml").read_text())
+    data["instrument"]["resource"] = resource
+    data["output"]["dir"] = str(ctx.root / "results" / name)
+    data.update(changes)
+    if "calibration" in data:
+        data["calibration"]["prompt"] = "command"
+        data["calibration"]["switch"] = {
+            "command": f"{shlex.quote(sys.executable)} -m simulators.control "
+                       f"{ctx.sim.control_text} connect {{standard}}"
+        }
+    path = ctx.root / "plans" / f"{name}.yaml"
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(yaml.safe_dump(data, sort_keys=False))
+    ctx.plans[name] = path
+    return path
+
+
+def step_plans(ctx: DemoContext) -> None:
+    demo_plan(
+        ctx, "patch-line-a", ctx.sim.tcp_resource,
+        checks=[{"mask": "patch-2g45"},
+                {"bandwidth": {"below_swr": 2.0, "at_least": "60 MHz"}},
+                {"resonance": {"within": ["2.42 GHz", "2.48 GHz"]}}],
+    )
+    demo_plan(ctx, "whip-915", ctx.sim.serial_resource)
+    print(f"  plans written to {ctx.root / 'plans'}")
+
+
+def step_measure(ctx: DemoContext) -> None:
+    plan = ctx.plans["patch-line-a"]
+    out = ctx.root / "results" / "patch-line-a"
+    for serial in ("PA-0001", "PA-0002", "PA-0003"):
+        ctx.fixture("unit", serial=serial)
+        ctx.sweepd("run", str(plan), "--serial", serial, "--output", str(out))
+    ctx.produced.append(("patch line captures", out))
+
+
+def step_plot(ctx: DemoContext) -> None:
+    out = ctx.root / "results" / "patch-line-a"
+    captures = sorted(out.glob("*.s1p"))
+    if not captures:
+        return
+    png = ctx.root / "plots" / f"{captures[0].stem}.png"
+    png.parent.mkdir(parents=True, exist_ok=True)
+    ctx.sweepd("plot", str(captures[0]), "--mask", "patch-2g45", "-o", str(png))
+    ctx.produced.append(("plots", png.parent))
+
+
+STEPS: list[tuple[str, Callable[[DemoContext], None]]] = [
+    ("Write demo plans that point at the simulator", step_plans),
+    ("Measure three patch antennas against the mask", step_measure),
+    ("Plot one capture: match, impedance, Smith chart", step_plot),
+]
+
+
+def run_demo(root: Path, *, sim_args: list[str] | None = None) -> int:
+    from simulators.process import SimProcess
+
+    root = root.resolve()
+    root.mkdir(parents=True, exist_ok=True)
+    args = sim_args or ["--serial", "--time-scale", "0.02", "--seed", "7"]
+    print(f"sweepd demo: working in {root}")
+    with SimProcess(args) as sim:
+        print(f"simulator listening: {', '.join(sim.resources)}; control {sim.control_text}")
+        ctx = DemoContext(root, sim)
+        for n, (title, step) in enumerate(STEPS, 1):
+            print(f"\n[{n}/{len(STEPS)}] {title}", flush=True)
+            step(ctx)
+    print("\nDemo finished. Files:")
+    for label, path in ctx.produced:
+        print(f"  {label:28s} {path}")
+    return 0

@@ -1,0 +1,183 @@
+"""One measurement, start to file: calibration chosen and applied, checks judged, saved.
+
+``capture`` turns one sweep of an open ``Session`` into a ``Capture`` (raw and corrected
+sweep plus verdict) without touching the disk; ``store`` writes it (Touchstone with the
+verdict in its comments, optional raw file, JSON summary beside it). ``measure_and_save``
+is the whole of ``sweepd run``; station and soak modes call the parts.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from acquire.checks import Verdict, evaluate_checks
+from acquire.plan import Plan
+from acquire.runner import Session, capture_path, save_capture, utc_now
+from acquire.storage import write_new
+from acquire.sweep import Sweep
+
+log = logging.getLogger(__name__)
+
+SUMMARY_FORMAT = "sweepd-capture"
+SUMMARY_VERSION = 1
+
+
+def cal_dir_for(plan: Plan, out_dir: Path) -> Path:
+    """Where a plan's cal sets live: its own ``calibration.dir`` or ``<output>/cal``."""
+    if plan.calibration is not None and plan.calibration.cal_dir is not None:
+        return plan.calibration.cal_dir
+    return out_dir / "cal"
+
+
+@dataclass
+class CalChoice:
+    """The cal set a run applies (or None) and what was said about it."""
+
+    calset: Any | None = None
+    warnings: list[str] = field(default_factory=list)
+
+
+def choose_calibration(plan: Plan, session: Session, out_dir: Path) -> CalChoice:
+    """The newest valid cal set for this plan and instrument, or a ``CalError`` saying why.
+
+    A plan without a calibration section measures uncorrected; a plan whose calibration
+    is marked ``required: false`` falls back to uncorrected data with a warning.
+    """
+    spec = plan.calibration
+    if spec is None:
+        return CalChoice()
+    from acquire.calibration import ValidityPolicy, select
+    from acquire.errors import CalError
+
+    try:
+        calset, warnings = select(
+            cal_dir_for(plan, out_dir), plan.name, session.applied, session.identity_text,
+            policy=ValidityPolicy.from_spec(spec), plan_ref=str(plan.source),
+        )
+    except CalError as exc:
+        if spec.required:
+            raise
+        return CalChoice(None, [f"measuring uncorrected: {exc}"])
+    for text in warnings:
+        log.warning("%s", text)
+    return CalChoice(calset, warnings)
+
+
+@dataclass
+class Capture:
+    """One judged sweep, not yet stored."""
+
+    raw: Sweep
+    sweep: Sweep  # corrected when a cal set applied, else the raw sweep
+    verdict: Verdict
+    corrected: bool = False
+    cal_warnings: list[str] = field(default_factory=list)
+
+
+def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> Capture:
+    """Sweep once, correct with the chosen cal set, judge with the plan's checks."""
+    raw = session.measure(serial, **meta)
+    notes = {"cal_warnings": list(cal.warnings)} if cal.warnings else {}
+    if cal.calset is not None:
+        sweep = cal.calset.correct(raw).with_meta(corrected=True, **notes)
+    else:
+        sweep = raw.with_meta(corrected=False, **notes)
+    verdict = evaluate_checks(list(session.plan.checks), sweep)
+    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings))
+
+
+@dataclass
+class Stored:
+    """Where a capture went."""
+
+    touchstone: Path
+    summary: Path
+    raw: Path | None = None
+
+
+def store(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
+          index: int | None = None, station: str = "") -> Stored:
+    """Write the capture: Touchstone (never overwriting), raw copy if asked, JSON summary."""
+    verdict = cap.verdict.verdict if plan.checks else ""
+    path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
+                        station=station, when=utc_now())
+    comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
+    final = save_capture(cap.sweep, plan, path, comments)
+    raw_path = None
+    if plan.output.keep_raw and cap.corrected:
+        raw_path = save_capture(
+            cap.raw.with_meta(raw_of=final.name), plan,
+            final.with_name(f"{final.stem}.raw{final.suffix}"),
+        )
+    summary = summary_dict(cap, final, raw_path)
+    summary_path = write_new(final.with_suffix(".json"),
+                             json.dumps(summary, indent=2, allow_nan=False) + "\n")
+    return Stored(final, summary_path, raw_path)
+
+
+def summary_dict(cap: Capture, touchstone: Path | None = None,
+                 raw: Path | None = None) -> dict[str, Any]:
+    """The verdict JSON plus a ``capture`` block (files, instrument, calibration)."""
+    meta = cap.sweep.meta
+    data = json.loads(cap.verdict.to_json())
+    data["capture"] = {
+        "format": SUMMARY_FORMAT,
+        "version": SUMMARY_VERSION,
+        "touchstone": str(touchstone) if touchstone else None,
+        "raw_touchstone": str(raw) if raw else None,
+        "plan": meta.get("plan"),
+        "serial": meta.get("serial"),
+        "instrument": meta.get("instrument"),
+        "resource": meta.get("resource"),
+        "started_utc": meta.get("started_utc"),
+        "sweep_s": meta.get("sweep_s"),
+        "calibration": {
+            "id": meta.get("cal_id"),
+            "method": meta.get("cal_method"),
+            "age_s": meta.get("cal_age_s"),
+            "interpolated": meta.get("cal_interpolated"),
+            "warnings": list(cap.cal_warnings),
+        } if cap.corrected else None,
+    }
+    return data
+
+
+@dataclass
+class RunResult:
+    """What ``sweepd run`` reports."""
+
+    capture: Capture
+    stored: Stored
+
+    @property
+    def exit_code(self) -> int:
+        return self.capture.verdict.exit_code if self.capture.verdict.results else 0
+
+    def summary(self) -> dict[str, Any]:
+        return json.loads(self.stored.summary.read_text())
+
+    def one_line(self) -> str:
+        sweep = self.capture.sweep
+        cal = "uncorrected"
+        if self.capture.corrected:
+            cal = f"cal {sweep.meta.get('cal_id')} ({sweep.meta.get('cal_age_s', 0) / 3600:.1f} h)"
+        head = (f"{sweep.points} points in {sweep.meta.get('sweep_s', 0):.3f} s, {cal} -> "
+                f"{self.stored.touchstone}")
+        verdict = self.capture.verdict
+        if not verdict.results:
+            return head
+        return f"{head}\n{verdict.summary_line()}\n{verdict.metrics_line()}"
+
+
+def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
+                     serial: str = "") -> RunResult:
+    """The whole of ``sweepd run``: open, calibrate-check, sweep, judge, store, close."""
+    with Session(plan, resource) as session:
+        cal = choose_calibration(plan, session, out_dir)
+        cap = capture(session, cal, serial)
+    stored = store(cap, plan, out_dir, serial=serial)
+    return RunResult(cap, stored)
