@@ -15,10 +15,12 @@ from pathlib import Path
 from typing import Any
 
 from acquire.checks import Verdict, evaluate_checks
+from acquire.journal import Journal, Planned
 from acquire.plan import Plan
 from acquire.runner import Session, capture_path, save_capture, utc_now
-from acquire.storage import write_new
+from acquire.storage import free_path, write_new
 from acquire.sweep import Sweep
+from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)
 
@@ -99,14 +101,12 @@ class Stored:
     raw: Path | None = None
 
 
-def store(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
-          index: int | None = None, station: str = "") -> Stored:
-    """Write the capture: Touchstone (never overwriting), raw copy if asked, JSON summary."""
-    verdict = cap.verdict.verdict if plan.checks else ""
-    path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
-                        station=station, when=utc_now())
+def store(cap: Capture, plan: Plan, path: Path) -> Stored:
+    """Write the capture at ``path`` (which must be free): Touchstone with the verdict in
+    its comments, a raw copy if the plan keeps raw data, and the JSON summary beside it.
+    """
     comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
-    final = save_capture(cap.sweep, plan, path, comments)
+    final = save_capture(cap.sweep, plan, path, comments, unique=False)
     raw_path = None
     if plan.output.keep_raw and cap.corrected:
         raw_path = save_capture(
@@ -117,6 +117,43 @@ def store(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
     summary_path = write_new(final.with_suffix(".json"),
                              json.dumps(summary, indent=2, allow_nan=False) + "\n")
     return Stored(final, summary_path, raw_path)
+
+
+def plan_path(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
+              index: int | None = None, station: str = "") -> Path:
+    """A free Touchstone path for a capture, from the plan's name template."""
+    verdict = cap.verdict.verdict if plan.checks else ""
+    path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
+                        station=station, when=utc_now())
+    return free_path(path)
+
+
+def journal_stored(journal: Journal, planned: Planned, cap: Capture, stored: Stored) -> None:
+    """Mark a planned measurement stored with its verdict, metrics and calibration."""
+    meta = cap.sweep.meta
+    verdict = cap.verdict
+    journal.store_measurement(
+        planned, touchstone=stored.touchstone, summary=stored.summary,
+        raw_touchstone=stored.raw,
+        verdict=verdict.verdict if verdict.results else None,
+        exit_code=verdict.exit_code if verdict.results else None,
+        worst_margin=worst_margin(verdict), metrics=verdict.metrics,
+        verdict_json=verdict.to_json(indent=None),
+        cal_id=meta.get("cal_id") if cap.corrected else None,
+        cal_age_s=meta.get("cal_age_s") if cap.corrected else None,
+        instrument=meta.get("instrument"),
+    )
+
+
+def worst_margin(verdict: Verdict) -> float | None:
+    """The smallest margin over all mask segments (negative when failing), if any."""
+    margins = []
+    for result in verdict.to_dict()["checks"]:
+        for segment in result.get("segments") or ():
+            worst = segment.get("worst") or {}
+            if worst.get("margin") is not None:
+                margins.append(float(worst["margin"]))
+    return min(margins) if margins else None
 
 
 def summary_dict(cap: Capture, touchstone: Path | None = None,
@@ -174,10 +211,28 @@ class RunResult:
 
 
 def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
-                     serial: str = "") -> RunResult:
-    """The whole of ``sweepd run``: open, calibrate-check, sweep, judge, store, close."""
-    with Session(plan, resource) as session:
-        cal = choose_calibration(plan, session, out_dir)
-        cap = capture(session, cal, serial)
-    stored = store(cap, plan, out_dir, serial=serial)
+                     serial: str = "", kind: str = "run") -> RunResult:
+    """The whole of ``sweepd run``: open, choose the cal set, sweep, judge, journal, store.
+
+    The measurement is journalled as pending before its files are written and marked
+    stored after; faults are journalled with the run marked failed.
+    """
+    with Journal.in_folder(out_dir) as journal:
+        run_id = journal.start_run(kind, plan.name, plan_path=str(plan.source),
+                                   resource=resource or plan.instrument.resource)
+        try:
+            with Session(plan, resource) as session:
+                journal.update_run(run_id, instrument=session.identity_text)
+                cal = choose_calibration(plan, session, out_dir)
+                cap = capture(session, cal, serial)
+            planned = journal.plan_measurement(
+                run_id, 0, plan_path(cap, plan, out_dir, serial=serial), serial=serial
+            )
+            stored = store(cap, plan, planned.touchstone)
+            journal_stored(journal, planned, cap, stored)
+        except SweepdError as exc:
+            journal.record_fault(run_id, type(exc).__name__, str(exc), action="run stopped")
+            journal.end_run(run_id, "failed", note=str(exc))
+            raise
+        journal.end_run(run_id)
     return RunResult(cap, stored)

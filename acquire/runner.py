@@ -138,12 +138,16 @@ def capture_path(plan: Plan, out_dir: Path, *, serial: str, verdict: str = "",
     return out_dir / f"{stem}{suffix or f'.s{plan.ports}p'}"
 
 
-def save_capture(sweep: Sweep, plan: Plan, path: Path, comments: tuple[str, ...] = ()) -> Path:
-    """Write a sweep as Touchstone per the plan's output options; returns the final path."""
+def save_capture(sweep: Sweep, plan: Plan, path: Path, comments: tuple[str, ...] = (),
+                 *, unique: bool = True) -> Path:
+    """Write a sweep as Touchstone per the plan's output options; returns the final path.
+
+    With ``unique=False`` the exact ``path`` is used or ``FileExistsError`` raised.
+    """
     from acquire.touchstone import TouchstoneOptions, write_touchstone
 
     ts = plan.output.touchstone
     options = TouchstoneOptions(
         version=ts.version, fmt=ts.fmt, freq_unit=ts.freq_unit, precision=ts.precision
     )
-    return write_touchstone(path, sweep, options, comments)
+    return write_touchstone(path, sweep, options, comments, unique=unique)

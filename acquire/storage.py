@@ -77,6 +77,16 @@ def replace_atomic(path: Path | str, data: bytes | str) -> Path:
     return path
 
 
+def free_path(path: Path) -> Path:
+    """``path`` if no file has that name, else the first free ``stem-N.suffix``."""
+    candidate = path
+    n = 2
+    while candidate.exists():
+        candidate = path.with_name(f"{path.stem}-{n}{path.suffix}")
+        n += 1
+    return candidate
+
+
 def safe_component(text: str, *, max_len: int = 80) -> str:
     """Reduce arbitrary text to a file-name component that cannot leave its folder."""
     cleaned = _UNSAFE.sub("_", text).strip("._") or "_"
