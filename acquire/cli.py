@@ -16,6 +16,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "run": ("run", "connect, configure, sweep once and save a Touchstone file"),
     "sim": ("sim", "serve a simulated analyzer on a local socket and a pseudo-terminal"),
     "demo": ("demo", "run the main job end to end against the built-in simulator"),
+    "calibrate": ("calibrate", "guided calibration: prompt each standard, check, save a cal set"),
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
     "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
@@ -30,7 +31,7 @@ def build_parser() -> argparse.ArgumentParser:
         description="Unattended, vendor-neutral acquisition of network analyzer sweeps.",
         epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error.",
     )
-    parser.add_argument("--version", action="version", version=f"sweepd {_version()}")
+    parser.add_argument("--version", action=_VersionAction, help="print the version and exit")
     parser.add_argument(
         "-v", "--verbose", action="count", default=0, help="more log output on stderr"
     )
@@ -76,6 +77,17 @@ def _configure_logging(verbosity: int) -> None:
         stream=sys.stderr,
         format="%(asctime)s %(levelname)s %(name)s: %(message)s",
     )
+
+
+class _VersionAction(argparse.Action):
+    """Like ``action='version'`` but looks the version up only when asked."""
+
+    def __init__(self, option_strings: list[str], dest: str, **kwargs: object) -> None:
+        super().__init__(option_strings, dest, nargs=0, **kwargs)
+
+    def __call__(self, parser, namespace, values, option_string=None) -> None:
+        print(f"sweepd {_version()}")
+        parser.exit()
 
 
 def _version() -> str:
