@@ -57,3 +57,7 @@ class ScpiErrorQueue(InstrumentError):
 
     def __str__(self) -> str:
         return str(self.args[0])
+
+
+class StimulusError(SweepdError, ValueError):
+    """A stimulus value cannot be sent as given (not a finite number, not a whole number)."""

@@ -1,0 +1,242 @@
+#!/usr/bin/env python3
+"""Per-sweep time of the driver path, side by side with a raw-socket floor and a naive read.
+
+    .venv/bin/python bench/acquire.py [--points 201,1601,10001,100001] [--seconds 1]
+                                      [--rounds 3] [--core 0]
+
+Three ways to fetch the same 1-port trace (S11, re/im pairs) from one simulator:
+
+- sweepd: ``Analyzer.sweep(["S11"])`` over the scpi-generic dialect, REAL,64 in the host's
+  byte order; ``:INIT:IMM;*WAI;:TRAC:DATA? S11`` in one message, one round trip;
+- floor: a raw socket sends the same message and reads the same block, whose length it
+  knows in advance, into a preallocated buffer (``recv_into``); no parsing, no checks;
+- naive: pyvisa's ``query_ascii_values`` of the same message with ``FORMat ASCii``.
+
+Measured the way the floor is: this process and the simulator (a subprocess,
+``python -m simulators --frozen --time-scale 0 --no-noise``) pinned to one core, so a round
+trip costs a context switch and not a cross-core wake-up, and the simulator serves a
+precomputed, pre-encoded sweep so its own cost does not hide the client's. Each cell is the
+median of the per-sweep times over about ``--seconds`` of sweeps after a warm-up, best of
+``--rounds`` rounds (other load on a shared machine only ever adds time). The sweep rate is
+sweeps completed per second at 201 points (transfer only: zero sweep time).
+
+Targets: sweepd within 3x the floor at 10,001 and 100,001 points, at least 15x faster than
+the naive ASCII read at 10,001 points, at least 5,000 sweeps/s at 201 points.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import socket
+import statistics
+import subprocess
+import sys
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(HERE))
+
+import numpy as np  # noqa: E402
+
+from drivers.analyzer import Analyzer  # noqa: E402
+from drivers.dialect import load_dialect  # noqa: E402
+from drivers.stimulus import Stimulus  # noqa: E402
+
+COMMAND = ":INIT:IMM;*WAI;:TRAC:DATA? S11"
+BUSY = b"-300"
+
+
+def start_simulator() -> tuple[subprocess.Popen, str]:
+    """The simulator as a child process (it inherits this process's CPU affinity)."""
+    args = [
+        sys.executable,
+        "-m",
+        "simulators",
+        "--port",
+        "0",
+        "--time-scale",
+        "0",
+        "--no-noise",
+        "--frozen",
+    ]
+    child = subprocess.Popen(args, cwd=HERE, stdout=subprocess.PIPE, text=True)
+    assert child.stdout is not None
+    resource = child.stdout.readline().strip()
+    if not resource.startswith("TCPIP::"):
+        child.kill()
+        raise SystemExit(f"bench: the simulator did not start (said {resource!r})")
+    return child, resource
+
+
+def timed(run: Callable[[], object], seconds: float, minimum: int = 5) -> tuple[float, float]:
+    """(median seconds per call, calls per second) over about ``seconds`` after a warm-up."""
+    for _ in range(3):
+        run()
+    times: list[float] = []
+    clock = time.perf_counter
+    started = clock()
+    while len(times) < minimum or clock() - started < seconds:
+        t0 = clock()
+        run()
+        times.append(clock() - t0)
+    return statistics.median(times), len(times) / (clock() - started)
+
+
+def sweepd_path(resource: str, points: int, seconds: float) -> tuple[float, float, np.ndarray]:
+    stimulus = Stimulus(1e9, 3e9, points, 0.0, 1e6)
+    with Analyzer(resource, load_dialect("scpi-generic"), timeout_s=30.0) as an:
+        assert an.data_format == "real64"
+        an.configure(stimulus)
+        median, rate = timed(lambda: an.sweep(["S11"]), seconds)
+        _, data = an.sweep(["S11"])
+    return median, rate, data[:, 0]
+
+
+def raw_connect(host: str, port: int) -> socket.socket:
+    """A plain socket; retried while the simulator still serves the previous client."""
+    for _ in range(200):
+        sock = socket.create_connection((host, port))
+        sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        sock.sendall(b"*IDN?\n")
+        reply = sock.recv(4096)
+        if reply and not reply.startswith(BUSY):
+            return sock
+        sock.close()
+        time.sleep(0.02)
+    raise SystemExit("bench: the simulator stayed busy")
+
+
+def floor_path(resource: str, points: int, seconds: float, reference: np.ndarray) -> float:
+    _, host, port, _ = resource.split("::")
+    sock = raw_connect(host, int(port))
+    payload = points * 16
+    total = 2 + len(str(payload)) + payload + 1
+    buf = bytearray(total)
+    view = memoryview(buf)
+    message = COMMAND.encode() + b"\n"
+
+    def run() -> None:
+        sock.sendall(message)
+        got = 0
+        while got < total:
+            got += sock.recv_into(view[got:], total - got)
+
+    try:
+        median, _ = timed(run, seconds)
+        start = total - payload - 1
+        got = np.frombuffer(buf, "<f8", 2 * points, start).view(np.complex128)
+        assert np.array_equal(got, reference), "floor read different data"
+    finally:
+        sock.close()
+    return median
+
+
+def naive_path(resource: str, seconds: float, reference: np.ndarray) -> float:
+    import pyvisa
+
+    rm = pyvisa.ResourceManager("@py")
+    for _ in range(200):
+        inst = rm.open_resource(
+            resource, read_termination="\n", write_termination="\n", timeout=60_000
+        )
+        if not inst.query("*IDN?").startswith("-300"):
+            break
+        inst.close()
+        time.sleep(0.02)
+    try:
+        inst.write(":FORM:DATA ASC")
+
+        def run() -> np.ndarray:
+            values = np.array(inst.query_ascii_values(COMMAND))
+            return values[0::2] + 1j * values[1::2]
+
+        median, _ = timed(run, seconds, minimum=3)
+        assert np.array_equal(run(), reference), "naive read different data"
+    finally:
+        inst.close()
+    return median
+
+
+def show(seconds: float) -> str:
+    if seconds >= 1e-3:
+        return f"{seconds * 1e3:8.2f} ms"
+    return f"{seconds * 1e6:8.1f} us"
+
+
+def measure(resource: str, counts: list[int], seconds: float) -> tuple[list[tuple], float | None]:
+    """One round: every method at every point count; (rows, 201-point sweep rate)."""
+    rows = []
+    rate_201 = None
+    for points in counts:
+        ours, rate, reference = sweepd_path(resource, points, seconds)
+        floor = floor_path(resource, points, seconds, reference)
+        naive = naive_path(resource, seconds, reference)
+        rows.append((points, ours, floor, naive))
+        if points == 201:
+            rate_201 = rate
+    return rows, rate_201
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--points", default="201,1601,10001,100001")
+    parser.add_argument("--seconds", type=float, default=1.0, help="time per cell (default 1)")
+    parser.add_argument(
+        "--rounds",
+        type=int,
+        default=3,
+        help="repeat everything; each cell keeps its best round (default 3)",
+    )
+    parser.add_argument("--core", type=int, default=0, help="CPU core for both processes")
+    args = parser.parse_args()
+    counts = [int(p) for p in args.points.split(",")]
+    os.sched_setaffinity(0, {args.core})
+    child, resource = start_simulator()
+    rounds = []
+    try:
+        for _ in range(args.rounds):
+            rounds.append(measure(resource, counts, args.seconds))
+    finally:
+        child.terminate()
+        child.wait(5)
+    # Best round per cell: other load on the shared machine only ever adds time.
+    rows = [
+        (points, *(min(r[0][i][k] for r in rounds) for k in (1, 2, 3)))
+        for i, points in enumerate(counts)
+    ]
+    rates = [r[1] for r in rounds if r[1] is not None]
+    rate_201 = max(rates) if rates else None
+    print(
+        f"one core ({args.core}) for client and simulator; frozen simulator; "
+        f"median per sweep, best of {args.rounds} rounds"
+    )
+    print(
+        f"{'points':>8} {'sweepd':>11} {'floor':>11} {'naive ascii':>11}"
+        f" {'sweepd/floor':>13} {'naive/sweepd':>13}"
+    )
+    for points, ours, floor, naive in rows:
+        print(
+            f"{points:>8} {show(ours)} {show(floor)} {show(naive)}"
+            f" {ours / floor:>12.2f}x {naive / ours:>12.1f}x"
+        )
+    if rate_201 is not None:
+        each = ", ".join(f"{r:,.0f}" for r in rates)
+        print(f"201-point sweep rate: {rate_201:,.0f} sweeps/s (rounds: {each}; target >= 5,000)")
+    checks = []
+    for points, ours, floor, naive in rows:
+        if points in (10001, 100001):
+            checks.append((f"sweepd/floor at {points} <= 3", ours / floor <= 3.0))
+        if points == 10001:
+            checks.append(("naive/sweepd at 10001 >= 15", naive / ours >= 15.0))
+    if rate_201 is not None:
+        checks.append(("sweeps/s at 201 >= 5000", rate_201 >= 5000))
+    for name, ok in checks:
+        print(f"{'met   ' if ok else 'MISSED'} {name}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

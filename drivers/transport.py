@@ -1,0 +1,568 @@
+"""Message transport to one instrument: pyvisa with the pyvisa-py backend.
+
+Resources are VISA resource strings: raw socket ``TCPIP::host::port::SOCKET`` and serial
+``ASRL<device>::INSTR`` (pyserial). The transport frames messages (terminators, IEEE
+488.2 blocks), keeps connect and I/O deadlines apart (seconds, monotonic clock) and turns
+every pyvisa, pyserial and OS failure into a ``drivers.errors`` exception whose one-line
+message names the resource and the command.
+
+After a timeout or a malformed reply the input may still hold (or later receive) the rest
+of a reply, so the transport resynchronises before the next command (``resync``): it drops
+input until the line has been quiet for a moment; after a timeout it first waits for the
+late reply and, on a socket, reconnects if none comes. A late reply is never read as the
+answer to the next query. Not thread-safe: one owner, one command in flight.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import re
+import socket
+import threading
+import time
+from collections.abc import Mapping
+from dataclasses import dataclass, fields
+from typing import Any
+
+from drivers.blocks import encode_header, parse_header, quote
+from drivers.deadline import Deadline
+from drivers.errors import (
+    BlockError,
+    ConnectError,
+    ConnectionLost,
+    InstrumentTimeout,
+    ReplyError,
+)
+from drivers.links import (
+    Link,
+    LinkClosed,
+    LinkOverflow,
+    LinkTimeout,
+    SocketLink,
+    VisaLink,
+)
+
+_SOCKET_RESOURCE = re.compile(r"^TCPIP\d*::(?P<host>[^:]+)::(?P<port>\d+)::SOCKET$", re.IGNORECASE)
+_RM: Any = None
+_RM_LOCK = threading.Lock()
+
+MAX_LINE = 64 * 1024 * 1024  # longest text reply accepted (a 200,001-point ASCII trace is ~8 MB)
+REFUSAL_WAIT_S = 0.05  # how long a refusing instrument gets to say so and hang up
+RESYNC_QUIET_S = 0.1  # input must stay silent this long before the next command after an error
+PARITIES = ("none", "odd", "even", "mark", "space")
+FLOW_CONTROLS = ("none", "xon_xoff", "rts_cts", "dtr_dsr")
+
+
+def resource_manager() -> Any:
+    """The process-wide ``pyvisa.ResourceManager("@py")``, created on first use.
+
+    pyvisa hands every caller the same manager, so other code in the process may close
+    it; a closed one is replaced (its resources were closed with it).
+    """
+    global _RM
+    with _RM_LOCK:
+        if _RM is None or getattr(_RM.visalib, "resource_manager", None) is not _RM:
+            import pyvisa
+
+            _RM = pyvisa.ResourceManager("@py")
+        return _RM
+
+
+@dataclass(frozen=True)
+class SerialSettings:
+    """Line settings for ``ASRL`` resources (SCPI leaves these to the instrument)."""
+
+    baud_rate: int = 115200
+    data_bits: int = 8
+    parity: str = "none"
+    stop_bits: float = 1.0
+    flow_control: str = "none"
+
+    @classmethod
+    def from_mapping(cls, values: Mapping[str, Any], resource: str = "") -> SerialSettings:
+        known = {f.name for f in fields(cls)}
+        where = f"instrument {resource}: " if resource else ""
+        for key in values:
+            if key not in known:
+                raise ConnectError(
+                    f"{where}serial.{key}: unknown setting; allowed: {', '.join(sorted(known))}"
+                )
+        settings = cls(**{k: v for k, v in values.items() if v is not None})
+        settings.check(resource)
+        return settings
+
+    def check(self, resource: str = "") -> None:
+        where = f"instrument {resource}: " if resource else ""
+        if (
+            isinstance(self.baud_rate, bool)
+            or not isinstance(self.baud_rate, int)
+            or self.baud_rate < 50
+        ):
+            raise ConnectError(
+                f"{where}serial.baud_rate: must be an integer of at least 50, "
+                f"got {self.baud_rate!r}"
+            )
+        if self.data_bits not in (5, 6, 7, 8):
+            raise ConnectError(
+                f"{where}serial.data_bits: must be 5, 6, 7 or 8, got {self.data_bits!r}"
+            )
+        if self.parity not in PARITIES:
+            raise ConnectError(
+                f"{where}serial.parity: must be one of {', '.join(PARITIES)}, got {self.parity!r}"
+            )
+        if self.stop_bits not in (1, 1.5, 2):
+            raise ConnectError(
+                f"{where}serial.stop_bits: must be 1, 1.5 or 2, got {self.stop_bits!r}"
+            )
+        if self.flow_control not in FLOW_CONTROLS:
+            raise ConnectError(
+                f"{where}serial.flow_control: must be one of {', '.join(FLOW_CONTROLS)}, "
+                f"got {self.flow_control!r}"
+            )
+
+
+class Transport:
+    """One instrument connection; constructing it does no I/O."""
+
+    def __init__(
+        self,
+        resource: str,
+        *,
+        write_termination: str = "\n",
+        read_termination: str = "\n",
+        timeout_s: float = 5.0,
+        connect_timeout_s: float = 5.0,
+        serial: SerialSettings | Mapping[str, Any] | None = None,
+    ) -> None:
+        if not isinstance(resource, str) or not resource.strip():
+            raise ConnectError(f"not a VISA resource string: {resource!r}")
+        for name, value in (("timeout_s", timeout_s), ("connect_timeout_s", connect_timeout_s)):
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
+                raise ConnectError(
+                    f"instrument {resource}: {name} must be a positive number of seconds, "
+                    f"got {value!r}"
+                )
+        if not read_termination or not write_termination:
+            raise ConnectError(f"instrument {resource}: terminators must not be empty")
+        self.resource = resource
+        self.timeout_s = float(timeout_s)
+        self.connect_timeout_s = float(connect_timeout_s)
+        self.write_termination = write_termination.encode("ascii")
+        self.read_termination = read_termination.encode("ascii")
+        self.is_serial = resource.upper().startswith("ASRL")
+        if isinstance(serial, Mapping):
+            serial = SerialSettings.from_mapping(serial, resource)
+        elif serial is not None:
+            serial.check(resource)
+        self.serial = serial or SerialSettings()
+        self._resource: Any = None
+        self._link: Link | None = None
+        self._dirty: str | None = None  # None, 'garbled' or 'timeout'
+        self._headers: dict[int, bytes] = {}  # expected payload length -> block header
+
+    # -- lifetime ------------------------------------------------------------------
+    @property
+    def is_open(self) -> bool:
+        return self._link is not None
+
+    def open(self) -> None:
+        """Connect within ``connect_timeout_s``; ``ConnectError`` names the resource."""
+        if self._link is not None:
+            return
+        kwargs: dict[str, Any] = {"open_timeout": max(1, int(self.connect_timeout_s * 1000))}
+        if self.is_serial:
+            kwargs.update(self._serial_kwargs())
+        else:
+            self._resolve_host()
+        try:
+            rm = resource_manager()
+            resource = rm.open_resource(self.resource, **kwargs)
+        except Exception as exc:  # pyvisa, pyvisa-py and pyserial raise many kinds here
+            raise ConnectError(
+                f"instrument {self.resource}: cannot open: {_describe(exc)}"
+            ) from None
+        try:
+            self._link = self._make_link(resource)
+        except BaseException:
+            _quiet_close(resource)
+            raise
+        self._resource = resource
+        self._dirty = None
+
+    def close(self) -> None:
+        """Close the connection (idempotent, never raises for an already broken link)."""
+        resource, self._resource, self._link = self._resource, None, None
+        if resource is not None:
+            _quiet_close(resource)
+
+    def _resolve_host(self) -> None:
+        """Name lookup up front: clearer message, and pyvisa-py 0.8 leaks the socket here."""
+        match = _SOCKET_RESOURCE.match(self.resource)
+        if match is None:
+            return
+        try:
+            socket.getaddrinfo(match["host"], int(match["port"]), type=socket.SOCK_STREAM)
+        except (OSError, UnicodeError) as exc:
+            reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+            raise ConnectError(
+                f"instrument {self.resource}: cannot open: unknown host {match['host']!r} "
+                f"({reason})"
+            ) from None
+
+    def _make_link(self, resource: Any) -> Link:
+        resource.read_termination = None
+        resource.write_termination = ""
+        session = getattr(resource.visalib, "sessions", {}).get(resource.session)
+        sock = getattr(session, "interface", None)
+        if isinstance(sock, socket.socket):
+            error = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
+            if error:
+                # pyvisa-py reports a refused connect as success; the socket knows better.
+                raise ConnectError(f"instrument {self.resource}: cannot open: {os.strerror(error)}")
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+            pending = getattr(session, "_pending_buffer", None)
+            taken = bytes(pending) if pending else b""
+            if pending:
+                pending.clear()
+            return SocketLink(sock, taken)
+        return VisaLink(resource)
+
+    def _serial_kwargs(self) -> dict[str, Any]:
+        from pyvisa import constants
+
+        parity = {
+            "none": constants.Parity.none,
+            "odd": constants.Parity.odd,
+            "even": constants.Parity.even,
+            "mark": constants.Parity.mark,
+            "space": constants.Parity.space,
+        }[self.serial.parity]
+        stop = {
+            1: constants.StopBits.one,
+            1.5: constants.StopBits.one_and_a_half,
+            2: constants.StopBits.two,
+        }[self.serial.stop_bits]
+        flow = {
+            "none": constants.ControlFlow.none,
+            "xon_xoff": constants.ControlFlow.xon_xoff,
+            "rts_cts": constants.ControlFlow.rts_cts,
+            "dtr_dsr": constants.ControlFlow.dtr_dsr,
+        }[self.serial.flow_control]
+        return {
+            "baud_rate": self.serial.baud_rate,
+            "data_bits": self.serial.data_bits,
+            "parity": parity,
+            "stop_bits": stop,
+            "flow_control": flow,
+        }
+
+    # -- messages ------------------------------------------------------------------
+    def write(self, command: str) -> None:
+        """Send one program message (the write terminator is added)."""
+        link = self._ready(command)
+        try:
+            link.send(command.encode("ascii") + self.write_termination, Deadline(self.timeout_s))
+        except LinkTimeout:
+            self._dirty = "timeout"
+            raise InstrumentTimeout(
+                f"instrument {self.resource}: could not send '{command}' within "
+                f"{self.timeout_s:.3g} s (the instrument does not read)"
+            ) from None
+        except LinkClosed as exc:
+            self._lost(command, exc)
+
+    def read_line(self, command: str, timeout_s: float | None = None) -> str:
+        """The next response message as text, terminator removed."""
+        deadline = Deadline(self.timeout_s if timeout_s is None else timeout_s)
+        raw = self._read_line(command, deadline)
+        return raw.decode("ascii", "replace")
+
+    def query(self, command: str, timeout_s: float | None = None) -> str:
+        """Send ``command`` and return its one-line reply."""
+        self.write(command)
+        return self.read_line(command, timeout_s)
+
+    def read_block(
+        self,
+        command: str,
+        expected: int,
+        into: memoryview | None = None,
+        timeout_s: float | None = None,
+        what: str = "",
+    ) -> memoryview:
+        """Read one IEEE 488.2 block reply of ``expected`` payload bytes.
+
+        The payload lands in ``into`` when given (exactly ``expected`` bytes long) or in a
+        new buffer. A wrong length, a truncated block or a non-block reply is a
+        ``BlockError`` naming the command; the input is left in step for the next command.
+        """
+        deadline = Deadline(self.timeout_s if timeout_s is None else timeout_s)
+        return self._read_block(command, expected, into, deadline, what)
+
+    def query_block(
+        self,
+        command: str,
+        expected: int,
+        into: memoryview,
+        timeout_s: float | None = None,
+        what: str = "",
+    ) -> memoryview:
+        """``write(command)`` then ``read_block``, in one step on a socket (the sweep path)."""
+        link = self._ready(command)
+        if not isinstance(link, SocketLink):
+            self.write(command)
+            return self.read_block(command, expected, into, timeout_s, what)
+        deadline = Deadline(self.timeout_s if timeout_s is None else timeout_s)
+        header = self._headers.get(expected)
+        if header is None:
+            header = self._headers[expected] = encode_header(expected)
+        message = command.encode("ascii") + self.write_termination
+        try:
+            if link.exchange_block(message, header, into, self.read_termination, deadline):
+                return into
+        except LinkTimeout:
+            self._dirty = "timeout"
+            raise InstrumentTimeout(
+                f"instrument {self.resource}: could not send '{command}' within "
+                f"{self.timeout_s:.3g} s (the instrument does not read)"
+            ) from None
+        except LinkClosed as exc:
+            self._lost(command, exc)
+        return self._read_block(command, expected, into, deadline, what)
+
+    def _read_block(
+        self, command: str, expected: int, into: memoryview | None, deadline: Deadline, what: str
+    ) -> memoryview:
+        link = self._require_open(command)
+        prefix = f"instrument {self.resource}: '{command}'"
+        try:
+            length = self._read_header(prefix, link, deadline)
+            if length is not None and length != expected:
+                self._skip_wrong_block(link, length, expected, deadline)
+                raise BlockError(f"{prefix} {_wrong_length(length, expected, what)}")
+            target = into if into is not None else memoryview(bytearray(expected))
+            if len(target) != expected:
+                raise ValueError("buffer size differs from the expected payload")
+            self._read_payload(prefix, link, target, deadline)
+            self._expect_terminator(prefix, link, deadline)
+            return target
+        except BlockError:
+            self._dirty = self._dirty or "garbled"
+            raise
+        except LinkTimeout as exc:
+            self._timed_out(command, deadline, exc)
+        except LinkClosed as exc:
+            self._lost(command, exc)
+
+    # -- recovery ------------------------------------------------------------------
+    def clear_input(self) -> bytes:
+        """Discard anything already received; returns the start of what was dropped."""
+        link = self._require_open("clear input")
+        try:
+            return link.discard_input()
+        except LinkClosed as exc:
+            if exc.said:  # e.g. a busy instrument that says so and hangs up
+                self.close()
+                raise ConnectError(
+                    f"instrument {self.resource}: refused the connection: {quote(exc.said, 80)}"
+                ) from None
+            self._lost("clear input", exc)
+
+    def resync(self, quiet_s: float = RESYNC_QUIET_S) -> None:
+        """Get back in step after a timeout or a malformed reply.
+
+        After a garbled reply: drop input until the line has been silent for ``quiet_s``.
+        After a timeout the awaited reply may still come: wait for it (up to the I/O
+        timeout) and drop it; if nothing comes, a socket is reconnected so that a reply
+        arriving even later cannot be taken for the answer to the next command.
+        """
+        link = self._require_open("resynchronise")
+        kind, self._dirty = self._dirty, None
+        try:
+            link.discard_input()
+            if kind == "timeout":
+                try:
+                    link.read_exact(1, Deadline(self.timeout_s))
+                except LinkTimeout:
+                    if isinstance(link, SocketLink):
+                        self._reopen()
+                    return
+            cap = Deadline(max(self.timeout_s, quiet_s))
+            while not cap.expired():
+                link.discard_input()
+                try:
+                    link.read_exact(1, Deadline(quiet_s))
+                except LinkTimeout:
+                    break
+            link.discard_input()
+        except LinkClosed as exc:
+            self._lost("resynchronise", exc)
+
+    def _reopen(self) -> None:
+        """A fresh connection; retried while the instrument still serves the old one.
+
+        An instrument that refuses a second client typically says so in one line and
+        closes; one that accepts says nothing until asked.
+        """
+        deadline = Deadline(self.connect_timeout_s)
+        said = b""
+        while True:
+            self.close()
+            self.open()
+            link = self._require_open("reconnect")
+            try:
+                said = link.read_exact(1, Deadline(REFUSAL_WAIT_S))
+                said += link.read_until(self.read_termination[-1], Deadline(REFUSAL_WAIT_S), 4096)
+                link.read_exact(1, Deadline(REFUSAL_WAIT_S))
+            except LinkTimeout:
+                link.discard_input()
+                return  # quiet, or a stray line on a link that stays open
+            except LinkClosed:
+                pass  # refused
+            if deadline.expired():
+                self.close()
+                reason = f"said {quote(said, 80)}" if said else "closed it at once"
+                raise ConnectError(
+                    f"instrument {self.resource}: refused a new connection ({reason})"
+                )
+            time.sleep(REFUSAL_WAIT_S)
+
+    # -- internals -----------------------------------------------------------------
+    def _require_open(self, command: str) -> Link:
+        if self._link is None:
+            raise ConnectionLost(f"instrument {self.resource}: not connected (sending '{command}')")
+        return self._link
+
+    def _ready(self, command: str) -> Link:
+        self._require_open(command)
+        if self._dirty:
+            self.resync()  # may replace the link (reconnect)
+        return self._require_open(command)
+
+    def _read_line(self, command: str, deadline: Deadline) -> bytes:
+        link = self._require_open(command)
+        term = self.read_termination
+        try:
+            raw = link.read_until(term[-1], deadline, MAX_LINE)
+        except LinkOverflow as exc:
+            self._dirty = "timeout"  # the rest of the runaway reply is still coming
+            raise ReplyError(
+                f"instrument {self.resource}: '{command}' reply is longer than {MAX_LINE} bytes: "
+                f"starts {quote(exc.partial)}"
+            ) from None
+        except LinkTimeout as exc:
+            self._timed_out(command, deadline, exc)
+        except LinkClosed as exc:
+            self._lost(command, exc)
+        # Accept a lone LF where CR LF is expected (CR before LF is whitespace to 488.2).
+        if raw.endswith(term):
+            return raw[: -len(term)]
+        return raw[:-1].rstrip(b"\r")
+
+    def _read_header(self, prefix: str, link: Link, deadline: Deadline) -> int | None:
+        """Consume ``#<d><digits>``; the payload length, or ``None`` for ``#0``."""
+        head = link.read_exact(1, deadline)
+        if head == b"#":
+            head += link.read_exact(1, deadline)
+            if head[1:].isdigit() and head[1:] != b"0":
+                head += link.read_exact(head[1] - 0x30, deadline)
+        try:
+            _, length = parse_header(head)
+        except BlockError as exc:
+            if self.read_termination[-1] not in head:
+                head += self._rest_of_line(link, deadline)
+            detail = str(exc).split(": starts ")[0]
+            raise BlockError(f"{prefix} {detail}: starts {quote(head)}") from None
+        return length
+
+    def _rest_of_line(self, link: Link, deadline: Deadline) -> bytes:
+        short = Deadline(min(deadline.remaining() or 1.0, 1.0))
+        try:
+            return link.read_until(self.read_termination[-1], short, 4096)
+        except (LinkTimeout, LinkOverflow) as exc:
+            self._dirty = "timeout"
+            return exc.partial
+
+    def _skip_wrong_block(self, link: Link, length: int, expected: int, deadline: Deadline) -> None:
+        """Consume a block of the wrong size so the next reply starts in step."""
+        if length > 4 * expected + (1 << 20):
+            self._dirty = "timeout"  # absurd length: resynchronise instead of reading it
+            return
+        try:
+            link.read_exact(length + len(self.read_termination), deadline)
+        except LinkTimeout:
+            self._dirty = "timeout"
+
+    def _read_payload(self, prefix: str, link: Link, view: memoryview, deadline: Deadline) -> None:
+        try:
+            link.read_into(view, deadline)
+        except LinkTimeout:
+            self._dirty = "timeout"
+            raise BlockError(
+                f"{prefix} block truncated: {len(view)} payload bytes announced, fewer arrived "
+                f"within {deadline.seconds:.3g} s"
+            ) from None
+        except LinkClosed as exc:
+            self.close()
+            raise ConnectionLost(f"{prefix} block truncated: {exc.args[0]}") from None
+
+    def _expect_terminator(self, prefix: str, link: Link, deadline: Deadline) -> None:
+        term = self.read_termination
+        tail = b""
+        try:
+            tail = link.read_exact(1, deadline)
+            if tail == term[-1:]:
+                return  # a lone LF is accepted for CR LF
+            if len(term) > 1 and tail == term[:1]:
+                tail += link.read_exact(len(term) - 1, deadline)
+                if tail == term:
+                    return
+        except LinkTimeout:
+            pass
+        self._dirty = self._dirty or "garbled"
+        shown = quote(tail) if tail else "nothing"
+        raise BlockError(
+            f"{prefix} block payload is followed by {shown}, expected the terminator {term!r} "
+            "(more data than announced)"
+        )
+
+    def _timed_out(self, command: str, deadline: Deadline, exc: LinkTimeout) -> Any:
+        self._dirty = "timeout"
+        got = (
+            f"; {len(exc.partial)} bytes arrived: starts {quote(exc.partial)}"
+            if exc.partial
+            else ""
+        )
+        raise InstrumentTimeout(
+            f"instrument {self.resource}: no complete reply to '{command}' within "
+            f"{deadline.seconds:.3g} s{got}"
+        ) from None
+
+    def _lost(self, command: str, exc: LinkClosed) -> Any:
+        self.close()
+        raise ConnectionLost(
+            f"instrument {self.resource}: connection lost during '{command}': {exc.args[0]}"
+        ) from None
+
+
+def _wrong_length(length: int, expected: int, what: str) -> str:
+    return f"block holds {length} bytes, expected {expected}" + (f" ({what})" if what else "")
+
+
+def _describe(exc: BaseException) -> str:
+    """One line for an exception from pyvisa, pyvisa-py or pyserial."""
+    description = getattr(exc, "description", None)
+    abbreviation = getattr(exc, "abbreviation", None)
+    if description and abbreviation:
+        return f"{abbreviation}: {description}"
+    text = " ".join(str(exc).split())
+    return text or type(exc).__name__
+
+
+def _quiet_close(resource: Any) -> None:
+    with contextlib.suppress(Exception):  # closing a broken link: nothing left to report
+        resource.close()
+
+
+__all__ = ["SerialSettings", "Transport", "resource_manager"]
