@@ -74,25 +74,23 @@ def test_pyvisa_py_over_both_endpoints(personality):
 
     term = "\n" if personality == "generic" else "\r\n"
     with SimServer(personality=personality, serial=True) as sim:
+        # pyvisa hands every caller the same manager: close only our instruments.
         rm = pyvisa.ResourceManager("@py")
-        try:
-            for resource in sim.resources():
-                inst = rm.open_resource(resource, read_termination=term, write_termination="\n",
-                                        timeout=3000)
-                try:
-                    assert inst.query("*IDN?").startswith("sweepd-sim")
-                    if personality == "generic":
-                        inst.write(":SWE:POIN 401;:FORM REAL,32;:FORM:BORD NORM;:INIT")
-                        assert inst.query("*OPC?") == "1"
-                        values = inst.query_binary_values(":TRAC? S11", datatype="f",
-                                                          is_big_endian=True,
-                                                          container=np.array)
-                        assert values.size == 802
-                    else:
-                        inst.write("STIM:COUN 5;:MEAS:RUN")
-                        assert inst.query("*OPC?") == "1"
-                        assert len(inst.query("MEAS:VAL? REFL1").split(",")) == 10
-                finally:
-                    inst.close()
-        finally:
-            rm.close()
+        for resource in sim.resources():
+            inst = rm.open_resource(resource, read_termination=term, write_termination="\n",
+                                    timeout=3000)
+            try:
+                assert inst.query("*IDN?").startswith("sweepd-sim")
+                if personality == "generic":
+                    inst.write(":SWE:POIN 401;:FORM REAL,32;:FORM:BORD NORM;:INIT")
+                    assert inst.query("*OPC?") == "1"
+                    values = inst.query_binary_values(":TRAC? S11", datatype="f",
+                                                      is_big_endian=True,
+                                                      container=np.array)
+                    assert values.size == 802
+                else:
+                    inst.write("STIM:COUN 5;:MEAS:RUN")
+                    assert inst.query("*OPC?") == "1"
+                    assert len(inst.query("MEAS:VAL? REFL1").split(",")) == 10
+            finally:
+                inst.close()
