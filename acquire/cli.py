@@ -20,6 +20,14 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
     "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
+    "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
+    "measure": ("measure", "measure one unit for MES calls: checks, files, journal (0/1/2)"),
+    "summary": ("summary", "yield and per-metric statistics with Cpk from a journal; CSV"),
+    "serve": ("serve", "run queued soak jobs in the foreground (for systemd); Ctrl-C stops"),
+    "submit": ("submit", "queue a soak job from a plan with schedule: and soak: sections"),
+    "status": ("status", "show every soak job: state, sweeps, faults, next sweep, drift"),
+    "cancel": ("cancel", "stop a soak job cleanly after the sweep in flight"),
+    "report": ("report", "plots and summary of a soak job: drift, Allan deviation, alarms"),
 }
 
 EXIT_OK, EXIT_FAIL, EXIT_ERROR = 0, 1, 2
