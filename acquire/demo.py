@@ -78,6 +78,18 @@ def step_plans(ctx: DemoContext) -> None:
     print(f"  plans written to {ctx.root / 'plans'}")
 
 
+def step_calibrate(ctx: DemoContext) -> None:
+    """A scripted technician who first connects the wrong standard, then gets it right."""
+    plan = ctx.plans["patch-line-a"]
+    out = ctx.root / "results" / "patch-line-a"
+    print("  (the scripted technician connects a SHORT where the OPEN belongs, "
+          "then follows the prompts)")
+    ctx.sweepd("calibrate", str(plan), "--output", str(out), "--prompt", "scripted",
+               "--script", "short,short,open,load", "--ascii")
+    ctx.fixture("connect", what="device")
+    ctx.produced.append(("cal sets", out / "cal"))
+
+
 def step_measure(ctx: DemoContext) -> None:
     plan = ctx.plans["patch-line-a"]
     out = ctx.root / "results" / "patch-line-a"
@@ -100,6 +112,7 @@ def step_plot(ctx: DemoContext) -> None:
 
 STEPS: list[tuple[str, Callable[[DemoContext], None]]] = [
     ("Write demo plans that point at the simulator", step_plans),
+    ("Calibrate at the end of the test cable (open, short, load)", step_calibrate),
     ("Measure three patch antennas against the mask", step_measure),
     ("Plot one capture: match, impedance, Smith chart", step_plot),
 ]
