@@ -23,40 +23,51 @@ Kruppa and Sodomsky, IEEE Trans. MTT-19(1), 1971, with e22 set to zero for the d
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, ClassVar
 
 import numpy as np
 
 from acquire.errors import CalError
+
+if TYPE_CHECKING:
+    from typing import Self
 
 ONE_PORT_TERMS = ("directivity", "source_match", "reflection_tracking")
 TRANSMISSION_TERMS = ("transmission_tracking", "isolation", "load_match")
 SINGULAR_INDEPENDENCE = 1e-9
 
 
-@dataclass(frozen=True, eq=False)
-class OnePortTerms:
-    """e00 (directivity), e11 (source match), e10e01 (reflection tracking); (F,) arrays."""
+class _NamedTerms:
+    """Frozen complex (F,) arrays named by ``NAMES``; rebuild with ``from_terms``."""
 
-    directivity: np.ndarray
-    source_match: np.ndarray
-    reflection_tracking: np.ndarray
+    NAMES: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         arrays = np.broadcast_arrays(
-            *(np.asarray(getattr(self, n), np.complex128) for n in ONE_PORT_TERMS)
+            *(np.asarray(getattr(self, n), np.complex128) for n in self.NAMES)
         )
-        for name, arr in zip(ONE_PORT_TERMS, arrays, strict=True):
+        for name, arr in zip(self.NAMES, arrays, strict=True):
             arr = np.array(arr)
             arr.flags.writeable = False
             object.__setattr__(self, name, arr)
 
     @classmethod
-    def from_terms(cls, terms: dict[str, np.ndarray]) -> OnePortTerms:
+    def from_terms(cls, terms: dict[str, np.ndarray]) -> Self:
         """Rebuild from stored named terms (solve once, apply per sweep)."""
-        return cls(*(terms[n] for n in ONE_PORT_TERMS))
+        return cls(*(terms[n] for n in cls.NAMES))
 
     def as_dict(self) -> dict[str, np.ndarray]:
-        return {n: getattr(self, n) for n in ONE_PORT_TERMS}
+        return {n: getattr(self, n) for n in self.NAMES}
+
+
+@dataclass(frozen=True, eq=False)
+class OnePortTerms(_NamedTerms):
+    """e00 (directivity), e11 (source match), e10e01 (reflection tracking); (F,) arrays."""
+
+    NAMES: ClassVar[tuple[str, ...]] = ONE_PORT_TERMS
+    directivity: np.ndarray
+    source_match: np.ndarray
+    reflection_tracking: np.ndarray
 
     def correct(self, measured: np.ndarray) -> np.ndarray:
         """Actual reflection from raw readings: Γ = (M − e00)/(e10e01 + e11(M − e00))."""
@@ -85,28 +96,13 @@ class OnePortFit:
 
 
 @dataclass(frozen=True, eq=False)
-class TransmissionTerms:
+class TransmissionTerms(_NamedTerms):
     """e10e32 (transmission tracking), e30 (isolation), e22 (load match, if measured)."""
 
+    NAMES: ClassVar[tuple[str, ...]] = TRANSMISSION_TERMS
     transmission_tracking: np.ndarray
     isolation: np.ndarray
     load_match: np.ndarray
-
-    def __post_init__(self) -> None:
-        arrays = np.broadcast_arrays(
-            *(np.asarray(getattr(self, n), np.complex128) for n in TRANSMISSION_TERMS)
-        )
-        for name, arr in zip(TRANSMISSION_TERMS, arrays, strict=True):
-            arr = np.array(arr)
-            arr.flags.writeable = False
-            object.__setattr__(self, name, arr)
-
-    @classmethod
-    def from_terms(cls, terms: dict[str, np.ndarray]) -> TransmissionTerms:
-        return cls(*(terms[n] for n in TRANSMISSION_TERMS))
-
-    def as_dict(self) -> dict[str, np.ndarray]:
-        return {n: getattr(self, n) for n in TRANSMISSION_TERMS}
 
     def correct(self, s21m: np.ndarray, source_match: np.ndarray | float = 0.0,
                 s11: np.ndarray | float = 0.0) -> np.ndarray:
