@@ -14,7 +14,9 @@ Schema (version ``SCHEMA_VERSION``; ``MIGRATIONS`` upgrades older files in place
   attempt (1 = first test of this serial in this plan, 2+ = retests), golden flag,
   planned/stored Touchstone path, raw path, summary path, verdict, exit code, worst
   margin, metrics and verdict JSON, cal id and age, instrument, time, state
-  (pending, stored, missed, failed), note.
+  (pending, stored, missed, failed, measured), note. ``measured`` is a sweep whose
+  metrics are journalled but whose data the plan chose not to keep as a file (soak
+  jobs keep every Nth sweep); it has no Touchstone path.
 - ``faults``: run, seq (if a sweep was in flight), time, kind, message, action taken.
 - ``golden_checks``: run, time, serial, passed, worst deviation dB/deg, file, message.
 - ``alarms``: run, seq, time, metric, value, threshold, message.
@@ -114,7 +116,7 @@ CREATE TABLE alarms (
 # version -> SQL that upgrades (version - 1) to version; version 1 is the base schema.
 MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1}
 
-MEASUREMENT_STATES = ("pending", "stored", "missed", "failed")
+MEASUREMENT_STATES = ("pending", "stored", "missed", "failed", "measured")
 
 
 def utc_text(moment: datetime | None = None) -> str:
@@ -315,18 +317,45 @@ class Journal:
                 (run_id, seq, serial, utc_text(), reason),
             )
 
+    def record_measured(self, run_id: int, seq: int, *, metrics: Mapping[str, Any],
+                        verdict: str | None = None, exit_code: int | None = None,
+                        worst_margin: float | None = None, verdict_json: str | None = None,
+                        cal_id: str | None = None, cal_age_s: float | None = None,
+                        instrument: str | None = None, note: str | None = None) -> None:
+        """A sweep taken and judged whose data are not kept as a file: metrics only."""
+        with self.transaction() as db:
+            try:
+                db.execute(
+                    "INSERT INTO measurements(run_id, seq, time_utc, state, verdict, exit_code, "
+                    "worst_margin, metrics_json, verdict_json, cal_id, cal_age_s, instrument, "
+                    "note) VALUES (?, ?, ?, 'measured', ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+                    (run_id, seq, utc_text(), verdict, exit_code, worst_margin,
+                     json.dumps(metrics), verdict_json, cal_id, cal_age_s, instrument, note),
+                )
+            except sqlite3.IntegrityError:
+                raise JournalError(
+                    f"journal {self.path}: sweep {seq} of run {run_id} is already journalled"
+                ) from None
+
     def fail_measurement(self, planned: Planned, reason: str) -> None:
         with self.transaction() as db:
             db.execute("UPDATE measurements SET state='failed', note=? WHERE id=?",
                        (reason, planned.id))
 
-    def reconcile(self, *, adopt: bool = True) -> list[tuple[int, str]]:
+    def reconcile(self, *, adopt: bool = True,
+                  run_id: int | None = None) -> list[tuple[int, str]]:
         """Settle pending rows left by a crash: adopt complete files, mark the rest missed.
 
-        Returns ``(measurement id, new state)`` for each row changed.
+        ``run_id`` limits this to one run (a daemon resuming one job must not touch the
+        rows another process has in flight). Returns ``(measurement id, new state)`` for
+        each row changed.
         """
         changed = []
-        for row in self.query("SELECT id, touchstone FROM measurements WHERE state='pending'"):
+        sql = "SELECT id, touchstone FROM measurements WHERE state='pending'"
+        params: tuple = ()
+        if run_id is not None:
+            sql, params = sql + " AND run_id = ?", (run_id,)
+        for row in self.query(sql, params):
             path = Path(row["touchstone"]) if row["touchstone"] else None
             exists = path is not None and path.is_file()
             state = "stored" if (exists and adopt) else "missed"

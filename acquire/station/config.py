@@ -1,0 +1,219 @@
+"""The plan's ``station:`` section, validated with one-line errors (file and key path).
+
+::
+
+    station:
+      id: line-a-1                    # station id recorded with every run (--station overrides)
+      serial:
+        pattern: "PA-[0-9]{4}"        # regular expression the whole serial must match
+        max_length: 16                # characters (default 40)
+      band: [2.40 GHz, 2.50 GHz]      # band of "worst SWR in band" (default: the S11 masks)
+      golden:
+        serial: GOLDEN                # label of the reference unit
+        reference: golden/unit.s1p    # its stored Touchstone file (relative to the plan)
+        at_start: true                # ask for it at the start of every shift (default)
+        every_units: 50               # and after this many units ...
+        every: 4 h                    # ... or this much time since the last good check
+        band: [2.40 GHz, 2.50 GHz]    # compare only here (default: the whole sweep)
+        tolerance: {magnitude: 0.5 dB, phase: 5 deg, vector: 0.05, min_level: -40 dB}
+
+Everything is optional; a plan without the section gets the default serial rule
+(letters, digits and ``. _ + -``, starting with a letter or digit, at most 40 long).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from acquire.plan import Plan
+from acquire.yamlfile import Node
+
+DEFAULT_PATTERN = r"[A-Za-z0-9][A-Za-z0-9._+-]*"
+DEFAULT_MAX_LENGTH = 40
+MAX_LENGTH_LIMIT = 128
+STATION_ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]{0,31}")
+# Golden-check defaults: our own choice for a reflection check (not from a standard).
+# Magnitude and phase are judged only where the reference is above min_level, since
+# both are ill-conditioned near a deep match; the vector difference holds everywhere.
+DEFAULT_TOLERANCE_DB = 0.5
+DEFAULT_TOLERANCE_DEG = 5.0
+DEFAULT_MIN_LEVEL_DB = -40.0
+
+
+@dataclass(frozen=True)
+class SerialRule:
+    """What a scanned serial must look like."""
+
+    pattern: str = DEFAULT_PATTERN
+    max_length: int = DEFAULT_MAX_LENGTH
+
+    @property
+    def regex(self) -> re.Pattern[str]:
+        return re.compile(self.pattern)
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """Allowed point-by-point difference between the golden unit and its reference."""
+
+    magnitude_db: float | None = DEFAULT_TOLERANCE_DB
+    phase_deg: float | None = DEFAULT_TOLERANCE_DEG
+    vector: float | None = None  # |S_measured - S_reference|, linear
+    min_level_db: float = DEFAULT_MIN_LEVEL_DB
+
+    def describe(self) -> str:
+        parts = []
+        if self.magnitude_db is not None:
+            parts.append(f"{self.magnitude_db:g} dB")
+        if self.phase_deg is not None:
+            parts.append(f"{self.phase_deg:g} deg")
+        if self.vector is not None:
+            parts.append(f"|dS| {self.vector:g}")
+        return ", ".join(parts)
+
+
+@dataclass(frozen=True)
+class GoldenSpec:
+    """The reference unit, its stored Touchstone file, the schedule and the tolerance."""
+
+    serial: str
+    reference: Path
+    at_start: bool = True
+    every_units: int | None = None
+    every_s: float | None = None
+    band_hz: tuple[float, float] | None = None
+    tolerance: Tolerance = field(default_factory=Tolerance)
+
+    def describe(self) -> str:
+        when = ["at start"] if self.at_start else []
+        if self.every_units:
+            when.append(f"every {self.every_units} units")
+        if self.every_s:
+            from acquire.units import format_duration
+
+            when.append(f"every {format_duration(self.every_s)}")
+        return (f"golden unit {self.serial} ({', '.join(when) or 'on request'}; "
+                f"tolerance {self.tolerance.describe()})")
+
+
+@dataclass(frozen=True)
+class StationConfig:
+    station_id: str | None = None
+    serial: SerialRule = field(default_factory=SerialRule)
+    band_hz: tuple[float, float] | None = None
+    golden: GoldenSpec | None = None
+
+
+def station_config(plan: Plan) -> StationConfig:
+    """The validated ``station:`` section of ``plan`` (defaults when it has none)."""
+    node = plan.sections.get("station")
+    if node is None or node.value is None:
+        return StationConfig()
+    return parse_station(node, plan)
+
+
+def parse_station(node: Node, plan: Plan) -> StationConfig:
+    node.mapping(("id", "serial", "band", "golden"))
+    station_id = node["id"].text(None)
+    if station_id is not None:
+        check_station_id(station_id, node["id"])
+    return StationConfig(
+        station_id=station_id,
+        serial=_serial(node["serial"]),
+        band_hz=_band(node["band"], plan) if node["band"].present else None,
+        golden=_golden(node["golden"], plan) if node["golden"].present else None,
+    )
+
+
+def check_station_id(text: str, node: Node | None = None) -> str:
+    """A station id: 1-32 letters, digits, '.', '_' or '-' (it goes into file names)."""
+    if STATION_ID.fullmatch(text):
+        return text
+    message = (f"station id must be 1-32 letters, digits, '.', '_' or '-' (starting with a "
+               f"letter or digit), got {text!r}")
+    if node is not None:
+        node.fail(message)
+    from acquire.station.errors import StationError
+
+    raise StationError(message)
+
+
+def _serial(node: Node) -> SerialRule:
+    if not node.present:
+        return SerialRule()
+    node.mapping(("pattern", "max_length"))
+    pattern = node["pattern"].text(DEFAULT_PATTERN)
+    try:
+        compiled = re.compile(pattern)
+    except re.error as exc:
+        node["pattern"].fail(f"not a valid regular expression: {exc}")
+    if compiled.fullmatch(""):
+        node["pattern"].fail(f"must not accept an empty serial, got {pattern!r}")
+    max_length = node["max_length"].integer(DEFAULT_MAX_LENGTH, lo=1, hi=MAX_LENGTH_LIMIT)
+    return SerialRule(pattern, max_length)
+
+
+def _band(node: Node, plan: Plan) -> tuple[float, float]:
+    from acquire.units import format_frequency
+
+    items = node.elements(min_len=2)
+    if len(items) != 2:
+        node.fail(f"must be a pair [low, high], got {len(items)} values")
+    lo = items[0].quantity("frequency", lo=0.0)
+    hi = items[1].quantity("frequency", lo=0.0)
+    if hi <= lo:
+        node.fail(f"low end {format_frequency(lo)} must lie below high end "
+                  f"{format_frequency(hi)}")
+    st = plan.stimulus
+    slack = 1e-9 * st.stop_hz
+    if lo < st.start_hz - slack or hi > st.stop_hz + slack:
+        node.fail(f"{format_frequency(lo)}..{format_frequency(hi)} is not inside the sweep "
+                  f"{format_frequency(st.start_hz)}..{format_frequency(st.stop_hz)}")
+    return lo, hi
+
+
+def _golden(node: Node, plan: Plan) -> GoldenSpec:
+    node.mapping(("serial", "reference", "at_start", "every_units", "every", "band",
+                  "tolerance"), required=("reference",))
+    serial = node["serial"].text("GOLDEN")
+    from acquire.station.serials import unsafe_reason
+
+    why = unsafe_reason(serial, DEFAULT_MAX_LENGTH)
+    if why:
+        node["serial"].fail(why)
+    reference = node["reference"].file_path()
+    if not reference.is_file():
+        node["reference"].fail(f"file not found: {reference}")
+    every_s = node["every"].quantity("time", None, lo=1.0)
+    spec = GoldenSpec(
+        serial=serial,
+        reference=reference,
+        at_start=node["at_start"].boolean(True),
+        every_units=node["every_units"].integer(None, lo=1, hi=1_000_000),
+        every_s=every_s,
+        band_hz=_band(node["band"], plan) if node["band"].present else None,
+        tolerance=_tolerance(node["tolerance"]),
+    )
+    from acquire.station.golden import load_reference
+
+    load_reference(spec, plan, node["reference"])
+    return spec
+
+
+def _tolerance(node: Node) -> Tolerance:
+    if not node.present:
+        return Tolerance()
+    node.mapping(("magnitude", "phase", "vector", "min_level"))
+    values: dict[str, Any] = {
+        "magnitude_db": node["magnitude"].quantity("decibel", None, lo=1e-6, hi=60.0),
+        "phase_deg": node["phase"].quantity("angle", None, lo=1e-6, hi=180.0),
+        "vector": node["vector"].number(None, lo=1e-9, hi=2.0),
+    }
+    if all(v is None for v in values.values()):
+        node.fail("give at least one of magnitude (dB), phase (deg) or vector (linear)")
+    values["min_level_db"] = node["min_level"].quantity(
+        "decibel", DEFAULT_MIN_LEVEL_DB, lo=-200.0, hi=0.0)
+    return Tolerance(**values)

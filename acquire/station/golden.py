@@ -1,0 +1,173 @@
+"""The golden-unit check: the reference unit measured now against its stored Touchstone.
+
+Point by point over the compared band, for every measured S-parameter:
+
+- magnitude difference ``20·log10|S| − 20·log10|S_ref|`` in dB and phase difference
+  ``angle(S·conj(S_ref))`` in degrees (wrapped to ±180°), both judged only where the
+  reference lies above ``min_level`` (near a deep match both are ill-conditioned: a tiny
+  vector change moves them a lot);
+- the vector difference ``|S − S_ref|`` (linear), judged everywhere.
+
+The worst of each is compared with the plan's tolerance. A difference above it means the
+fixture, the test cable or the golden unit has moved since the reference was taken (or
+since the calibration): the line stops until a recalibration or a good re-check.
+Magnitude in dB as in Pozar, Microwave Engineering, 4th ed., ch. 2.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from acquire.plan import Plan
+from acquire.station.config import GoldenSpec
+from acquire.station.errors import GoldenError
+from acquire.sweep import Sweep
+from acquire.units import format_frequency
+from acquire.yamlfile import Node
+
+GRID_RTOL = 1e-9  # frequencies written in a file with fewer digits still count as equal
+
+
+def load_reference(spec: GoldenSpec, plan: Plan, node: Node | None = None) -> Sweep:
+    """Read the golden reference and check it fits the plan (ports, frequency grid)."""
+    from acquire.errors import TouchstoneError
+    from acquire.touchstone import read_touchstone
+
+    def fail(message: str) -> Any:
+        if node is not None:
+            node.fail(message)
+        raise GoldenError(f"golden reference {spec.reference}: {message}")
+
+    try:
+        ref = read_touchstone(spec.reference).to_sweep()
+    except TouchstoneError as exc:
+        return fail(str(exc))
+    if ref.ports < plan.ports:
+        fail(f"{spec.reference.name} has {ref.ports} port(s); the plan measures {plan.ports}")
+    freq = plan.stimulus.frequencies()
+    if not same_grid(ref.freq_hz, freq):
+        fail(f"{spec.reference.name} holds {_grid(ref.freq_hz)}; the plan sweeps {_grid(freq)}: "
+             "measure the golden unit again with this plan and store that file")
+    return ref
+
+
+def same_grid(a: np.ndarray, b: np.ndarray) -> bool:
+    a, b = np.asarray(a, np.float64), np.asarray(b, np.float64)
+    if a.shape != b.shape:
+        return False
+    return bool(np.allclose(a, b, rtol=0.0, atol=GRID_RTOL * max(float(np.max(b)), 1.0)))
+
+
+@dataclass(frozen=True)
+class Worst:
+    """The largest difference of one kind: value, frequency, S-parameter."""
+
+    value: float
+    freq_hz: float
+    parameter: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"value": self.value, "freq_hz": self.freq_hz, "parameter": self.parameter}
+
+
+@dataclass(frozen=True)
+class GoldenResult:
+    passed: bool
+    message: str
+    points: int
+    magnitude_db: Worst | None = None
+    phase_deg: Worst | None = None
+    vector: Worst | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "passed": self.passed, "message": self.message, "points": self.points,
+            **{k: (w.to_dict() if w else None) for k, w in (
+                ("magnitude_db", self.magnitude_db), ("phase_deg", self.phase_deg),
+                ("vector", self.vector))},
+        }
+
+
+def differences(measured: np.ndarray, reference: np.ndarray, min_level_db: float
+                ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """|dB difference|, |phase difference| (deg), |vector difference| and the mask of
+    points where the reference is above ``min_level_db`` (dB and phase judged there)."""
+    m = np.asarray(measured, np.complex128)
+    r = np.asarray(reference, np.complex128)
+    level = np.abs(r) >= 10.0 ** (min_level_db / 20.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        db = np.abs(20.0 * np.log10(np.abs(m)) - 20.0 * np.log10(np.abs(r)))
+    deg = np.abs(np.angle(m * np.conj(r), deg=True))
+    vec = np.abs(m - r)
+    return db, deg, vec, level
+
+
+def compare(measured: Sweep, reference: Sweep, spec: GoldenSpec,
+            parameters: tuple[str, ...]) -> GoldenResult:
+    """Judge the golden unit's sweep against its reference (see the module docstring)."""
+    if not same_grid(measured.freq_hz, reference.freq_hz):
+        raise GoldenError(f"golden unit {spec.serial}: the sweep ({_grid(measured.freq_hz)}) "
+                          f"and the reference {spec.reference.name} "
+                          f"({_grid(reference.freq_hz)}) are on different grids")
+    f = measured.freq_hz
+    lo, hi = spec.band_hz or (float(f[0]), float(f[-1]))
+    slack = GRID_RTOL * max(float(f[-1]), 1.0)
+    band = (f >= lo - slack) & (f <= hi + slack)
+    if not band.any():
+        raise GoldenError(f"golden unit {spec.serial}: no sweep point in "
+                          f"{format_frequency(lo)}..{format_frequency(hi)}")
+    m = np.stack([measured.param(p)[band] for p in parameters])
+    r = np.stack([reference.param(p)[band] for p in parameters])
+    fb = f[band]
+    points = int(band.sum())
+    if not (np.all(np.isfinite(m)) and np.all(np.isfinite(r))):
+        return GoldenResult(False, f"golden unit {spec.serial}: non-finite values in the "
+                            "measurement or the reference; check the setup and measure again",
+                            points)
+    tol = spec.tolerance
+    db, deg, vec, level = differences(m, r, tol.min_level_db)
+    worst_db = _worst(db, level, fb, parameters)
+    worst_deg = _worst(deg, level, fb, parameters)
+    worst_vec = _worst(vec, np.ones_like(level), fb, parameters)
+    over = []
+    for label, worst, limit, unit in (("magnitude", worst_db, tol.magnitude_db, " dB"),
+                                      ("phase", worst_deg, tol.phase_deg, " deg"),
+                                      ("vector", worst_vec, tol.vector, "")):
+        if limit is not None and worst is not None and not worst.value <= limit:
+            over.append(f"{label} {worst.value:.3g}{unit} at {worst.parameter} "
+                        f"{format_frequency(worst.freq_hz)} (allowed {limit:g}{unit})")
+    if over:
+        message = (f"golden unit {spec.serial} is OUT OF TOLERANCE against "
+                   f"{spec.reference.name}: {'; '.join(over)}. The fixture or test cable has "
+                   "moved (or the golden unit is not seated): recalibrate, or re-seat it and "
+                   "check again")
+    else:
+        message = (f"golden unit {spec.serial} within tolerance ({tol.describe()}): worst "
+                   + ", ".join(_shown(w, u) for w, u in ((worst_db, " dB"), (worst_deg, " deg"),
+                                                         (worst_vec, "")) if w is not None))
+    return GoldenResult(not over, message, points, worst_db, worst_deg, worst_vec)
+
+
+def _worst(values: np.ndarray, valid: np.ndarray, freq: np.ndarray,
+           parameters: tuple[str, ...]) -> Worst | None:
+    if not valid.any():
+        return None
+    masked = np.where(valid, values, -np.inf)
+    k, i = np.unravel_index(int(np.argmax(masked)), masked.shape)
+    value = float(masked[k, i])
+    return Worst(value if np.isfinite(value) else float("inf"), float(freq[i]), parameters[k])
+
+
+def _shown(worst: Worst, unit: str) -> str:
+    label = {" dB": "", " deg": "", "": "|dS| "}[unit]
+    return f"{label}{worst.value:.3g}{unit} ({worst.parameter} {format_frequency(worst.freq_hz)})"
+
+
+def _grid(freq: np.ndarray) -> str:
+    f = np.asarray(freq)
+    if f.size == 0:
+        return "no points"
+    return f"{f.size} points {format_frequency(float(f[0]))}..{format_frequency(float(f[-1]))}"

@@ -1,0 +1,103 @@
+"""Reading an output folder's journal for ``sweepd summary``: selection, text, JSON, CSV."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime, timedelta, timezone
+from pathlib import Path
+from typing import Any
+
+from acquire.journal import JOURNAL_NAME, Journal, utc_text
+from acquire.station.errors import StationError
+from acquire.station.records import Record, query_records
+from acquire.station.report import PlanSummary, summarise, summary_lines
+
+
+def parse_since(text: str, now: datetime | None = None) -> str:
+    """``--since``: a duration back from now ("8 h") or an ISO 8601 date/time (local
+    time unless it ends in Z or gives an offset); returned in the journal's UTC form."""
+    from acquire.units import parse_quantity
+
+    value = text.strip()
+    try:
+        seconds = parse_quantity(value, "time")
+    except ValueError:
+        seconds = None
+    if seconds is not None:
+        if seconds < 0:
+            raise StationError(f"--since {text!r}: a duration back must be positive")
+        return utc_text((now or datetime.now(timezone.utc)) - timedelta(seconds=seconds))
+    try:
+        moment = datetime.fromisoformat(value.replace("Z", "+00:00").replace(" ", "T", 1))
+    except ValueError:
+        raise StationError(f"--since {text!r}: give a date or time such as 2026-12-02 or "
+                           "2026-12-02T06:00, or a duration back such as '8 h'") from None
+    if moment.tzinfo is None:
+        moment = moment.astimezone()  # naive: the machine's local time
+    return utc_text(moment)
+
+
+@dataclass
+class Selection:
+    folder: Path
+    journal_path: Path
+    since_utc: str | None
+    records: list[Record]
+    plans: list[PlanSummary]
+
+    def lines(self) -> list[str]:
+        head = f"journal {self.journal_path}: {len(self.records)} measurement(s)"
+        if self.since_utc:
+            head += f" since {self.since_utc}"
+        if not self.records:
+            return [head, "nothing to summarise"]
+        return [head, *summary_lines(self.plans)]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"format": "sweepd-summary", "version": 1, "journal": str(self.journal_path),
+                "since_utc": self.since_utc, "measurements": len(self.records),
+                "plans": [p.to_dict() for p in self.plans]}
+
+    def csv(self) -> str:
+        from acquire.station.export import csv_text
+
+        return csv_text(self.records)
+
+    def write_csv(self, path: Path) -> Path:
+        """Write (or replace) the CSV export atomically; it is derived from the journal."""
+        from acquire.storage import replace_atomic
+
+        try:
+            return replace_atomic(path, self.csv())
+        except OSError as exc:
+            raise StationError(f"--csv {path}: cannot write ({exc.strerror or exc})") from None
+
+
+def load_selection(folder: Path, *, since_utc: str | None = None, plan: str | None = None,
+                   all_attempts: bool = False) -> Selection:
+    if not folder.is_dir():
+        raise StationError(f"summary {folder}: no such folder")
+    path = folder / JOURNAL_NAME
+    if not path.is_file():
+        raise StationError(f"summary {folder}: no journal ({JOURNAL_NAME}) there; nothing "
+                           "was measured into this folder")
+    with Journal(path) as journal:
+        records = query_records(journal, since_utc=since_utc, plan=plan)
+        golden = _golden_rows(journal, since_utc, plan)
+    return Selection(folder, path, since_utc, records,
+                     summarise(records, golden, all_attempts=all_attempts))
+
+
+def _golden_rows(journal: Journal, since_utc: str | None, plan: str | None) -> list[Any]:
+    where, params = [], []
+    if since_utc is not None:
+        where.append("g.time_utc >= ?")
+        params.append(since_utc)
+    if plan is not None:
+        where.append("r.plan = ?")
+        params.append(plan)
+    return journal.query(
+        "SELECT r.plan, g.passed FROM golden_checks g JOIN runs r ON r.id = g.run_id"
+        + (" WHERE " + " AND ".join(where) if where else "") + " ORDER BY g.id",
+        tuple(params),
+    )
