@@ -22,6 +22,7 @@ _CHARS = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
 _NONDECIMAL = {"H": (16, "0123456789ABCDEF"), "Q": (8, "01234567"), "B": (2, "01")}
 
 _WHITE = "".join(chr(i) for i in range(33))
+ASCII_DIGITS = "0123456789"  # str.isdigit() also accepts '²' and other Unicode digits
 FREQUENCY_UNITS = {"HZ": 1.0, "KHZ": 1e3, "MHZ": 1e6, "MAHZ": 1e6, "GHZ": 1e9}
 POWER_UNITS = {"DBM": 1.0}
 TIME_UNITS = {"S": 1.0, "MS": 1e-3, "US": 1e-6, "NS": 1e-9}
@@ -191,7 +192,7 @@ def _split_careful(text: str, header: str) -> list[str]:
                 raise ScpiError(-102, f"{header}; unclosed '('")
             i = end + 1
             continue
-        if c == "#" and i + 1 < n and text[i + 1].isdigit():
+        if c == "#" and i + 1 < n and text[i + 1] in ASCII_DIGITS:
             i = block_end(text, i, header)
             continue
         if c == ",":
@@ -208,7 +209,7 @@ def block_end(text: str, i: int, header: str) -> int:
     if digits == 0:
         return len(text)  # indefinite: runs to the end of the message
     length_text = text[i + 2: i + 2 + digits]
-    if len(length_text) != digits or not length_text.isdigit():
+    if len(length_text) != digits or not set(length_text) <= set(ASCII_DIGITS):
         raise ScpiError(-161, f"{header}; bad block header {text[i:i + 2 + digits]!r}")
     end = i + 2 + digits + int(length_text)
     if end > len(text):

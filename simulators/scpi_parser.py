@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from simulators.scpi_errors import ScpiError, Status
-from simulators.scpi_params import Param, block_end, split_params
+from simulators.scpi_params import ASCII_DIGITS, Param, block_end, split_params
 from simulators.scpi_tree import CommandTree
 
 # IEEE Std 488.2 white space: bytes 0..32 except LF (which never reaches the parser)
@@ -142,7 +142,7 @@ def split_units(text: str) -> list[str]:
             end = text.find(")", i)
             i = n if end < 0 else end + 1
             continue
-        if c == "#" and i + 1 < n and text[i + 1].isdigit():
+        if c == "#" and i + 1 < n and text[i + 1] in ASCII_DIGITS:
             i = block_end(text, i, "block")
             continue
         if c == ";":
