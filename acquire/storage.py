@@ -46,6 +46,7 @@ def write_new(path: Path | str, data: bytes | str, *, unique: bool = True) -> Pa
     fd, tmp_name = tempfile.mkstemp(prefix=TEMP_PREFIX, dir=folder)
     tmp = Path(tmp_name)
     try:
+        _usual_mode(fd)
         with os.fdopen(fd, "wb") as fh:
             fh.write(payload)
             fh.flush()
@@ -65,6 +66,7 @@ def replace_atomic(path: Path | str, data: bytes | str) -> Path:
     payload = data.encode("utf-8") if isinstance(data, str) else data
     fd, tmp_name = tempfile.mkstemp(prefix=TEMP_PREFIX, dir=path.parent)
     try:
+        _usual_mode(fd)
         with os.fdopen(fd, "wb") as fh:
             fh.write(payload)
             fh.flush()
@@ -103,6 +105,26 @@ def sweep_stale_temps(folder: Path | str) -> list[Path]:
                 tmp.unlink()
                 removed.append(tmp)
     return removed
+
+
+def _usual_mode(fd: int) -> None:
+    """Give a temp file the mode a plain ``open()`` would (mkstemp makes it 0600), so
+    captures can be read by other users as the umask allows; never world-writable."""
+    os.fchmod(fd, 0o666 & ~_current_umask() & ~0o002)
+
+
+def _current_umask() -> int:
+    """The process umask, read without changing it where the OS allows (threads!)."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    umask = os.umask(0o022)  # fallback: briefly set, then restore
+    os.umask(umask)
+    return umask
 
 
 def _link_new(tmp: Path, path: Path, unique: bool) -> Path:

@@ -79,3 +79,20 @@ def test_write_new_cleans_temp_on_failure(tmp_path: Path, monkeypatch: pytest.Mo
     with pytest.raises(OSError):
         write_new(tmp_path / "x.s1p", "data")
     assert list(tmp_path.iterdir()) == []
+
+
+def test_files_get_the_usual_mode_never_world_writable(tmp_path: Path) -> None:
+    old = os.umask(0o022)
+    try:
+        path = write_new(tmp_path / "a.s1p", "x")
+        state = replace_atomic(tmp_path / "s.json", "{}")
+    finally:
+        os.umask(old)
+    assert path.stat().st_mode & 0o777 == 0o644
+    assert state.stat().st_mode & 0o777 == 0o644
+    old = os.umask(0)
+    try:
+        loose = write_new(tmp_path / "b.s1p", "x")
+    finally:
+        os.umask(old)
+    assert loose.stat().st_mode & 0o777 == 0o664
