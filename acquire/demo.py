@@ -17,6 +17,7 @@ from pathlib import Path
 import yaml
 
 from acquire.library import library_dir
+from acquire.station.demo import demo_step as station_demo_step
 from drivers.errors import SweepdError
 
 
@@ -115,6 +116,8 @@ STEPS: list[tuple[str, Callable[[DemoContext], None]]] = [
     ("Calibrate at the end of the test cable (open, short, load)", step_calibrate),
     ("Measure three patch antennas against the mask", step_measure),
     ("Plot one capture: match, impedance, Smith chart", step_plot),
+    ("A short production shift at the station: golden checks, 20 units, summary",
+     station_demo_step),
 ]
 
 
@@ -133,5 +136,5 @@ def run_demo(root: Path, *, sim_args: list[str] | None = None) -> int:
             step(ctx)
     print("\nDemo finished. Files:")
     for label, path in ctx.produced:
-        print(f"  {label:28s} {path}")
+        print(f"  {label:32s} {path}")
     return 0
