@@ -1,0 +1,292 @@
+"""``sweepd report``: what happened overnight, from the journal and the drift records.
+
+Writes ``drift.png``, ``allan.png``, ``deviation.png``, ``summary.txt`` and ``summary.html``
+(pictures embedded by file name) into the report folder, each atomically. The Allan
+deviation is computed here from the journalled resonance of every sweep (missed sweeps
+are gaps, see ``acquire.soak.allan``); the envelope from the per-point drift records of
+the sweeps the journal holds.
+"""
+
+from __future__ import annotations
+
+import html
+from collections import Counter
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from acquire.soak import history
+from acquire.soak.allan import adev_curve
+from acquire.soak.devfile import read_deviation
+from acquire.soak.report_plots import allan_plot, deviation_plot, drift_plot
+from acquire.soak.spec import SoakSpec, parse_soak
+from acquire.soak.spool import Job, SpoolError
+from acquire.storage import replace_atomic
+from acquire.units import format_duration, format_frequency
+
+
+@dataclass
+class Report:
+    folder: Path
+    text: str
+    html: Path
+    pictures: dict[str, Path]
+
+
+def write_report(job: Job, folder: Path) -> Report:
+    """Build every part of the report for ``job`` into ``folder``."""
+    plan = job.load_plan()
+    spec = parse_soak(plan)
+    state = job.read_state()
+    run_id = state.get("run_id")
+    if run_id is None:
+        raise SpoolError(f"job {job.id}: never ran (state {state.get('state')}); "
+                         "nothing to report yet")
+    query, close = history.open_for_job(job.output_dir)
+    try:
+        rows = query("SELECT * FROM runs WHERE id = ?", (int(run_id),))
+        if not rows:
+            raise SpoolError(f"job {job.id}: run {run_id} is not in "
+                             f"{job.output_dir / 'journal.sqlite'}")
+        run = dict(rows[0])
+        run_id = int(run["id"])
+        ser = history.series(query, run_id)
+        faults = history.faults(query, run_id)
+        alarms = history.alarms(query, run_id)
+    finally:
+        close()
+    folder.mkdir(parents=True, exist_ok=True)
+    done = ser.done_mask()
+    deviation = read_deviation(job.data_dir, set(ser.seq[done].tolist()))
+    t_s = _times(ser, spec)
+    title = f"soak {job.id}"
+    pictures = {
+        "drift": _drift(folder, ser, spec, t_s, alarms, faults, title),
+        "allan": _allan(folder, ser, spec, t_s, title),
+    }
+    if deviation is not None and deviation[1].size:
+        pictures["deviation"] = _deviation(folder, deviation, spec, title)
+    facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
+    text = _text(facts)
+    replace_atomic(folder / "summary.txt", text + "\n")
+    page = replace_atomic(folder / "summary.html", _html(facts, pictures))
+    return Report(folder, text, page, pictures)
+
+
+# -- data ---------------------------------------------------------------------------------
+def _times(ser: history.Series, spec: SoakSpec) -> np.ndarray:
+    """Seconds since the start per row: measured ones as journalled, the rest from the
+    schedule (or interpolated when sweeps ran back to back)."""
+    t = ser.t_s.copy()
+    gaps = ~np.isfinite(t)
+    if gaps.any():
+        if spec.schedule.every_s > 0:
+            t[gaps] = ser.seq[gaps] * spec.schedule.every_s
+        elif (~gaps).sum() >= 2:
+            t[gaps] = np.interp(ser.seq[gaps], ser.seq[~gaps], t[~gaps])
+        else:
+            t[gaps] = 0.0
+    return t
+
+
+def _tau0(spec: SoakSpec, ser: history.Series, t_s: np.ndarray) -> float:
+    if spec.schedule.every_s > 0:
+        return spec.schedule.every_s
+    ok = np.isfinite(ser.t_s)
+    if ok.sum() >= 2:
+        return float((ser.t_s[ok][-1] - ser.t_s[ok][0]) / (ser.seq[ok][-1] - ser.seq[ok][0]))
+    return 0.0
+
+
+def _resonance_by_index(ser: history.Series) -> np.ndarray:
+    """The resonance per sweep index 0..last (nan for missed or absent)."""
+    size = int(ser.seq.max()) + 1 if ser.seq.size else 0
+    y = np.full(size, np.nan)
+    y[ser.seq] = np.where(ser.done_mask(), ser.values("resonance_hz"), np.nan)
+    return y
+
+
+def _alarm_times(alarms: list[dict[str, Any]], ser: history.Series,
+                 t_s: np.ndarray) -> list[tuple[float, str]]:
+    where = {int(s): float(t) for s, t in zip(ser.seq, t_s, strict=True)}
+    return [(where[a["seq"]], a["metric"]) for a in alarms if a["seq"] in where]
+
+
+def _drift(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
+           alarms: list[dict[str, Any]], faults: list[dict[str, Any]], title: str) -> Path:
+    done = ser.done_mask()
+    th = spec.alarms
+    panels: list[tuple[str, np.ndarray, float | None]] = []
+    if spec.reflection:
+        shift = np.where(done, ser.values("resonance_shift_hz"), np.nan)
+        panels.append(("resonance shift (kHz)", shift / 1e3,
+                       th.resonance_shift_hz / 1e3 if th.resonance_shift_hz else None))
+        panels.append(("worst in-band SWR", np.where(done, ser.values("worst_swr"), np.nan),
+                       th.worst_swr))
+    panels.append((f"max |change| |{spec.parameter}| (dB)",
+                   np.where(done, ser.values("max_db"), np.nan), th.deviation_db))
+    panels.append((f"max |change| phase {spec.parameter} (deg)",
+                   np.where(done, ser.values("max_deg"), np.nan), th.deviation_deg))
+    where = {int(s): float(t) for s, t in zip(ser.seq, t_s, strict=True)}
+    fault_t = np.array([where[f["seq"]] for f in faults if f["seq"] in where], dtype=float)
+    missed = t_s[np.array([s == "missed" for s in ser.state], dtype=bool)] \
+        if ser.seq.size else np.array([])
+    return drift_plot(folder / "drift.png", panels, t_s, _alarm_times(alarms, ser, t_s),
+                      fault_t, missed, f"{title}: drift from the reference")
+
+
+def _allan(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
+           title: str) -> Path:
+    points: list[dict[str, Any]] = []
+    tau0 = _tau0(spec, ser, t_s)
+    if spec.reflection and ser.seq.size and tau0 > 0:
+        points = [p.to_dict() for p in adev_curve(_resonance_by_index(ser), tau0)]
+    return allan_plot(folder / "allan.png", points, spec.alarms.resonance_adev_hz,
+                      f"{title}: stability of the resonance")
+
+
+def _deviation(folder: Path, deviation: tuple[np.ndarray, ...], spec: SoakSpec,
+               title: str) -> Path:
+    freq, _seq, db, deg = deviation
+    env_db = np.abs(db).max(axis=0)
+    env_deg = np.abs(deg).max(axis=0)
+    return deviation_plot(folder / "deviation.png", freq, env_db, env_deg, db[-1], deg[-1],
+                          spec.band_hz, (spec.alarms.deviation_db, spec.alarms.deviation_deg),
+                          f"{title}: change from the reference against frequency",
+                          spec.parameter)
+
+
+# -- facts, text and HTML ------------------------------------------------------------------
+def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: history.Series,
+           faults: list[dict[str, Any]], alarms: list[dict[str, Any]], t_s: np.ndarray,
+           deviation: tuple[np.ndarray, ...] | None) -> dict[str, Any]:
+    done = ser.done_mask()
+    states = Counter(ser.state)
+    verdicts = Counter(v for v, d in zip(ser.verdict, done, strict=True) if d and v)
+    sched = spec.schedule
+    every = f"every {format_duration(sched.every_s)}" if sched.every_s > 0 else "back to back"
+    extent = (f"{sched.count} sweeps" if sched.count is not None else
+              f"for {format_duration(sched.duration_s)}" if sched.duration_s is not None
+              else "until cancelled")
+    facts: dict[str, Any] = {
+        "job": job.id, "plan": plan.name, "resource": job.resource,
+        "run": f"run {run['id']} in {job.output_dir / 'journal.sqlite'}",
+        "started": run.get("started_utc"), "ended": run.get("ended_utc"),
+        "state": job.read_state().get("state"), "run_state": run.get("state"),
+        "schedule": f"{every}, {extent}" + (f" ({sched.total()} planned)" if sched.total()
+                                           and sched.count is None else ""),
+        "sweeps": (f"{int(done.sum())} done ({states.get('stored', 0)} kept as Touchstone), "
+                   f"{states.get('missed', 0)} missed, {states.get('failed', 0)} failed, "
+                   f"{states.get('pending', 0)} pending"),
+        "verdicts": ", ".join(f"{n} {v}" for v, n in sorted(verdicts.items())) or "no checks",
+        "drift": _drift_lines(spec, ser, t_s, done, deviation),
+        "alarms": [f"{a['time_utc']} sweep {a['seq']}: {a['message']}" for a in alarms],
+        "faults_by_kind": ", ".join(f"{k} {n}" for k, n in
+                                    Counter(f["kind"] for f in faults).most_common()),
+        "faults": [f"{f['time_utc']} sweep {f['seq'] if f['seq'] is not None else '-'} "
+                   f"{f['kind']}: {f['message']} -> {f['action']}" for f in faults],
+        "data_dir": str(job.data_dir),
+    }
+    return facts
+
+
+def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.ndarray,
+                 deviation: tuple[np.ndarray, ...] | None) -> list[str]:
+    lines = []
+    if not done.any():
+        return ["no sweep taken yet"]
+    for key, label, unit in (("max_db", f"max |change| of |{spec.parameter}|", "dB"),
+                             ("max_deg", f"max |change| of the phase of {spec.parameter}",
+                              "deg")):
+        v = np.where(done, ser.values(key), np.nan)
+        if np.isfinite(v).any():
+            i = int(np.nanargmax(v))
+            lines.append(f"{label}: largest {v[i]:.4g} {unit} at sweep {ser.seq[i]}, "
+                         f"last {v[np.flatnonzero(np.isfinite(v))[-1]]:.4g} {unit}")
+    if spec.reflection:
+        res = np.where(done, ser.values("resonance_hz"), np.nan)
+        shift = np.where(done, ser.values("resonance_shift_hz"), np.nan)
+        ok = np.isfinite(res) & np.isfinite(shift)
+        if ok.any():
+            ref = res[ok][0] - shift[ok][0]
+            i = int(np.nanargmax(np.abs(np.where(ok, shift, np.nan))))
+            lines.append(f"resonance: reference {format_frequency(ref)}, last shift "
+                         f"{_signed(shift[ok][-1])}, largest {_signed(shift[i])} at sweep "
+                         f"{ser.seq[i]}")
+            if ok.sum() >= 3 and np.ptp(t_s[ok]) > 0:
+                slope = np.polyfit(t_s[ok], shift[ok], 1)[0]  # least squares, Hz/s
+                lines.append(f"resonance trend (least-squares line): {_signed(slope * 3600)}"
+                             "/h")
+        swr = np.where(done, ser.values("worst_swr"), np.nan)
+        rise = np.where(done, ser.values("worst_swr_rise"), np.nan)
+        if np.isfinite(swr).any():
+            i = int(np.nanargmax(swr))
+            ref = swr[np.isfinite(swr)][0] - rise[np.isfinite(swr)][0]
+            lines.append(f"worst in-band SWR: reference {ref:.4f}, largest {swr[i]:.4f} at "
+                         f"sweep {ser.seq[i]}")
+        tau0 = _tau0(spec, ser, t_s)
+        if tau0 > 0:
+            curve = adev_curve(_resonance_by_index(ser), tau0)
+            if curve:
+                shown = "; ".join(f"tau {format_duration(p.tau_s)}: {format_frequency(p.adev)}"
+                                  for p in curve[:6])
+                lines.append(f"Allan deviation of the resonance: {shown}")
+    if deviation is not None and deviation[1].size:
+        freq, _seq, db, _deg = deviation
+        env = np.abs(db).max(axis=0)
+        i = int(np.argmax(env))
+        lines.append(f"largest change of |{spec.parameter}| at any frequency: "
+                     f"{env[i]:.4g} dB at {format_frequency(freq[i])}")
+    return lines
+
+
+def _signed(hz: float) -> str:
+    return f"{'+' if hz >= 0 else '-'}{format_frequency(abs(hz))}"
+
+
+def _text(f: dict[str, Any]) -> str:
+    lines = [
+        f"Soak report {f['job']}: plan {f['plan']} on {f['resource']}",
+        f"state: {f['state']} (journal {f['run']}: {f['run_state']})",
+        f"started {f['started']}, ended {f['ended'] or 'not yet'}",
+        f"schedule: {f['schedule']}",
+        f"sweeps: {f['sweeps']}",
+        f"verdicts: {f['verdicts']}",
+        "drift from the reference:",
+        *(f"  {line}" for line in f["drift"]),
+        f"alarms: {len(f['alarms'])}",
+        *(f"  {line}" for line in f["alarms"][-20:]),
+        f"faults: {len(f['faults'])}" + (f" ({f['faults_by_kind']})" if f["faults"] else ""),
+        *(f"  {line}" for line in f["faults"][-20:]),
+        f"files: {f['data_dir']}",
+    ]
+    return "\n".join(lines)
+
+
+def _html(f: dict[str, Any], pictures: dict[str, Path]) -> str:
+    e = html.escape
+    rows = "".join(f"<tr><th>{e(k)}</th><td>{e(str(v))}</td></tr>" for k, v in (
+        ("plan", f["plan"]), ("instrument", f["resource"]), ("state", f["state"]),
+        ("started", f["started"]), ("ended", f["ended"] or "not yet"),
+        ("schedule", f["schedule"]), ("sweeps", f["sweeps"]), ("verdicts", f["verdicts"]),
+        ("journal", f["run"]), ("files", f["data_dir"])))
+
+    def items(lines: list[str]) -> str:
+        return "<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>" if lines \
+            else "<p>none</p>"
+
+    images = "".join(f'<h2>{e(name)}</h2><img src="{e(path.name)}" alt="{e(name)}">'
+                     for name, path in pictures.items())
+    return (
+        "<!DOCTYPE html>\n<html><head><meta charset=\"utf-8\">"
+        f"<title>soak {e(f['job'])}</title><style>body{{font-family:sans-serif;"
+        "max-width:1100px;margin:1em auto}th{text-align:left;padding-right:1em}"
+        "img{max-width:100%}</style></head><body>"
+        f"<h1>Soak report {e(f['job'])}</h1><table>{rows}</table>"
+        f"<h2>Drift from the reference</h2>{items(f['drift'])}"
+        f"<h2>Alarms ({len(f['alarms'])})</h2>{items(f['alarms'])}"
+        f"<h2>Faults ({len(f['faults'])})</h2>{items(f['faults'][-200:])}"
+        f"{images}</body></html>\n"
+    )

@@ -1,0 +1,112 @@
+"""Helpers shared by the soak tests: plans against a simulator, and the invariants that
+must hold after any soak, however it was interrupted."""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+from collections import Counter
+from pathlib import Path
+from typing import Any
+
+import yaml
+
+from acquire.soak.devfile import read_deviation
+from acquire.soak.spool import Job, Spool
+from acquire.storage import TEMP_PREFIX
+from acquire.touchstone import read_touchstone
+
+FINAL_STATES = {"stored", "measured", "missed", "failed"}
+
+
+def soak_plan(path: Path, resource: str, out: Path, *, every: str = "0 s", count: int = 100,
+              points: int = 101, timeout: str = "0.4 s", soak: dict | None = None,
+              checks: bool = True, name: str = "soak-test") -> Path:
+    data: dict[str, Any] = {
+        "plan": name,
+        "instrument": {"resource": resource, "timeout": timeout, "connect_timeout": "0.5 s"},
+        "stimulus": {"start": "2.30 GHz", "stop": "2.60 GHz", "points": points,
+                     "power": "-10 dBm", "if_bandwidth": "100 kHz"},
+        "output": {"dir": str(out)},
+        "schedule": {"every": every, "count": count},
+        "soak": {"band": ["2.40 GHz", "2.50 GHz"], "keep": {"every": 10},
+                 "faults": {"backoff_first": "0.05 s", "backoff_max": "0.4 s"},
+                 **(soak or {})},
+    }
+    if checks:
+        data["checks"] = [{"mask": "patch-2g45"}]
+    path.write_text(yaml.safe_dump(data, sort_keys=False))
+    return path
+
+
+def submit(spool: Spool, plan: Path) -> Job:
+    from acquire.plan import load_plan
+
+    loaded = load_plan(plan)
+    return spool.create_job(loaded.name, plan.resolve(), plan.read_text(),
+                            loaded.output.dir.resolve(), loaded.instrument.resource)
+
+
+def journal_rows(job: Job) -> tuple[list[sqlite3.Row], list[sqlite3.Row], list[sqlite3.Row]]:
+    db = sqlite3.connect(job.output_dir / "journal.sqlite")
+    db.row_factory = sqlite3.Row
+    try:
+        runs = db.execute("SELECT * FROM runs WHERE job_id = ?", (job.id,)).fetchall()
+        assert len(runs) == 1, f"one run per job, found {len(runs)}"
+        rows = db.execute("SELECT * FROM measurements WHERE run_id = ? ORDER BY seq",
+                          (runs[0]["id"],)).fetchall()
+        faults = db.execute("SELECT * FROM faults WHERE run_id = ? ORDER BY id",
+                            (runs[0]["id"],)).fetchall()
+    finally:
+        db.close()
+    return runs, rows, faults
+
+
+def check_invariants(job: Job, planned: int) -> Counter:
+    """Every index 0..planned-1 once, in a final state; files and journal agree; nothing
+    half-written; every taken sweep has its drift record. Returns the states counted."""
+    _, rows, _ = journal_rows(job)
+    assert [r["seq"] for r in rows] == list(range(planned)), "indices: gap or extra"
+    states = Counter(r["state"] for r in rows)
+    assert set(states) <= FINAL_STATES, states
+    referenced: set[Path] = set()
+    for r in rows:
+        if r["state"] == "stored":
+            ts = Path(r["touchstone"])
+            assert ts.is_file(), ts
+            sweep = read_touchstone(ts).to_sweep()  # complete and parseable
+            assert sweep.points > 0
+            referenced.add(ts)
+            if r["raw_touchstone"]:
+                referenced.add(Path(r["raw_touchstone"]))
+            if r["summary"]:
+                summary = Path(r["summary"])
+                json.loads(summary.read_text())
+                referenced.add(summary)
+            metrics = json.loads(r["metrics_json"])
+            assert "soak" in metrics, r["seq"]
+        elif r["state"] == "measured":
+            assert r["touchstone"] is None
+            assert "soak" in json.loads(r["metrics_json"])
+        elif r["state"] == "missed":
+            assert r["note"], r["seq"]
+    folder = job.data_dir
+    leftovers = [p for p in folder.rglob("*") if p.name.startswith(TEMP_PREFIX)]
+    assert not leftovers, leftovers
+    captures = {p for p in folder.iterdir()
+                if p.suffix in (".json", ".s1p", ".s2p", ".ts")}
+    assert captures == referenced, (captures ^ referenced)
+    done = {r["seq"] for r in rows if r["state"] in ("stored", "measured")}
+    deviation = read_deviation(folder, done)
+    got = set() if deviation is None else set(deviation[1].tolist())
+    assert got == done, f"drift records missing for {sorted(done - got)[:10]}"
+    return states
+
+
+def status_counts(job: Job) -> dict[str, int]:
+    from acquire.soak.spool import Spool
+    from acquire.soak.status import spool_view
+
+    spool = Spool(job.dir.parent.parent)
+    view = spool_view(spool, [job])
+    return view["jobs"][0]["sweeps"]
