@@ -17,6 +17,7 @@ from pathlib import Path
 import yaml
 
 from acquire.library import library_dir
+from acquire.soak.demo import demo_step as soak_demo_step
 from acquire.station.demo import demo_step as station_demo_step
 from drivers.errors import SweepdError
 
@@ -118,6 +119,7 @@ STEPS: list[tuple[str, Callable[[DemoContext], None]]] = [
     ("Plot one capture: match, impedance, Smith chart", step_plot),
     ("A short production shift at the station: golden checks, 20 units, summary",
      station_demo_step),
+    ("A short overnight soak through the daemon: submit, serve, status, report", soak_demo_step),
 ]
 
 
