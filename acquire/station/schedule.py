@@ -54,9 +54,11 @@ def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
         anchor = cal_text  # released by a calibration made after the failed check
     if anchor is None:
         return LineState(due=True, due_reason=f"no golden check on record for plan {plan}")
+    # ">=": journal times have millisecond resolution, and a unit journalled in the same
+    # millisecond as the check (or the releasing cal) came after it.
     units = int(journal.query_one(
         "SELECT COUNT(*) FROM measurements m JOIN runs r ON r.id = m.run_id WHERE r.plan = ? "
-        "AND m.golden = 0 AND m.state = 'stored' AND m.time_utc > ?", (plan, anchor),
+        "AND m.golden = 0 AND m.state = 'stored' AND m.time_utc >= ?", (plan, anchor),
     )[0])
     if spec.every_units and units >= spec.every_units:
         return LineState(due=True, due_reason=f"{units} units since the last good golden "
