@@ -22,16 +22,15 @@ def test_schema_created_in_wal_mode(tmp_path: Path) -> None:
 
 
 def test_newer_schema_is_refused(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j:
-        with j.transaction() as db:
-            db.execute("UPDATE meta SET value = '99' WHERE key = 'schema_version'")
+    with Journal.in_folder(tmp_path) as j, j.transaction() as db:
+        db.execute("UPDATE meta SET value = '99' WHERE key = 'schema_version'")
     with pytest.raises(JournalError, match="schema version 99 is newer"):
         Journal.in_folder(tmp_path)
 
 
 def test_not_a_database(tmp_path: Path) -> None:
     (tmp_path / "journal.sqlite").write_bytes(b"this is not sqlite" * 100)
-    with pytest.raises(JournalError, match="journal .*journal.sqlite"):
+    with pytest.raises(JournalError, match=r"journal .*journal\.sqlite"):
         Journal.in_folder(tmp_path)
 
 
