@@ -25,6 +25,7 @@ import socket
 import threading
 import time
 import tty
+from abc import ABC, abstractmethod
 from typing import Any
 
 from simulators.faults import REPLY_KINDS
@@ -37,7 +38,7 @@ SERIAL_WRITE_PATIENCE_S = 2.0
 BUSY_TEXT = b'-300,"Device busy;another client is connected"'
 
 
-class Session:
+class Session(ABC):
     """One client conversation over a readable/writable file descriptor."""
 
     name = "session"
@@ -55,16 +56,19 @@ class Session:
         self._discard_until_lf = False
 
     # -- to implement per transport ------------------------------------------------
+    @abstractmethod
     def fileno(self) -> int:
-        raise NotImplementedError
+        """The descriptor to wait on."""
 
+    @abstractmethod
     def _read(self) -> bytes | None:
         """Some bytes, b"" if none are ready, None at end of stream."""
-        raise NotImplementedError
 
+    @abstractmethod
     def _write(self, data: memoryview) -> int:
-        raise NotImplementedError
+        """Write what the link takes now; return the count."""
 
+    @abstractmethod
     def drop_link(self) -> None:
         """Close the link (TCP) or forget the reply (serial)."""
 
@@ -328,6 +332,10 @@ class SerialSession(Session):
             return os.write(self.master, data)
         except BlockingIOError:
             return 0
+
+    def drop_link(self) -> None:
+        """A serial line cannot be closed by the far end: the reply is simply lost."""
+        self.wake()
 
     def _patience(self) -> float:
         return SERIAL_WRITE_PATIENCE_S
