@@ -264,13 +264,17 @@ class Transport:
         try:
             link.send(command.encode("ascii") + self.write_termination, Deadline(self.timeout_s))
         except LinkTimeout:
-            self._dirty = "timeout"
-            raise InstrumentTimeout(
-                f"instrument {self.resource}: could not send '{command}' within "
-                f"{self.timeout_s:.3g} s (the instrument does not read)"
-            ) from None
+            raise self._send_timeout(command) from None
         except LinkClosed as exc:
             self._lost(command, exc)
+
+    def _send_timeout(self, command: str) -> InstrumentTimeout:
+        """The error for a message the instrument would not take in time."""
+        self._dirty = "timeout"
+        return InstrumentTimeout(
+            f"instrument {self.resource}: could not send '{command}' within "
+            f"{self.timeout_s:.3g} s (the instrument does not read)"
+        )
 
     def read_line(self, command: str, timeout_s: float | None = None) -> str:
         """The next response message as text, terminator removed."""
@@ -322,11 +326,7 @@ class Transport:
             if link.exchange_block(message, header, into, self.read_termination, deadline):
                 return into
         except LinkTimeout:
-            self._dirty = "timeout"
-            raise InstrumentTimeout(
-                f"instrument {self.resource}: could not send '{command}' within "
-                f"{self.timeout_s:.3g} s (the instrument does not read)"
-            ) from None
+            raise self._send_timeout(command) from None
         except LinkClosed as exc:
             self._lost(command, exc)
         return self._read_block(command, expected, into, deadline, what)
