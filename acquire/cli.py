@@ -70,6 +70,10 @@ def main(argv: list[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return EXIT_ERROR
+    except OSError as exc:  # disk full, permissions: one line, no traceback
+        where = f" ({exc.filename})" if exc.filename else ""
+        print(f"sweepd: error: {exc.strerror or exc}{where}", file=sys.stderr)
+        return EXIT_ERROR
 
 
 def _module(name: str):

@@ -156,3 +156,16 @@ class _Sink:
 
     def flush(self) -> None:
         pass
+
+
+def test_os_errors_are_one_line(tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
+    """A folder that cannot be written (here: a file where the output folder should be)."""
+    blocker = tmp_path / "out"
+    blocker.write_text("not a folder")
+    with SimServer() as sim:
+        sim.bench.set_device("cable-1m")
+        code = main(["run", str(PLANS / "cable-line.yaml"), "--resource", sim.tcp_resource,
+                     "--output", str(blocker / "sub")])
+    err = capsys.readouterr().err
+    assert code == 2 and err.startswith("sweepd: error: ") and err.count("\n") == 1
+    assert "Traceback" not in err
