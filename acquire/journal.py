@@ -346,9 +346,12 @@ class Journal:
                   run_id: int | None = None) -> list[tuple[int, str]]:
         """Settle pending rows left by a crash: adopt complete files, mark the rest missed.
 
-        ``run_id`` limits this to one run (a daemon resuming one job must not touch the
-        rows another process has in flight). Returns ``(measurement id, new state)`` for
-        each row changed.
+        Captures are written summary first, then the raw copy, then the Touchstone file
+        itself (see ``acquire.measure.store``), so a Touchstone file that exists is
+        complete and so is everything written before it: an adopted row gets its summary,
+        raw copy, verdict and metrics from those files. ``run_id`` limits this to one run
+        (a daemon resuming one job must not touch the rows another process has in
+        flight). Returns ``(measurement id, new state)`` for each row changed.
         """
         changed = []
         sql = "SELECT id, touchstone FROM measurements WHERE state='pending'"
@@ -357,15 +360,45 @@ class Journal:
             sql, params = sql + " AND run_id = ?", (run_id,)
         for row in self.query(sql, params):
             path = Path(row["touchstone"]) if row["touchstone"] else None
-            exists = path is not None and path.is_file()
-            state = "stored" if (exists and adopt) else "missed"
-            note = ("adopted after a restart: the file was complete, its summary may be "
-                    "missing" if state == "stored" else "interrupted before its file was written")
+            if adopt and path is not None and path.is_file():
+                self._adopt(int(row["id"]), path)
+                changed.append((int(row["id"]), "stored"))
+                continue
             with self.transaction() as db:
-                db.execute("UPDATE measurements SET state=?, note=? WHERE id=?",
-                           (state, note, row["id"]))
-            changed.append((int(row["id"]), state))
+                db.execute("UPDATE measurements SET state='missed', note=? WHERE id=?",
+                           ("interrupted before its file was written", row["id"]))
+            changed.append((int(row["id"]), "missed"))
         return changed
+
+    def _adopt(self, measurement_id: int, touchstone: Path) -> None:
+        summary = touchstone.with_suffix(".json")
+        raw = touchstone.with_name(f"{touchstone.stem}.raw{touchstone.suffix}")
+        fields: dict[str, Any] = {
+            "summary": str(summary) if summary.is_file() else None,
+            "raw_touchstone": str(raw) if raw.is_file() else None,
+        }
+        try:
+            data = json.loads(summary.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            data = None
+        if isinstance(data, dict):
+            capture = data.pop("capture", None) or {}
+            judged = bool(data.get("checks"))
+            cal = capture.get("calibration") or {}
+            fields.update(
+                verdict=data.get("verdict") if judged else None,
+                exit_code=data.get("exit_code") if judged else None,
+                worst_margin=worst_margin(data),
+                metrics_json=json.dumps(data.get("metrics")),
+                verdict_json=json.dumps(data),
+                cal_id=cal.get("id"), cal_age_s=cal.get("age_s"),
+                instrument=capture.get("instrument"),
+            )
+        fields["note"] = "adopted after a restart: its files were complete"
+        sets = ", ".join(f"{k} = ?" for k in fields)
+        with self.transaction() as db:
+            db.execute(f"UPDATE measurements SET state='stored', {sets} WHERE id=?",
+                       (*fields.values(), measurement_id))
 
     # -- faults, golden checks, alarms ----------------------------------------------
     def record_fault(self, run_id: int | None, kind: str, message: str, *,
@@ -411,6 +444,17 @@ class _Tx:
         for statement in script.split(";"):
             if statement.strip():
                 self._db.execute(statement)
+
+
+def worst_margin(verdict: Mapping[str, Any]) -> float | None:
+    """The smallest margin over all mask segments of a verdict dict (negative: failing)."""
+    margins = [
+        float(segment["worst"]["margin"])
+        for check in verdict.get("checks") or ()
+        for segment in check.get("segments") or ()
+        if (segment.get("worst") or {}).get("margin") is not None
+    ]
+    return min(margins) if margins else None
 
 
 def _text(value: Any) -> str | None:

@@ -16,9 +16,10 @@ from typing import Any
 
 from acquire.checks import Verdict, evaluate_checks
 from acquire.journal import Journal, Planned
+from acquire.journal import worst_margin as journal_worst_margin
 from acquire.plan import Plan
 from acquire.runner import Session, capture_path, save_capture, utc_now
-from acquire.storage import free_path, write_new
+from acquire.storage import free_path, sweep_stale_temps, write_new
 from acquire.sweep import Sweep
 from drivers.errors import SweepdError
 
@@ -102,21 +103,33 @@ class Stored:
 
 
 def store(cap: Capture, plan: Plan, path: Path) -> Stored:
-    """Write the capture at ``path`` (which must be free): Touchstone with the verdict in
-    its comments, a raw copy if the plan keeps raw data, and the JSON summary beside it.
+    """Write the capture at ``path`` (which must be free, see ``plan_path``).
+
+    Order matters for crash safety: the JSON summary first, then the raw copy (if the
+    plan keeps raw data), then the Touchstone file with the verdict in its comments, each
+    atomically. A Touchstone file that exists is therefore complete, and so is everything
+    written before it (``Journal.reconcile`` relies on this).
     """
+    raw_path = raw_path_for(path) if plan.output.keep_raw and cap.corrected else None
+    summary = summary_dict(cap, path, raw_path)
+    summary_path = write_new(path.with_suffix(".json"),
+                             json.dumps(summary, indent=2, allow_nan=False) + "\n",
+                             unique=False)
+    if raw_path is not None:
+        save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
     comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
     final = save_capture(cap.sweep, plan, path, comments, unique=False)
-    raw_path = None
-    if plan.output.keep_raw and cap.corrected:
-        raw_path = save_capture(
-            cap.raw.with_meta(raw_of=final.name), plan,
-            final.with_name(f"{final.stem}.raw{final.suffix}"),
-        )
-    summary = summary_dict(cap, final, raw_path)
-    summary_path = write_new(final.with_suffix(".json"),
-                             json.dumps(summary, indent=2, allow_nan=False) + "\n")
     return Stored(final, summary_path, raw_path)
+
+
+def raw_path_for(path: Path) -> Path:
+    """Where the raw (uncorrected) copy of a capture goes: ``<stem>.raw.sNp``."""
+    return path.with_name(f"{path.stem}.raw{path.suffix}")
+
+
+def companions(path: Path) -> tuple[Path, ...]:
+    """Every file a capture at ``path`` may write."""
+    return (path, path.with_suffix(".json"), raw_path_for(path))
 
 
 def plan_path(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
@@ -125,7 +138,7 @@ def plan_path(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
     verdict = cap.verdict.verdict if plan.checks else ""
     path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
                         station=station, when=utc_now())
-    return free_path(path)
+    return free_path(path, companions)
 
 
 def journal_stored(journal: Journal, planned: Planned, cap: Capture, stored: Stored) -> None:
@@ -147,13 +160,7 @@ def journal_stored(journal: Journal, planned: Planned, cap: Capture, stored: Sto
 
 def worst_margin(verdict: Verdict) -> float | None:
     """The smallest margin over all mask segments (negative when failing), if any."""
-    margins = []
-    for result in verdict.to_dict()["checks"]:
-        for segment in result.get("segments") or ():
-            worst = segment.get("worst") or {}
-            if worst.get("margin") is not None:
-                margins.append(float(worst["margin"]))
-    return min(margins) if margins else None
+    return journal_worst_margin(verdict.to_dict())
 
 
 def summary_dict(cap: Capture, touchstone: Path | None = None,
@@ -217,6 +224,7 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
     The measurement is journalled as pending before its files are written and marked
     stored after; faults are journalled with the run marked failed.
     """
+    sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
     with Journal.in_folder(out_dir) as journal:
         run_id = journal.start_run(kind, plan.name, plan_path=str(plan.source),
                                    resource=resource or plan.instrument.resource)

@@ -3,7 +3,8 @@
 A capture is written to a temporary file in the destination folder, flushed and fsynced,
 then hard-linked to its final name. ``os.link`` fails if the name exists, so two writers
 can never clobber each other and a crash leaves either no file or a complete one (plus,
-at worst, a hidden ``.tmp-`` file that ``sweep_stale_temps`` removes).
+at worst, a hidden ``.tmp-<pid>-`` file that ``sweep_stale_temps`` removes once that
+process is gone).
 """
 
 from __future__ import annotations
@@ -12,6 +13,8 @@ import contextlib
 import os
 import re
 import tempfile
+import time
+from collections.abc import Callable, Iterable
 from pathlib import Path
 
 TEMP_PREFIX = ".tmp-"
@@ -43,7 +46,7 @@ def write_new(path: Path | str, data: bytes | str, *, unique: bool = True) -> Pa
     folder = path.parent
     folder.mkdir(parents=True, exist_ok=True)
     payload = data.encode("ascii") if isinstance(data, str) else data
-    fd, tmp_name = tempfile.mkstemp(prefix=TEMP_PREFIX, dir=folder)
+    fd, tmp_name = tempfile.mkstemp(prefix=_temp_prefix(), dir=folder)
     tmp = Path(tmp_name)
     try:
         _usual_mode(fd)
@@ -64,7 +67,7 @@ def replace_atomic(path: Path | str, data: bytes | str) -> Path:
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     payload = data.encode("utf-8") if isinstance(data, str) else data
-    fd, tmp_name = tempfile.mkstemp(prefix=TEMP_PREFIX, dir=path.parent)
+    fd, tmp_name = tempfile.mkstemp(prefix=_temp_prefix(), dir=path.parent)
     try:
         _usual_mode(fd)
         with os.fdopen(fd, "wb") as fh:
@@ -79,11 +82,19 @@ def replace_atomic(path: Path | str, data: bytes | str) -> Path:
     return path
 
 
-def free_path(path: Path) -> Path:
-    """``path`` if no file has that name, else the first free ``stem-N.suffix``."""
+def free_path(path: Path, companions: Callable[[Path], Iterable[Path]] | None = None) -> Path:
+    """``path`` if no file has that name, else the first free ``stem-N.suffix``.
+
+    ``companions(candidate)`` may name further files that go with a candidate (its
+    summary, a raw copy): all of them must be free.
+    """
+    def taken(candidate: Path) -> bool:
+        names = companions(candidate) if companions else (candidate,)
+        return any(p.exists() for p in names)
+
     candidate = path
     n = 2
-    while candidate.exists():
+    while taken(candidate):
         candidate = path.with_name(f"{path.stem}-{n}{path.suffix}")
         n += 1
     return candidate
@@ -95,16 +106,50 @@ def safe_component(text: str, *, max_len: int = 80) -> str:
     return cleaned[:max_len]
 
 
-def sweep_stale_temps(folder: Path | str) -> list[Path]:
-    """Delete temporary files left by an interrupted write; return what was removed."""
+def sweep_stale_temps(folder: Path | str, *, min_age_s: float = 3600.0) -> list[Path]:
+    """Delete temporary files whose writer is gone; return what was removed.
+
+    Temp names carry the writer's process id (``.tmp-<pid>-...``), so the leftovers of a
+    killed process are recognised at once while another live process's write in the same
+    folder is left alone. A temp name without a readable pid is removed only when older
+    than ``min_age_s``.
+    """
     removed = []
     folder = Path(folder)
-    if folder.is_dir():
-        for tmp in folder.glob(TEMP_PREFIX + "*"):
-            with contextlib.suppress(FileNotFoundError):
+    if not folder.is_dir():
+        return removed
+    for tmp in folder.glob(TEMP_PREFIX + "*"):
+        pid = _writer_pid(tmp.name)
+        try:
+            stale = (not _alive(pid)) if pid is not None else (
+                time.time() - tmp.stat().st_mtime > min_age_s)
+            if stale:
                 tmp.unlink()
                 removed.append(tmp)
+        except FileNotFoundError:
+            continue
     return removed
+
+
+def _temp_prefix() -> str:
+    return f"{TEMP_PREFIX}{os.getpid()}-"
+
+
+def _writer_pid(name: str) -> int | None:
+    head = name[len(TEMP_PREFIX):].split("-", 1)[0]
+    return int(head) if head.isdigit() and head.isascii() else None
+
+
+def _alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True  # another user's live process
+    return True
 
 
 def _usual_mode(fd: int) -> None:

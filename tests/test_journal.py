@@ -108,3 +108,31 @@ def test_two_connections_share_the_file(tmp_path: Path) -> None:
         assert reader.execute("SELECT COUNT(*) FROM faults").fetchone()[0] == 50
         reader.close()
     assert not errors
+
+
+def test_adopted_rows_take_summary_verdict_and_raw_copy_from_their_files(tmp_path: Path) -> None:
+    """Files are written summary, raw copy, Touchstone (last): an adopted capture's
+    companions are complete and fill the row."""
+    import json
+
+    with Journal.in_folder(tmp_path) as j:
+        run = j.start_run("station", "patch-line-a")
+        p = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1")
+        summary = {
+            "verdict": "fail", "exit_code": 1, "metrics": {"S11": {"swr_min": 1.3}},
+            "checks": [{"kind": "mask", "segments": [{"worst": {"margin": -0.25}},
+                                                     {"worst": {"margin": 0.5}}]}],
+            "capture": {"instrument": "maker,model,1,2",
+                        "calibration": {"id": "cal-1", "age_s": 60.0}},
+        }
+        (tmp_path / "u.json").write_text(json.dumps(summary))
+        (tmp_path / "u.raw.s1p").write_text("raw")
+        (tmp_path / "u.s1p").write_text("corrected")
+        assert j.reconcile() == [(p.id, "stored")]
+        row = j.query_one("SELECT * FROM measurements")
+        assert row["summary"] == str(tmp_path / "u.json")
+        assert row["raw_touchstone"] == str(tmp_path / "u.raw.s1p")
+        assert (row["verdict"], row["exit_code"], row["worst_margin"]) == ("fail", 1, -0.25)
+        assert (row["cal_id"], row["cal_age_s"], row["instrument"]) == ("cal-1", 60.0,
+                                                                        "maker,model,1,2")
+        assert json.loads(row["metrics_json"]) == {"S11": {"swr_min": 1.3}}

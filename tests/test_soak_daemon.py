@@ -23,12 +23,28 @@ from simulators.server import SimServer
 HERE = Path(__file__).resolve().parents[1]
 
 
+_SPAWNED: list[subprocess.Popen] = []
+
+
+@pytest.fixture(autouse=True)
+def _no_daemon_outlives_its_test():
+    """A failing test must not leave a daemon running into the next one."""
+    yield
+    while _SPAWNED:
+        proc = _SPAWNED.pop()
+        if proc.poll() is None:
+            proc.kill()
+        proc.wait(timeout=10)
+
+
 def serve(spool: Path, log: Path, *extra: str) -> subprocess.Popen:
     env = dict(os.environ, PYTHONUNBUFFERED="1")
     with open(log, "ab") as err:
-        return subprocess.Popen([sys.executable, "-m", "acquire.cli", "serve", "--spool",
+        proc = subprocess.Popen([sys.executable, "-m", "acquire.cli", "serve", "--spool",
                                  str(spool), *extra], stdout=subprocess.DEVNULL, stderr=err,
                                 cwd=HERE, env=env)
+    _SPAWNED.append(proc)
+    return proc
 
 
 def cli(capsys: pytest.CaptureFixture, *argv: str) -> tuple[int, str, str]:
@@ -166,8 +182,10 @@ def test_jobs_on_other_instruments_run_side_by_side_same_instrument_waits(
     spool = tmp_path / "spool"
     with SimServer(time_scale=0.0) as one, SimServer(time_scale=0.0) as two:
         plans = [
+            # long enough that bench-a still runs when the status is read, even on a busy
+            # machine: bench-b (same instrument) must be seen waiting for it
             soak_plan(tmp_path / "a.yaml", one.tcp_resource, tmp_path / "out", every="0.05 s",
-                      count=25, name="bench-a"),
+                      count=80, name="bench-a"),
             soak_plan(tmp_path / "b.yaml", one.tcp_resource.lower(), tmp_path / "out",
                       every="0.02 s", count=10, name="bench-b"),
             soak_plan(tmp_path / "c.yaml", two.tcp_resource, tmp_path / "out",
@@ -185,7 +203,7 @@ def test_jobs_on_other_instruments_run_side_by_side_same_instrument_waits(
     runs = {}
     for name in ("bench-a", "bench-b", "bench-c"):
         job = Spool(spool).find(name)
-        check_invariants(job, 10 if name == "bench-b" else 25)
+        check_invariants(job, {"bench-a": 80, "bench-b": 10, "bench-c": 25}[name])
         runs[name] = journal_rows(job)[0][0]
     assert runs["bench-c"]["started_utc"] < runs["bench-a"]["ended_utc"]  # side by side
     assert runs["bench-b"]["started_utc"] >= runs["bench-a"]["ended_utc"]  # waited its turn

@@ -19,6 +19,7 @@ from test_station_support import BAD, GOOD, captures, install_cal, rows, write_p
 
 from acquire.journal import Journal
 from acquire.station.driver import StationProcess
+from acquire.storage import sweep_stale_temps
 from simulators.server import SimServer
 
 
@@ -366,4 +367,6 @@ def test_sigkill_at_random_moments_never_tears_a_record(sim, tmp_path) -> None:
             st.wait()
         with Journal.in_folder(out) as journal:
             journal.reconcile()
+        # what the next start does: temp files of the killed writer go (never a live one's)
+        sweep_stale_temps(out)
         agree(out)

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import os
+import subprocess
+import sys
 import threading
 from pathlib import Path
 
@@ -51,9 +53,18 @@ def test_replace_atomic_and_stale_temps(tmp_path: Path) -> None:
     replace_atomic(state, "{}")
     replace_atomic(state, '{"a": 1}')
     assert state.read_text() == '{"a": 1}'
-    (tmp_path / f"{TEMP_PREFIX}abc").write_text("half")
+    dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
+                          capture_output=True, text=True, check=True).stdout.strip()
+    (tmp_path / f"{TEMP_PREFIX}{dead}-abc").write_text("half")      # writer was killed
+    (tmp_path / f"{TEMP_PREFIX}{os.getpid()}-def").write_text("live")  # a write in flight
+    old = tmp_path / f"{TEMP_PREFIX}legacy"
+    old.write_text("?")
+    os.utime(old, (0, 0))
+    (tmp_path / f"{TEMP_PREFIX}fresh").write_text("?")
     removed = sweep_stale_temps(tmp_path)
-    assert [p.name for p in removed] == [f"{TEMP_PREFIX}abc"]
+    assert sorted(p.name for p in removed) == sorted([f"{TEMP_PREFIX}{dead}-abc",
+                                                      f"{TEMP_PREFIX}legacy"])
+    assert (tmp_path / f"{TEMP_PREFIX}{os.getpid()}-def").exists()
 
 
 @pytest.mark.parametrize(

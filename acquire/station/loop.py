@@ -17,7 +17,6 @@ unit is reported as not measured, and the station reconnects.
 from __future__ import annotations
 
 import contextlib
-import time
 from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
@@ -34,7 +33,7 @@ from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
 from acquire.station.terminal import Terminal
 from acquire.station.unit import Line, UnitResult, measure_unit
-from acquire.storage import TEMP_PREFIX
+from acquire.storage import sweep_stale_temps
 from acquire.units import format_duration
 from drivers.errors import InstrumentError, SweepdError
 
@@ -49,7 +48,6 @@ HELP = (
     "  q  quit (end of input and Ctrl-C also end the shift; nothing saved is lost)",
 )
 QUIT = ("q", "quit", "exit")
-STALE_TEMP_S = 600.0
 
 
 class Quit(Exception):
@@ -436,11 +434,7 @@ class Station:
             self.term.say(f"journal: {len(stale)} earlier shift(s) ended without closing; "
                           f"{len(changed)} pending measurement(s) settled ({adopted} adopted, "
                           f"{len(changed) - adopted} missed)")
-        cutoff = time.time() - STALE_TEMP_S
-        for tmp in self.out_dir.glob(TEMP_PREFIX + "*"):
-            with contextlib.suppress(OSError):
-                if tmp.stat().st_mtime < cutoff:
-                    tmp.unlink()
+        sweep_stale_temps(self.out_dir)  # temp files of writers that died mid-write
 
     def _goodbye(self, journal: Journal, run_id: int) -> None:
         self.term.say(f"shift ended: {run_yield(journal, run_id).line()}",
