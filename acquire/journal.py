@@ -25,10 +25,12 @@ Schema (version ``SCHEMA_VERSION``; ``MIGRATIONS`` upgrades older files in place
 
 from __future__ import annotations
 
+import contextlib
 import json
 import sqlite3
 import threading
-from collections.abc import Iterator, Mapping
+import time
+from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timezone
@@ -150,12 +152,18 @@ class Journal:
                 self.path, timeout=timeout_s, isolation_level=None, check_same_thread=False
             )
             self._db.row_factory = sqlite3.Row
-            self._db.execute("PRAGMA journal_mode=WAL")
+            _retry_busy(self._enter_wal, timeout_s)
             self._db.execute("PRAGMA synchronous=FULL")
             self._db.execute("PRAGMA foreign_keys=ON")
-            self._migrate()
+            _retry_busy(self._migrate, timeout_s)
         except sqlite3.DatabaseError as exc:
             raise JournalError(f"journal {self.path}: {exc}") from None
+
+    def _enter_wal(self) -> None:
+        # Changing the journal mode takes a lock without SQLite's busy handler, so only
+        # ask for it when the file is not in WAL mode already (a new journal).
+        if self._db.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
+            self._db.execute("PRAGMA journal_mode=WAL")
 
     @classmethod
     def in_folder(cls, folder: Path | str) -> Journal:
@@ -173,6 +181,8 @@ class Journal:
 
     # -- schema ------------------------------------------------------------------------
     def _migrate(self) -> None:
+        if self._stored_version() == SCHEMA_VERSION:
+            return  # the usual case: no write lock needed to open the journal
         with self.transaction() as db:
             has_meta = db.execute(
                 "SELECT 1 FROM sqlite_master WHERE type='table' AND name='meta'"
@@ -192,6 +202,15 @@ class Journal:
                     "INSERT OR REPLACE INTO meta(key, value) VALUES ('schema_version', ?)",
                     (str(target),),
                 )
+
+    def _stored_version(self) -> int:
+        has_meta = self._db.execute(
+            "SELECT 1 FROM sqlite_master WHERE type='table' AND name='meta'"
+        ).fetchone()
+        if not has_meta:
+            return 0
+        row = self._db.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+        return int(row[0]) if row else 0
 
     @property
     def schema_version(self) -> int:
@@ -349,7 +368,9 @@ class Journal:
         Captures are written summary first, then the raw copy, then the Touchstone file
         itself (see ``acquire.measure.store``), so a Touchstone file that exists is
         complete and so is everything written before it: an adopted row gets its summary,
-        raw copy, verdict and metrics from those files. ``run_id`` limits this to one run
+        raw copy, verdict and metrics from those files. A row whose Touchstone file never
+        landed is marked missed, and the files written ahead of it are removed so that the
+        folder and the journal agree. ``run_id`` limits this to one run
         (a daemon resuming one job must not touch the rows another process has in
         flight). Returns ``(measurement id, new state)`` for each row changed.
         """
@@ -364,6 +385,8 @@ class Journal:
                 self._adopt(int(row["id"]), path)
                 changed.append((int(row["id"]), "stored"))
                 continue
+            if path is not None and not path.exists():
+                _remove_orphans(path)
             with self.transaction() as db:
                 db.execute("UPDATE measurements SET state='missed', note=? WHERE id=?",
                            ("interrupted before its file was written", row["id"]))
@@ -444,6 +467,31 @@ class _Tx:
         for statement in script.split(";"):
             if statement.strip():
                 self._db.execute(statement)
+
+
+def _retry_busy(step: Callable[[], None], timeout_s: float) -> None:
+    """Run ``step``, retrying while another connection holds a lock SQLite will not wait
+    for (switching to WAL, recovering a WAL after a crash)."""
+    deadline = time.monotonic() + timeout_s
+    delay = 0.005
+    while True:
+        try:
+            return step()
+        except sqlite3.OperationalError as exc:
+            text = str(exc).lower()
+            if ("locked" not in text and "busy" not in text) or time.monotonic() > deadline:
+                raise
+        time.sleep(delay)
+        delay = min(delay * 2, 0.2)
+
+
+def _remove_orphans(touchstone: Path) -> None:
+    """Files written ahead of a Touchstone file that never landed (its summary, raw copy):
+    they describe a sweep the journal records as missed, so they go."""
+    for orphan in (touchstone.with_suffix(".json"),
+                   touchstone.with_name(f"{touchstone.stem}.raw{touchstone.suffix}")):
+        with contextlib.suppress(FileNotFoundError):
+            orphan.unlink()
 
 
 def worst_margin(verdict: Mapping[str, Any]) -> float | None:

@@ -60,8 +60,12 @@ def test_reconcile_adopts_complete_files_and_marks_the_rest_missed(tmp_path: Pat
         done = j.plan_measurement(run, 0, tmp_path / "s0.s1p")
         lost = j.plan_measurement(run, 1, tmp_path / "s1.s1p")
         (tmp_path / "s0.s1p").write_text("complete file")
+        (tmp_path / "s1.json").write_text("{}")  # written ahead; its capture never landed
+        (tmp_path / "s1.raw.s1p").write_text("raw")
         assert j.reconcile() == [(done.id, "stored"), (lost.id, "missed")]
         assert j.reconcile() == []
+        assert sorted(p.name for p in tmp_path.iterdir()
+                      if not p.name.startswith("journal")) == ["s0.s1p"]
 
 
 def test_missed_sweeps_and_faults(tmp_path: Path) -> None:

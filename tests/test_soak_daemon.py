@@ -197,8 +197,12 @@ def test_jobs_on_other_instruments_run_side_by_side_same_instrument_waits(
         proc = serve(spool, tmp_path / "serve.log", "--until-idle")
         wait_for(lambda: Spool(spool).find("bench-c").read_state()["state"] == "running",
                  what="bench-c running")
-        _, out, _ = cli(capsys, "status", "--spool", str(spool))
-        assert "waiting for bench-a-001 (same instrument)" in out
+
+        def b_waits_for_a() -> bool:
+            return "waiting for bench-a-001 (same instrument)" in cli(
+                capsys, "status", "--spool", str(spool))[1]
+
+        wait_for(b_waits_for_a, what="status showing bench-b waiting for bench-a")
         assert proc.wait(60) == 0
     runs = {}
     for name in ("bench-a", "bench-b", "bench-c"):
