@@ -24,7 +24,8 @@ from typing import Any
 from simulators.scpi_errors import ScpiError
 
 _TOKEN = re.compile(r"^([A-Z][A-Z0-9_]*?)(\d*)$")
-_HEADER = re.compile(r"^:?[A-Za-z][A-Za-z0-9_]*(?::[A-Za-z][A-Za-z0-9_]*)*\??$")
+# a program header without its query mark (the caller strips one '?'; a second is an error)
+_HEADER = re.compile(r"^:?[A-Za-z][A-Za-z0-9_]*(?::[A-Za-z][A-Za-z0-9_]*)*$")
 _COMMON = re.compile(r"^\*[A-Za-z]+\??$")
 _NODE = re.compile(r"^([A-Z]+)([a-z]*)(#(\d*))?$")
 MAX_MNEMONIC = 12

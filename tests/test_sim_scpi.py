@@ -404,6 +404,7 @@ _SCPI_ALPHABET = st.sampled_from(
 
 @settings(max_examples=300, deadline=None)
 @example(b"#\xc2\xb2")  # '#²': a Unicode digit is not a block header (found by hypothesis)
+@example(b"A??")  # two query marks: a syntax error, not a crash (found by hypothesis)
 @given(st.one_of(st.binary(max_size=60),
                  st.lists(_SCPI_ALPHABET, max_size=20).map(lambda xs: "".join(xs).encode())))
 def test_parser_survives_any_bytes(message):
