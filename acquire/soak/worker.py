@@ -153,11 +153,10 @@ class SoakWorker:
             self.run_id = int(run["id"])
         start = float(state.get("start_epoch") or now)
         self.timeline = Timeline(self.spec.schedule, start)
-        job.write_state(state="running", run_id=self.run_id, start_epoch=start,
-                        started_utc=state.get("started_utc") or utc_text(), reason=None,
-                        pid=os.getpid())
         adopted: list[int] = []
         if run is not None:
+            # journal the resumption before this process shows itself as the job's owner,
+            # so that every start that may be killed has left its record
             settled = journal.reconcile(run_id=self.run_id)
             adopted = [mid for mid, new in settled if new == "stored"]
             self._gap_reason = "not taken: sweepd serve was not running"
@@ -165,6 +164,9 @@ class SoakWorker:
                                 f"after an interruption; {len(settled)} sweep(s) in flight "
                                 f"settled ({len(adopted)} adopted from complete files)",
                                 "resumed on its schedule")
+        job.write_state(state="running", run_id=self.run_id, start_epoch=start,
+                        started_utc=state.get("started_utc") or utc_text(), reason=None,
+                        pid=os.getpid())
         counts = history.counts(journal.query, self.run_id)
         self.tally = dict(counts.by_state)
         self.next_index = counts.next_seq
