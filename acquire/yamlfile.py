@@ -16,31 +16,15 @@ from typing import Any, NoReturn
 
 from acquire.errors import ConfigError
 from acquire.units import parse_quantity
+from drivers.yamltext import load_yaml_file
 
 _MISSING = object()
 
 
 def load_yaml(path: Path | str, what: str, error: type[ConfigError] = ConfigError) -> Any:
     """Load one YAML document safely; ``what`` names the kind of file in messages."""
-    import yaml
-
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise error(f"{what} {path}: file not found") from None
-    except UnicodeDecodeError as exc:
-        raise error(f"{what} {path}: not UTF-8 text (byte {exc.start})") from None
-    except OSError as exc:
-        raise error(f"{what} {path}: cannot read ({exc.strerror})") from None
-    try:
-        return yaml.safe_load(text)
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark
-        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark else ""
-        raise error(f"{what} {path}: {where}YAML syntax error: {exc.problem}") from None
-    except yaml.YAMLError as exc:
-        raise error(f"{what} {path}: YAML error: {exc}") from None
+    return load_yaml_file(path, f"{what} {path}", error)
 
 
 class Node:

@@ -28,6 +28,7 @@ from drivers.errors import DialectError
 from drivers.layouts import LAYOUTS
 from drivers.stimulus import S_PARAMETERS
 from drivers.templates import Template, TemplateProblem, check_token
+from drivers.yamltext import load_yaml_file
 
 _MISSING = object()
 TERMINATORS = ("\n", "\r\n", "\r")
@@ -180,25 +181,7 @@ class _Node:
 
 def parse_dialect_file(path: Path) -> Dialect:
     """Load ``path`` with ``yaml.safe_load`` and validate it into a ``Dialect``."""
-    import yaml
-
-    source = f"dialect {shown_path(path)}"
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise DialectError(f"{source}: file not found") from None
-    except UnicodeDecodeError as exc:
-        raise DialectError(f"{source}: not UTF-8 text (byte {exc.start})") from None
-    except OSError as exc:
-        raise DialectError(f"{source}: cannot read ({exc.strerror})") from None
-    try:
-        raw = yaml.safe_load(text)
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark
-        where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark else ""
-        raise DialectError(f"{source}: {where}YAML syntax error: {exc.problem}") from None
-    except yaml.YAMLError as exc:
-        raise DialectError(f"{source}: YAML error: {' '.join(str(exc).split())}") from None
+    raw = load_yaml_file(path, f"dialect {shown_path(path)}", DialectError)
     return parse_dialect(raw, path)
 
 
