@@ -35,7 +35,7 @@ from drivers.errors import SweepdError
 VERDICT_FORMAT = "sweepd-verdict"
 VERDICT_VERSION = 1
 EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2}
-CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr")
+CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance")
 
 
 @dataclass(frozen=True)
@@ -484,6 +484,23 @@ def mask_check(ref: str, base_dir: Path | None = None) -> MaskCheck:
     return MaskCheck(load_mask(find_config("masks", ref, base_dir)))
 
 
+def any_mask_check(ref: str, base_dir: Path | None = None) -> Check:
+    """Like ``mask_check``, but a mask file with ``domain: distance`` gives a distance check."""
+    from acquire.library import find_config
+
+    return _mask_file_check(find_config("masks", ref, base_dir))
+
+
+def _mask_file_check(path: Path) -> Check:
+    from acquire.errors import MaskError
+    from acquire.timedomain.checks import is_distance_mask, load_distance_mask
+    from acquire.yamlfile import load_yaml
+
+    if is_distance_mask(load_yaml(path, "mask", MaskError)):
+        return load_distance_mask(path)
+    return MaskCheck(load_mask(path))
+
+
 def _parse_mask(node: Node) -> Check:
     ref = node.text()
     try:
@@ -492,7 +509,7 @@ def _parse_mask(node: Node) -> Check:
         path = find_config("masks", ref, node.base_dir)
     except ConfigError as exc:
         node.fail(str(exc))
-    return MaskCheck(load_mask(path))
+    return _mask_file_check(path)
 
 
 def _parse_bandwidth(node: Node) -> Check:
@@ -524,6 +541,12 @@ def _parse_worst_swr(node: Node) -> Check:
     return WorstSwrCheck(lo, hi, node["at_most"].number(lo=1.0), _reflection(node["parameter"]))
 
 
+def _parse_distance(node: Node) -> Check:
+    from acquire.timedomain.checks import parse_distance_check
+
+    return parse_distance_check(node)
+
+
 def _freq_pair(node: Node) -> tuple[float, float]:
     items = node.elements(min_len=2)
     if len(items) != 2:
@@ -548,4 +571,5 @@ _PARSERS = {
     "bandwidth": _parse_bandwidth,
     "resonance": _parse_resonance,
     "worst_swr": _parse_worst_swr,
+    "distance": _parse_distance,
 }

@@ -12,7 +12,7 @@ from pathlib import Path
 from acquire.errors import ConfigError
 
 CONFIG_ROOT = Path(__file__).resolve().parents[1] / "configs"
-KINDS = ("dialects", "calkits", "masks", "plans")
+KINDS = ("dialects", "calkits", "masks", "plans", "cables")
 
 
 def library_dir(kind: str) -> Path:

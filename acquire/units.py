@@ -30,11 +30,13 @@ _UNITS: dict[str, dict[str, float]] = {
     "capacitance": {"f": 1.0, "pf": 1e-12, "ff": 1e-15, "nf": 1e-9},
     "inductance": {"h": 1.0, "nh": 1e-9, "ph": 1e-12, "uh": 1e-6, "µh": 1e-6},
     "angle": {"deg": 1.0, "°": 1.0},
+    "length": {"m": 1.0, "cm": 1e-2, "mm": 1e-3, "km": 1e3, "ft": 0.3048},
 }
 
 BASE_SYMBOL = {
     "frequency": "Hz", "power": "dBm", "time": "s", "decibel": "dB",
     "impedance": "ohm", "capacitance": "F", "inductance": "H", "angle": "deg",
+    "length": "m",
 }
 
 
@@ -88,7 +90,7 @@ def _example(kind: str) -> str:
     return {
         "frequency": "'2.45 GHz'", "power": "'-10 dBm'", "time": "'90 s' or '8 h'",
         "decibel": "'10 dB'", "impedance": "'50 ohm'", "capacitance": "'50 fF'",
-        "inductance": "'5 pH'", "angle": "'45 deg'",
+        "inductance": "'5 pH'", "angle": "'45 deg'", "length": "'0.3 m' or '12 ft'",
     }[kind]
 
 

@@ -26,10 +26,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from acquire.checks import Check, evaluate_checks, mask_check
+    from acquire.checks import Check, any_mask_check, evaluate_checks
     from acquire.errors import ConfigError
 
-    checks: list[Check] = [mask_check(ref, Path.cwd()) for ref in args.mask]
+    checks: list[Check] = [any_mask_check(ref, Path.cwd()) for ref in args.mask]
     if args.plan:
         from acquire.plan import load_plan
 

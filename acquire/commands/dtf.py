@@ -1,0 +1,194 @@
+"""``sweepd dtf FILE.s1p --velocity 0.66 [--json] [-o plot.png]``: distance to fault.
+
+Transforms the reflection of a Touchstone file to the distance axis, lists the
+reflections (distance, level, return loss) and judges them against distance masks or a
+plan's ``distance`` checks. Settings come from the plan or mask first; options given on
+the command line win. Exit codes: 0 written and every limit met (or no limits), 1 a
+limit is broken, 2 error. The JSON layout is documented in README.md ("Distance to
+fault").
+"""
+
+from __future__ import annotations
+
+import argparse
+
+DTF_FORMAT = "sweepd-dtf"
+DTF_VERSION = 1
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("file", help="Touchstone file (.s1p, .s2p, ...)")
+    parser.add_argument("--velocity", type=float, metavar="VF",
+                        help="velocity factor of the cable, 0 < VF <= 1 (e.g. 0.66)")
+    parser.add_argument("--cable", metavar="CABLE",
+                        help="cable file (name or path): velocity factor and loss per metre")
+    parser.add_argument("--loss-per-m", metavar="DB",
+                        help="cable loss per metre at the band's centre, e.g. '0.12 dB'")
+    parser.add_argument("--no-compensate", action="store_true",
+                        help="show levels as measured, without adding back the cable loss")
+    parser.add_argument("--mode", choices=("bandpass", "lowpass"),
+                        help="bandpass (any grid, default) or lowpass (harmonic grid; adds "
+                             "the step and impedance profile)")
+    parser.add_argument("--window", metavar="WINDOW",
+                        help="none, hann or kaiser-<beta> (default kaiser-6)")
+    parser.add_argument("--padding", type=int, metavar="N", help="zero padding factor (8)")
+    parser.add_argument("--floor", metavar="DB", help="list reflections above this level "
+                        "(default '-50 dB')")
+    parser.add_argument("--mask", action="append", default=[], metavar="MASK",
+                        help="distance mask (domain: distance) to judge against; repeatable")
+    parser.add_argument("--plan", metavar="PLAN", help="take settings and limits from the "
+                        "distance checks of this plan")
+    parser.add_argument("--json", action="store_true", help="print the result as JSON")
+    parser.add_argument("--trace", action="store_true",
+                        help="with --json: include the whole profile (distance, level)")
+    parser.add_argument("-o", "--output", metavar="OUT", help="picture to write (.png, .svg)")
+    parser.add_argument("--title", help="picture title (default: the file name)")
+    parser.epilog = "Exit codes: 0 pass (or no limits), 1 a limit is broken, 2 error."
+
+
+def run(args: argparse.Namespace) -> int:
+    from acquire.checks import evaluate_checks
+    from acquire.commands.check import read_sweep
+    from acquire.timedomain.peaks import find_peaks
+
+    checks = _checks(args)
+    override, given = _override(args)
+    checks = [_with_spec(c, c.spec.merged(override, given)) for c in checks]
+    spec = checks[0].spec if checks else override
+    if args.output:
+        _check_output(args.output)
+    sweep = read_sweep(args.file)
+    profile = spec.profile(sweep)
+    peaks = find_peaks(profile, spec.floor_db)
+    verdict = evaluate_checks(list(checks), sweep, metrics=False, source=str(args.file))
+    if args.output:
+        _plot(args, profile, peaks, checks, verdict)
+    if args.json:
+        print(_json(args, spec, profile, peaks, verdict))
+    else:
+        print("\n".join(_text(args.file, profile, peaks, verdict)))
+    return verdict.exit_code
+
+
+def _checks(args: argparse.Namespace) -> list:
+    from pathlib import Path
+
+    from acquire.checks import any_mask_check
+    from acquire.errors import ConfigError
+    from acquire.timedomain.checks import DistanceCheck
+
+    checks = [any_mask_check(ref, Path.cwd()) for ref in args.mask]
+    for ref, check in zip(args.mask, checks, strict=True):
+        if not isinstance(check, DistanceCheck):
+            raise ConfigError(f"dtf: mask {ref} is a frequency mask; a distance mask has "
+                              "'domain: distance' (use sweepd check for frequency masks)")
+    if args.plan:
+        from acquire.plan import load_plan
+
+        found = [c for c in load_plan(args.plan).checks if isinstance(c, DistanceCheck)]
+        if not found:
+            raise ConfigError(f"dtf: plan {args.plan} has no distance check in its checks")
+        checks += found
+    return checks
+
+
+def _override(args: argparse.Namespace):
+    """The settings given on the command line, validated like a plan's."""
+    from acquire.errors import ConfigError
+    from acquire.timedomain.spec import parse_spec
+    from acquire.yamlfile import Node
+
+    raw = {
+        "velocity_factor": args.velocity, "cable": args.cable, "loss_per_m": args.loss_per_m,
+        "compensate_loss": False if args.no_compensate else None, "mode": args.mode,
+        "window": args.window, "padding": args.padding, "floor": args.floor,
+    }
+    raw = {k: v for k, v in raw.items() if v is not None}
+    from pathlib import Path
+
+    node = Node(raw, "sweepd dtf options", error=ConfigError, base_dir=Path.cwd())
+    spec, given = parse_spec(node)
+    return spec, given
+
+
+def _with_spec(check, spec):
+    from dataclasses import replace
+
+    return replace(check, spec=spec)
+
+
+def _check_output(out: str) -> None:
+    from pathlib import Path
+
+    from acquire.timedomain.plot import FORMATS, DtfPlotError
+
+    if Path(out).suffix.lower() not in FORMATS:
+        raise DtfPlotError(f"plot output {out}: the name must end in .png or .svg")
+
+
+def _plot(args, profile, peaks, checks, verdict) -> None:
+    from pathlib import Path
+
+    from acquire.timedomain.plot import write_plot
+
+    failing = tuple(
+        f["distance_m"]
+        for r in verdict.results for z in r.details.get("zones", [])
+        for f in z["failing_peaks"]
+    )
+    zones = checks[0].zones if checks else ()
+    written = write_plot(profile, peaks, args.output, zones=zones, failing=failing,
+                         title=args.title or Path(args.file).name)
+    if not args.json:
+        print(f"picture: {written}")
+
+
+def _json(args, spec, profile, peaks, verdict) -> str:
+    import json
+
+    from acquire.checks import _finite_json
+
+    body = {
+        "format": DTF_FORMAT,
+        "version": DTF_VERSION,
+        "source": str(args.file),
+        "settings": spec.to_dict(),
+        "axis": profile.axis_dict(),
+        "peaks": [p.to_dict() for p in peaks],
+        "verdict": verdict.verdict,
+        "exit_code": verdict.exit_code,
+        "checks": [r.to_dict() for r in verdict.results],
+    }
+    if args.trace:
+        z = profile.impedance_ohm
+        body["trace"] = {
+            "distance_m": profile.distance_m.tolist(),
+            "level_db": profile.level_db.tolist(),
+            "impedance_ohm": None if z is None else z.tolist(),
+        }
+    return json.dumps(_finite_json(body), indent=2, allow_nan=False, ensure_ascii=True)
+
+
+def _text(source: str, profile, peaks, verdict) -> list[str]:
+    axis = profile.axis_dict()
+    loss = axis["loss"]
+    lines = [
+        f"{source}: {axis['mode']}, window {axis['window']['name']} "
+        f"(highest sidelobe {axis['window']['sidelobe_db']:.1f} dB), "
+        f"velocity factor {axis['velocity_factor']:g}",
+        f"  resolution {axis['resolution_m']:.4g} m (window: {axis['windowed_resolution_m']:.4g}"
+        f" m), alias-free range {axis['alias_free_range_m']:.4g} m, bin {axis['bin_m']:.3g} m",
+        "  loss " + (f"{loss['db_per_m']:g} dB/m ({loss['source']}), "
+                     f"{'compensated' if loss['compensated'] else 'not compensated'}"
+                     if loss["db_per_m"] is not None else "unknown, not compensated"),
+        f"  {len(peaks)} reflection(s):" if peaks else "  no reflection above the floor",
+    ]
+    lines += [f"    {p.distance_m:10.3f} m  level {p.level_db:7.2f} dB  RL {p.return_loss_db:6.2f}"
+              f" dB{_sign(p.sign)}" for p in peaks]
+    if verdict.results:
+        lines += verdict.report_lines()
+    return lines
+
+
+def _sign(sign: int | None) -> str:
+    return {None: "", 1: "  (impedance up)", -1: "  (impedance down)", 0: ""}[sign]
