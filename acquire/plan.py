@@ -106,7 +106,7 @@ class Plan:
 
 SECTIONS = (
     "plan", "description", "instrument", "stimulus", "measure", "calibration", "checks",
-    "output", "schedule", "station", "soak",
+    "output", "schedule", "station", "soak", "dtf",
 )
 
 
@@ -139,8 +139,9 @@ def parse_plan(root: Node, source: Path) -> Plan:
         measure=measure,
         output=_output(root["output"], name),
         calibration=calibration,
-        checks=_checks(root["checks"]),
-        sections={key: root[key] for key in ("schedule", "station", "soak") if root[key].present},
+        checks=_checks(root["checks"], root["dtf"]),
+        sections={key: root[key] for key in ("schedule", "station", "soak", "dtf")
+                  if root[key].present},
     )
 
 
@@ -301,9 +302,14 @@ def _calibration(node: Node) -> CalibrationSpec | None:
     )
 
 
-def _checks(node: Node) -> tuple[Any, ...]:
-    if not node.present or node.value is None:
-        return ()
-    from acquire.checks import parse_checks
+def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
+    checks: tuple[Any, ...] = ()
+    if node.present and node.value is not None:
+        from acquire.checks import parse_checks
 
-    return tuple(parse_checks(node))
+        checks = tuple(parse_checks(node))
+    if dtf.present:  # distance-to-fault settings: defaults for the distance checks
+        from acquire.timedomain.checks import apply_plan_settings
+
+        checks = apply_plan_settings(checks, dtf)
+    return checks

@@ -51,10 +51,10 @@ def run(args: argparse.Namespace) -> int:
     from acquire.commands.check import read_sweep
     from acquire.timedomain.peaks import find_peaks
 
-    checks = _checks(args)
+    checks, base = _sources(args)
     override, given = _override(args)
     checks = [_with_spec(c, c.spec.merged(override, given)) for c in checks]
-    spec = checks[0].spec if checks else override
+    spec = checks[0].spec if checks else base.merged(override, given)
     if args.output:
         _check_output(args.output)
     sweep = read_sweep(args.file)
@@ -70,26 +70,33 @@ def run(args: argparse.Namespace) -> int:
     return verdict.exit_code
 
 
-def _checks(args: argparse.Namespace) -> list:
+def _sources(args: argparse.Namespace):
+    """Distance checks from --mask and --plan, and the plan's ``dtf:`` settings."""
     from pathlib import Path
 
     from acquire.checks import any_mask_check
     from acquire.errors import ConfigError
     from acquire.timedomain.checks import DistanceCheck
+    from acquire.timedomain.spec import DtfSpec, parse_spec
 
     checks = [any_mask_check(ref, Path.cwd()) for ref in args.mask]
     for ref, check in zip(args.mask, checks, strict=True):
         if not isinstance(check, DistanceCheck):
             raise ConfigError(f"dtf: mask {ref} is a frequency mask; a distance mask has "
                               "'domain: distance' (use sweepd check for frequency masks)")
+    base = DtfSpec()
     if args.plan:
         from acquire.plan import load_plan
 
-        found = [c for c in load_plan(args.plan).checks if isinstance(c, DistanceCheck)]
-        if not found:
-            raise ConfigError(f"dtf: plan {args.plan} has no distance check in its checks")
+        plan = load_plan(args.plan)
+        found = [c for c in plan.checks if isinstance(c, DistanceCheck)]
+        if "dtf" in plan.sections:
+            base = parse_spec(plan.sections["dtf"])[0]
+        elif not found:
+            raise ConfigError(f"dtf: plan {args.plan} has neither a dtf section nor a "
+                              "distance check")
         checks += found
-    return checks
+    return checks, base
 
 
 def _override(args: argparse.Namespace):

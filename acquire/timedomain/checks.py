@@ -26,7 +26,7 @@ hides a failure.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from acquire.checks import Check, CheckResult
@@ -76,6 +76,7 @@ class DistanceCheck(Check):
     zones: tuple[Zone, ...]
     label: str = "distance"
     details_extra: dict[str, Any] = field(default_factory=dict)
+    pinned: frozenset[str] = frozenset()  # settings given in the plan's check entry
     kind = "distance"
 
     @property
@@ -162,9 +163,24 @@ def parse_distance_check(node: Node) -> DistanceCheck:
             node["mask"].fail(str(exc))
         base = load_distance_mask(path)
         return DistanceCheck(base.spec.merged(spec, given), base.zones, base.label,
-                             base.details_extra)
+                             base.details_extra, given)
     zones = parse_zones(node["zones"])
-    return DistanceCheck(spec, zones, node["name"].text("distance"))
+    return DistanceCheck(spec, zones, node["name"].text("distance"), {}, given)
+
+
+def apply_plan_settings(checks: tuple[Any, ...], node: Node) -> tuple[Any, ...]:
+    """Apply a plan's ``dtf:`` section to its distance checks.
+
+    Precedence, lowest first: a distance mask's own settings, the plan's ``dtf:``
+    section, the check entry's keys (and, in ``sweepd dtf``, the command line).
+    """
+    node.mapping(SETTING_KEYS)
+    spec, given = parse_spec(node)
+    return tuple(
+        replace(c, spec=c.spec.merged(spec, given - c.pinned))
+        if isinstance(c, DistanceCheck) else c
+        for c in checks
+    )
 
 
 def is_distance_mask(data: Any) -> bool:

@@ -6,7 +6,7 @@ with its distance; zone limits are drawn as steps with the forbidden side hatche
 reflections over a limit marked in a second style. Low-pass mode adds the impedance
 profile read from the step response. Headless (Agg via ``Figure``), grey with one accent
 for failures, written atomically. User text (titles, zone names) is shown as plain text:
-TeX is off and ``$`` is escaped, so no name is ever parsed as math markup.
+TeX and math parsing are off for it, so no name is ever read as markup.
 """
 
 from __future__ import annotations
@@ -32,9 +32,8 @@ class DtfPlotError(SweepdError):
     """The picture cannot be made as asked."""
 
 
-def plain(text: str) -> str:
-    """Text shown as typed: ``$`` escaped so matplotlib never reads math markup."""
-    return text.replace("\\", "\\\\").replace("$", r"\$")
+# User text (titles, zone names) is drawn exactly as typed: no math markup, no TeX.
+PLAIN = {"parse_math": False, "usetex": False}
 
 
 def write_plot(profile: DistanceProfile, peaks: list[Peak], path: Path | str, *,
@@ -67,7 +66,7 @@ def render(profile: DistanceProfile, peaks: list[Peak], *, zones: tuple[Zone, ..
     axes[-1].set_xlabel("distance (m), velocity factor "
                         f"{profile.line.velocity_factor:g}")
     axes[-1].set_xlim(0.0, profile.shown_range_m)
-    fig.suptitle(plain(title or "distance to fault"), fontsize=12, fontweight="bold")
+    fig.suptitle(title or "distance to fault", fontsize=12, fontweight="bold", **PLAIN)
     return fig
 
 
@@ -89,7 +88,7 @@ def _level_panel(ax: Any, profile: DistanceProfile, peaks: list[Peak],
     ax.set_ylim(top, max(float(np.nanmin(rl)) - 3.0, -5.0))  # small RL (bad) at the top
     ax.set_ylabel("return loss (dB)")
     ax.grid(True, color=GRID, linewidth=0.5)
-    ax.set_title(plain(_axis_note(profile)), fontsize=9, loc="left")
+    ax.set_title(_axis_note(profile), fontsize=9, loc="left", **PLAIN)
 
 
 def _zone_limit(ax: Any, zone: Zone, shown_m: float, top: float) -> None:
@@ -98,8 +97,8 @@ def _zone_limit(ax: Any, zone: Zone, shown_m: float, top: float) -> None:
     ax.plot([zone.from_m, to], [limit_rl, limit_rl], color=LIMIT, linewidth=1.4)
     ax.fill_between([zone.from_m, to], limit_rl, min(limit_rl, -5.0) - 10.0, facecolor="none",
                     edgecolor=HATCH, hatch="///", linewidth=0.0)
-    ax.annotate(plain(zone.name), (zone.from_m, limit_rl), textcoords="offset points",
-                xytext=(2, 3), fontsize=7, color=LIMIT)
+    ax.annotate(zone.name, (zone.from_m, limit_rl), textcoords="offset points",
+                xytext=(2, 3), fontsize=7, color=LIMIT, **PLAIN)
 
 
 def _impedance_panel(ax: Any, profile: DistanceProfile, impedance: np.ndarray) -> None:
