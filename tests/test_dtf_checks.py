@@ -207,3 +207,19 @@ def test_titles_and_zone_names_are_drawn_as_typed() -> None:
     texts = [fig._suptitle, *(t for ax in fig.axes for t in ax.texts)]
     shown = {t.get_text(): t._preprocess_math(t.get_text()) for t in texts}
     assert shown[title] == (title, False) and shown[zone] == (zone, False)
+
+
+def test_every_json_key_is_documented(s1p, capsys) -> None:
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    docs = (root / "README.md").read_text() + (root / "configs/masks/README.md").read_text()
+    main(["dtf", str(s1p), "--mask", "feeder-dtf", "--json", "--trace"])
+    body = json.loads(capsys.readouterr().out)
+    check = body["checks"][0]
+    failing = next(z for z in check["zones"] if z["failing_peaks"])
+    keys = {*body, *body["settings"], *body["axis"], *body["axis"]["window"],
+            *body["axis"]["loss"], *body["peaks"][0], *body["trace"], *check,
+            *failing, *failing["failing_peaks"][0], *check["mask"]}
+    missing = sorted(k for k in keys if f"`{k}`" not in docs and f'"{k}"' not in docs)
+    assert not missing

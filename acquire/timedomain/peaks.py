@@ -3,7 +3,7 @@
 A peak is an interior local maximum of the reflection level at or above a floor. A big
 reflection throws sidelobes along the whole axis (the window's own transform, shifted
 to it); a local maximum that does not rise above the biggest neighbouring reflection's
-sidelobe envelope (plus 1 dB) at that offset cannot be told from a sidelobe and is not
+sidelobe envelope (plus 3 dB) at that offset cannot be told from a sidelobe and is not
 listed. The envelope comes from the window actually used (``TimeResponse.kernel_db``),
 so a low-sidelobe window reveals small faults near big ones that a rectangular one
 hides. Sidelobes are judged on the levels before loss compensation (compensation
@@ -23,7 +23,7 @@ import numpy as np
 from acquire.timedomain.distance import DistanceProfile
 
 DEFAULT_FLOOR_DB = -50.0
-SIDELOBE_MARGIN_DB = 1.0
+SIDELOBE_MARGIN_DB = 3.0
 MAX_CANDIDATES = 400
 MAX_PEAKS = 50
 
