@@ -180,6 +180,8 @@ def test_sweepd_dtf_errors_are_one_line_exit_2(s1p, tmp_path, capsys) -> None:
     assert "needs a velocity factor" in capsys.readouterr().err
     assert main(["dtf", str(s1p), "--velocity", "0.66", "--mask", "patch-2g45"]) == 2
     assert "frequency mask" in capsys.readouterr().err
+    assert main(["dtf", str(s1p), "--velocity", "1.5"]) == 2
+    assert "sweepd dtf: --velocity: must be from 0.01 to 1" in capsys.readouterr().err
     assert main(["dtf", str(s1p), "--velocity", "0.66", "-o", str(tmp_path / "x.pdf")]) == 2
     err = capsys.readouterr().err
     assert err.startswith("sweepd: error:") and err.count("\n") == 1

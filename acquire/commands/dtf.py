@@ -14,6 +14,8 @@ import argparse
 
 DTF_FORMAT = "sweepd-dtf"
 DTF_VERSION = 1
+_OPTIONS = {"velocity_factor": "--velocity", "cable": "--cable", "loss_per_m": "--loss-per-m",
+            "window": "--window", "padding": "--padding", "floor": "--floor"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -100,7 +102,10 @@ def _sources(args: argparse.Namespace):
 
 
 def _override(args: argparse.Namespace):
-    """The settings given on the command line, validated like a plan's."""
+    """The settings given on the command line, validated like a plan's (errors name
+    the option)."""
+    from pathlib import Path
+
     from acquire.errors import ConfigError
     from acquire.timedomain.spec import parse_spec
     from acquire.yamlfile import Node
@@ -111,11 +116,13 @@ def _override(args: argparse.Namespace):
         "window": args.window, "padding": args.padding, "floor": args.floor,
     }
     raw = {k: v for k, v in raw.items() if v is not None}
-    from pathlib import Path
-
-    node = Node(raw, "sweepd dtf options", error=ConfigError, base_dir=Path.cwd())
-    spec, given = parse_spec(node)
-    return spec, given
+    try:
+        return parse_spec(Node(raw, "sweepd dtf", error=ConfigError, base_dir=Path.cwd()))
+    except ConfigError as exc:
+        text = str(exc)
+        for key, option in _OPTIONS.items():
+            text = text.replace(f"sweepd dtf: {key}:", f"sweepd dtf: {option}:")
+        raise ConfigError(text) from None
 
 
 def _with_spec(check, spec):

@@ -33,7 +33,7 @@ class LineSettings:
 
     velocity_factor: float
     loss_db_per_m: float | None = None  # at the band's centre; None: not known
-    loss_source: str | None = None  # "plan", "option", "cable <name>"
+    loss_source: str | None = None  # "loss_per_m" (the setting) or "cable <name>"
     compensate: bool = True  # add back the round-trip loss when the loss is known
     z0: float = 50.0
 

@@ -70,7 +70,8 @@ class DtfSpec:
         if vf is None:
             raise ConfigError("distance to fault needs a velocity factor: give velocity_factor "
                               "(--velocity) or a cable file with one")
-        loss, source = self.loss_db_per_m, "plan" if self.loss_db_per_m is not None else None
+        loss = self.loss_db_per_m
+        source = "loss_per_m" if loss is not None else None
         if loss is None and self.cable is not None:
             loss = self.cable.loss_db_per_m(band_centre_hz(freq_hz, self.transform.mode))
             source = f"cable {self.cable.name}" if loss is not None else None
