@@ -383,7 +383,8 @@ def test_confirm_asks_before_each_switched_step(sim: SimServer, tmp_path: Path) 
     keys = io.StringIO("\n" * 3 + "b\n" + "\n" * 2)  # 3 steps, back from SAVE, LOAD, save
     text = io.StringIO()
     outcome = calibrate(load_plan(_plan(tmp_path)),
-                        Options(resource=sim.tcp_resource, prompt="switch", confirm=True), stdin=keys, stdout=text)
+                        Options(resource=sim.tcp_resource, prompt="switch", confirm=True),
+                        stdin=keys, stdout=text)
     assert outcome.exit_code == 0
     out = text.getvalue()
     assert out.count("Enter connects the") == 4 and out.count("> ") == 6

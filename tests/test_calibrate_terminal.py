@@ -234,7 +234,8 @@ def test_terminal_cal_then_run_corrects_the_device(sim: SimServer, tmp_path: Pat
     assert child.finish()[0] == 0
     sim.bench.connect("device")
     run_dir = tmp_path
-    assert main(["run", str(plan_in(tmp_path)), "--resource", sim.tcp_resource, "--output", str(run_dir)]) == 0
+    assert main(["run", str(plan_in(tmp_path)), "--resource", sim.tcp_resource,
+                 "--output", str(run_dir)]) == 0
     (path,) = run_dir.glob("*.s1p")
     got = read_touchstone(path).to_sweep()
     truth = sim.bench.truth(got.freq_hz)[:, 0, 0]
