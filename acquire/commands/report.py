@@ -33,14 +33,14 @@ def run(args: argparse.Namespace) -> int:
 
 def _run(args: argparse.Namespace) -> int:
     import json
-    from pathlib import Path
 
+    from acquire.commands import cli_path
     from acquire.soak.report import write_report
     from acquire.soak.spool import Spool
 
     spool = Spool(args.spool).require()
     job = spool.find(args.job)
-    out = Path(args.output) if args.output else job.data_dir / "report"
+    out = cli_path(args.output) if args.output else job.data_dir / "report"
     report = write_report(job, out)
     if args.json:
         print(json.dumps({

@@ -96,10 +96,10 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
                     golden_run = golden_command(plan, request)
                     if state.stopped:
                         raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
-                                          f"pass a golden re-check ({golden_run})")
+                                          f"pass a golden re-check: run `{golden_run}`")
                     if state.due:
                         raise LineStopped(f"golden check due: {state.due_reason}; run "
-                                          f"{golden_run} first")
+                                          f"`{golden_run}` first")
                 result = measure_unit(line, serial, golden=request.golden)
         except SweepdError as exc:
             journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
