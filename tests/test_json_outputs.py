@@ -151,3 +151,18 @@ def _header_of(data: bytes) -> str:
 
     with zipfile.ZipFile(io.BytesIO(data)) as zf:
         return zf.read("header.json").decode()
+
+
+def test_ctrl_c_with_json_prints_the_error_document_and_exits_130(
+        tmp_path: Path, capsys: pytest.CaptureFixture, monkeypatch: pytest.MonkeyPatch) -> None:
+    import acquire.measure
+
+    def interrupted(*args: object, **kwargs: object) -> None:
+        raise KeyboardInterrupt  # what Ctrl-C raises in the middle of a sweep
+
+    monkeypatch.setattr(acquire.measure, "measure_and_save", interrupted)
+    plan = copy_plan(tmp_path, "cable-line")
+    code, out, err = cli(capsys, "run", str(plan), "--json")
+    assert code == 130 and err == "sweepd: interrupted\n"
+    doc = validate(one_json_object(out), "error")
+    assert (doc["exit_code"], doc["error"], doc["command"]) == (130, "interrupted", "run")
