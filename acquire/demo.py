@@ -86,7 +86,7 @@ def step_calibrate(ctx: DemoContext) -> None:
     out = ctx.root / "results" / "patch-line-a"
     print("  (the scripted technician connects a SHORT where the OPEN belongs, "
           "then follows the prompts)")
-    ctx.sweepd("calibrate", str(plan), "--output", str(out), "--prompt", "scripted",
+    ctx.sweepd("calibrate", str(plan), "--prompt", "scripted",
                "--script", "short,short,open,load", "--ascii")
     ctx.fixture("connect", what="device")
     ctx.produced.append(("cal sets", out / "cal"))

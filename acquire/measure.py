@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import logging
+import shlex
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -29,11 +30,22 @@ SUMMARY_FORMAT = "sweepd-capture"
 SUMMARY_VERSION = 1
 
 
-def cal_dir_for(plan: Plan, out_dir: Path) -> Path:
-    """Where a plan's cal sets live: its own ``calibration.dir`` or ``<output>/cal``."""
+def cal_dir_for(plan: Plan) -> Path:
+    """Where a plan's cal sets live: its ``calibration.dir``, else ``cal`` in the output
+    folder the plan itself names. Both are taken from the plan's folder, and neither
+    follows ``--output``: every run of a plan, from any working folder, finds its cal."""
     if plan.calibration is not None and plan.calibration.cal_dir is not None:
         return plan.calibration.cal_dir
-    return out_dir / "cal"
+    return plan.output.dir / "cal"
+
+
+def calibrate_command(plan: Plan, resource: str | None = None) -> str:
+    """The ``sweepd calibrate`` command that makes the cal set this run looks for, quoted
+    for a POSIX shell and runnable from the current working folder."""
+    words = ["sweepd", "calibrate", str(plan.source)]
+    if resource and resource != plan.instrument.resource:
+        words += ["--resource", resource]
+    return shlex.join(words)
 
 
 @dataclass
@@ -44,7 +56,7 @@ class CalChoice:
     warnings: list[str] = field(default_factory=list)
 
 
-def choose_calibration(plan: Plan, session: Session, out_dir: Path) -> CalChoice:
+def choose_calibration(plan: Plan, session: Session) -> CalChoice:
     """The newest valid cal set for this plan and instrument, or a ``CalError`` saying why.
 
     A plan without a calibration section measures uncorrected; a plan whose calibration
@@ -58,16 +70,41 @@ def choose_calibration(plan: Plan, session: Session, out_dir: Path) -> CalChoice
 
     try:
         calset, warnings = select(
-            cal_dir_for(plan, out_dir), plan.name, session.applied, session.identity_text,
-            policy=ValidityPolicy.from_spec(spec), plan_ref=str(plan.source),
+            cal_dir_for(plan), plan.name, session.applied, session.identity_text,
+            policy=ValidityPolicy.from_spec(spec),
+            plan_ref=calibrate_command(plan, session.resource).removeprefix("sweepd calibrate "),
         )
     except CalError as exc:
         if spec.required:
             raise
         return CalChoice(None, [f"measuring uncorrected: {exc}"])
+    warnings = [*passed_over(cal_dir_for(plan), plan.name, calset), *warnings]
     for text in warnings:
         log.warning("%s", text)
     return CalChoice(calset, warnings)
+
+
+def passed_over(cal_dir: Path, plan_name: str, chosen: Any) -> list[str]:
+    """Say so when a newer cal set file of this plan could not be read and an older one
+    is applied instead (a corrupt or truncated file must not be skipped quietly)."""
+    from acquire.calibration import CalSet
+    from acquire.calibration.calset import SUFFIX
+    from acquire.errors import CalError
+    from acquire.storage import safe_component
+
+    source = chosen.interpolation["from"] if chosen.interpolation else chosen.id
+    stamp = source.split("-", 1)[0]
+    marker = f"-{safe_component(plan_name, max_len=40)}-"
+    notes = []
+    for path in sorted(cal_dir.glob(f"*{SUFFIX}"), reverse=True):
+        if marker not in path.name or path.name.split("-", 1)[0] <= stamp:
+            continue
+        try:
+            CalSet.load(path)
+        except CalError as exc:
+            notes.append(f"newer cal set {path.name} cannot be used ({exc}); applying the "
+                         f"older {source} instead")
+    return notes
 
 
 @dataclass
@@ -186,6 +223,7 @@ def summary_dict(cap: Capture, touchstone: Path | None = None,
             "interpolated": meta.get("cal_interpolated"),
             "warnings": list(cap.cal_warnings),
         } if cap.corrected else None,
+        "warnings": list(cap.cal_warnings),
     }
     return data
 
@@ -209,12 +247,13 @@ class RunResult:
         cal = "uncorrected"
         if self.capture.corrected:
             cal = f"cal {sweep.meta.get('cal_id')} ({sweep.meta.get('cal_age_s', 0) / 3600:.1f} h)"
-        head = (f"{sweep.points} points in {sweep.meta.get('sweep_s', 0):.3f} s, {cal} -> "
-                f"{self.stored.touchstone}")
+        lines = [f"{sweep.points} points in {sweep.meta.get('sweep_s', 0):.3f} s, {cal} -> "
+                 f"{self.stored.touchstone}"]
+        lines += [f"warning: {text}" for text in self.capture.cal_warnings]
         verdict = self.capture.verdict
-        if not verdict.results:
-            return head
-        return f"{head}\n{verdict.summary_line()}\n{verdict.metrics_line()}"
+        if verdict.results:
+            lines += [verdict.summary_line(), verdict.metrics_line()]
+        return "\n".join(lines)
 
 
 def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
@@ -231,7 +270,7 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
         try:
             with Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
-                cal = choose_calibration(plan, session, out_dir)
+                cal = choose_calibration(plan, session)
                 cap = capture(session, cal, serial)
             planned = journal.plan_measurement(
                 run_id, 0, plan_path(cap, plan, out_dir, serial=serial), serial=serial

@@ -75,7 +75,7 @@ class CalibrationSpec:
     kit: Path = Path("ideal.yaml")
     max_age_s: float = 8 * 3600.0
     reference_plane: str = "end of the test cable"
-    cal_dir: Path | None = None  # None: <output dir>/cal
+    cal_dir: Path | None = None  # None: the plan's own output folder + /cal (see cal_dir_for)
     power_mismatch: str = "refuse"  # refuse | warn
     if_bandwidth_mismatch: str = "warn"  # refuse | warn
     allow_interpolation: bool = False
@@ -86,7 +86,12 @@ class CalibrationSpec:
 
 @dataclass(frozen=True)
 class Plan:
-    """A validated test plan; paths are absolute or relative to the working folder."""
+    """A validated test plan.
+
+    Paths written in the plan (``output.dir``, ``calibration.dir``, files named by checks,
+    station and soak sections) are taken from the plan file's folder; a path given on the
+    command line is taken from the working folder by the command that reads it.
+    """
 
     name: str
     source: Path
@@ -220,7 +225,7 @@ def _measure(node: Node) -> tuple[str, ...]:
 
 def _output(node: Node, plan_name: str) -> OutputSpec:
     node.mapping(("dir", "name", "touchstone", "keep_raw"), optional=True)
-    out_dir = Path(node["dir"].text("results")).expanduser()
+    out_dir = node["dir"].file_path(None) or (node.base_dir or Path()) / "results"
     name = node["name"].text("{plan}-{time}")
     _check_template(node["name"], name)
     ts = node["touchstone"]
@@ -284,13 +289,12 @@ def _calibration(node: Node) -> CalibrationSpec | None:
     prompt = node["prompt"].text("command" if switch_command else "terminal", choices=PROMPTS)
     if prompt == "command" and switch_command is None:
         node["prompt"].fail("'command' needs switch.command in the calibration section")
-    cal_dir = node["dir"].text(None)
     return CalibrationSpec(
         method=method,
         kit=kit,
         max_age_s=node["max_age"].quantity("time", 8 * 3600.0, lo=1.0),
         reference_plane=node["reference_plane"].text("end of the test cable"),
-        cal_dir=Path(cal_dir).expanduser() if cal_dir else None,
+        cal_dir=node["dir"].file_path(None),
         power_mismatch=node["power_mismatch"].text("refuse", choices=("refuse", "warn")),
         if_bandwidth_mismatch=node["if_bandwidth_mismatch"].text(
             "warn", choices=("refuse", "warn")

@@ -65,7 +65,8 @@ def _cal(plan_path: Path, sim: SimServer, out: Path, **options) -> tuple:
     text = io.StringIO()
     options.setdefault("resource", sim.tcp_resource)
     options.setdefault("script", "")
-    outcome = calibrate(load_plan(plan_path), Options(out_dir=out, **options), stdout=text)
+    assert load_plan(plan_path).output.dir == out  # the cal store: <plan's output>/cal
+    outcome = calibrate(load_plan(plan_path), Options(**options), stdout=text)
     return outcome, text.getvalue()
 
 
@@ -147,11 +148,15 @@ def test_cli_calibrate_then_run_writes_corrected_touchstone(sim: SimServer, tmp_
 
     resource = sim.tcp_resource if link == "tcp" else sim.serial_resource
     out = tmp_path / "out"
-    assert main(["calibrate", str(PATCH), "--resource", resource, "--output", str(out),
+    patch = tmp_path / "plans" / "patch-line-a.yaml"  # its output.dir: plans/results/...
+    patch.parent.mkdir()
+    patch.write_text(PATCH.read_text())
+    assert main(["calibrate", str(patch), "--resource", resource,
                  "--prompt", "switch", "--verify", "load"]) == 0
     text = capsys.readouterr().out
     assert "verification passed" in text and "fixture switched back to the device" in text
-    assert main(["run", str(PATCH), "--resource", resource, "--output", str(out)]) == 0
+    assert list((patch.parent / "results" / "patch-line-a" / "cal").glob("*.calset"))
+    assert main(["run", str(patch), "--resource", resource, "--output", str(out)]) == 0
     (path,) = out.glob("*.s1p")
     got = read_touchstone(path).to_sweep()
     truth = sim.bench.truth(got.freq_hz)[:, 0, 0]
@@ -301,10 +306,11 @@ def test_verification_device_against_its_reference_file(sim: SimServer, tmp_path
     assert outcome.calset.figures["verification"]["passed"] is True
 
     wrong = reference((100 - 50) / (100 + 50), "check-100.s1p")
-    outcome, text = _cal(plan_path, sim, tmp_path / "out2", verify=str(wrong), retries=1)
+    before = set((tmp_path / "out" / "cal").glob("*.calset"))
+    outcome, text = _cal(plan_path, sim, tmp_path / "out", verify=str(wrong), retries=1)
     assert "verification FAILED" in text
     assert outcome.exit_code == 1 and outcome.saved is None
-    assert list((tmp_path / "out2" / "cal").glob("*.calset")) == []
+    assert set((tmp_path / "out" / "cal").glob("*.calset")) == before
 
 
 def test_enhanced_response_two_port_with_a_missing_thru(sim: SimServer, tmp_path: Path) -> None:
@@ -344,8 +350,7 @@ def test_response_method_says_what_stays_uncorrected(sim: SimServer, tmp_path: P
 ])
 def test_user_errors_are_one_line(sim: SimServer, tmp_path: Path, capsys: pytest.CaptureFixture,
                                   args: list[str], expected: str) -> None:
-    code = main(["calibrate", str(PATCH), "--resource", sim.tcp_resource, "--output",
-                 str(tmp_path), *args])
+    code = main(["calibrate", str(PATCH), "--resource", sim.tcp_resource, *args])
     err = capsys.readouterr().err
     assert code == 2
     assert err.count("\n") == 1 and err.startswith("sweepd: error: ") and expected in err
@@ -378,8 +383,8 @@ def test_confirm_asks_before_each_switched_step(sim: SimServer, tmp_path: Path) 
     keys = io.StringIO("\n" * 3 + "b\n" + "\n" * 2)  # 3 steps, back from SAVE, LOAD, save
     text = io.StringIO()
     outcome = calibrate(load_plan(_plan(tmp_path)),
-                        Options(resource=sim.tcp_resource, out_dir=tmp_path / "out",
-                                prompt="switch", confirm=True), stdin=keys, stdout=text)
+                        Options(resource=sim.tcp_resource, prompt="switch", confirm=True),
+                        stdin=keys, stdout=text)
     assert outcome.exit_code == 0
     out = text.getvalue()
     assert out.count("Enter connects the") == 4 and out.count("> ") == 6

@@ -18,6 +18,7 @@ from typing import ClassVar
 
 import numpy as np
 import pytest
+import yaml
 
 from acquire.calibration import find_latest
 from acquire.guided import Options, calibrate
@@ -92,13 +93,24 @@ def _no_stray_children():
             child.proc.communicate(timeout=10)
 
 
+def plan_in(folder: Path) -> Path:
+    """The shipped plan copied into ``folder`` with ``output.dir: .``, so its cal store
+    (cal/ in the plan's output folder) is ``folder/cal``."""
+    path = folder / "patch-line-a.yaml"
+    if not path.exists():
+        data = yaml.safe_load(PLAN.read_text())
+        data["output"]["dir"] = "."
+        path.write_text(yaml.safe_dump(data))
+    return path
+
+
 def _calsets(out: Path) -> list[Path]:
     return sorted((out / "cal").glob("*.calset"))
 
 
 def test_short_on_the_open_step_is_named_and_repeated(sim: SimServer, tmp_path: Path) -> None:
     """First calibration (no earlier cal): the duplicate shows once the short is in."""
-    child = Child(str(PLAN), "--resource", sim.tcp_resource, "--output", str(tmp_path))
+    child = Child(str(plan_in(tmp_path)), "--resource", sim.tcp_resource)
     intro = child.until("[1/3] OPEN")
     assert "Reference plane: end of the test cable, at the fixture's SMA jack." in intro
     assert "transmitter power or DC" in intro and "ESD" in intro and "local codes" in intro
@@ -130,10 +142,10 @@ def test_short_on_the_open_step_is_named_and_repeated(sim: SimServer, tmp_path: 
 
 def test_with_an_earlier_cal_the_wrong_standard_is_named_at_once(sim: SimServer,
                                                                  tmp_path: Path) -> None:
-    plan = load_plan(PLAN)
-    calibrate(plan, Options(resource=sim.tcp_resource, out_dir=tmp_path, script=""),
+    plan = load_plan(plan_in(tmp_path))
+    calibrate(plan, Options(resource=sim.tcp_resource, script=""),
               stdout=io.StringIO())
-    child = Child(str(PLAN), "--resource", sim.tcp_resource, "--output", str(tmp_path))
+    child = Child(str(plan_in(tmp_path)), "--resource", sim.tcp_resource)
     assert "compared with the last calibration" in child.until("[1/3] OPEN")
     sim.bench.connect("short")
     child.key()
@@ -158,7 +170,7 @@ def test_with_an_earlier_cal_the_wrong_standard_is_named_at_once(sim: SimServer,
 
 
 def test_keys_help_back_goto_redo_and_abort(sim: SimServer, tmp_path: Path) -> None:
-    child = Child(str(PLAN), "--resource", sim.tcp_resource, "--output", str(tmp_path))
+    child = Child(str(plan_in(tmp_path)), "--resource", sim.tcp_resource)
     child.until("[1/3] OPEN")
     child.key("?")
     helped = child.until("Keys")
@@ -194,7 +206,7 @@ def test_keys_help_back_goto_redo_and_abort(sim: SimServer, tmp_path: Path) -> N
 
 
 def test_end_of_input_aborts_and_ascii_marks(sim: SimServer, tmp_path: Path) -> None:
-    child = Child(str(PLAN), "--resource", sim.tcp_resource, "--output", str(tmp_path),
+    child = Child(str(plan_in(tmp_path)), "--resource", sim.tcp_resource,
                   "--ascii")
     assert "[1/3] OPEN  .open  .short  .load" in child.until("[1/3] OPEN")
     sim.bench.connect("open")
@@ -212,7 +224,7 @@ def test_terminal_cal_then_run_corrects_the_device(sim: SimServer, tmp_path: Pat
     from acquire.cli import main
     from acquire.touchstone import read_touchstone
 
-    child = Child(str(PLAN), "--resource", sim.tcp_resource, "--output", str(tmp_path))
+    child = Child(str(plan_in(tmp_path)), "--resource", sim.tcp_resource)
     for label, std in (("[1/3] OPEN", "open"), ("[2/3] SHORT", "short"), ("[3/3] LOAD", "load")):
         child.until(label)
         sim.bench.connect(std)
@@ -222,7 +234,8 @@ def test_terminal_cal_then_run_corrects_the_device(sim: SimServer, tmp_path: Pat
     assert child.finish()[0] == 0
     sim.bench.connect("device")
     run_dir = tmp_path
-    assert main(["run", str(PLAN), "--resource", sim.tcp_resource, "--output", str(run_dir)]) == 0
+    assert main(["run", str(plan_in(tmp_path)), "--resource", sim.tcp_resource,
+                 "--output", str(run_dir)]) == 0
     (path,) = run_dir.glob("*.s1p")
     got = read_touchstone(path).to_sweep()
     truth = sim.bench.truth(got.freq_hz)[:, 0, 0]

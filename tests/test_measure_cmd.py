@@ -10,6 +10,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from schema_support import validate
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
 from acquire.cli import main
@@ -34,7 +35,7 @@ def measure(capsys, plan: Path, *args: str) -> tuple[int, dict, str]:
     captured = capsys.readouterr()
     lines = captured.out.strip().splitlines()
     assert len(lines) == 1  # one JSON object, one line
-    return code, json.loads(lines[0]), captured.err
+    return code, validate(lines[0], "measure"), captured.err
 
 
 def test_a_passing_unit_exits_0_with_the_documented_json(sim, plan, capsys, tmp_path) -> None:

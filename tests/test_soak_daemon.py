@@ -3,7 +3,6 @@ shell", SIGTERM and SIGKILL at random moments, jobs side by side, a private spoo
 
 from __future__ import annotations
 
-import json
 import os
 import random
 import signal
@@ -14,6 +13,7 @@ import time
 from pathlib import Path
 
 import pytest
+from schema_support import validate
 from test_soak_support import check_invariants, journal_rows, soak_plan, status_counts
 
 from acquire.cli import main
@@ -89,7 +89,7 @@ def test_submit_serve_status_report_from_other_shells(tmp_path: Path,
         assert f"another sweepd serve (pid {proc.pid}) is already running" in err
         assert proc.wait(30) == 0
     code, out, _ = cli(capsys, "status", "--json", "--spool", str(spool))
-    view = json.loads(out)
+    view = validate(out, "status")
     assert view["daemon"] == {"running": False, "pid": None}
     job = view["jobs"][0]
     assert job["state"] == "finished" and job["sweeps"]["planned"] == 60
@@ -106,6 +106,11 @@ def test_submit_serve_status_report_from_other_shells(tmp_path: Path,
     for name in ("drift.png", "allan.png", "deviation.png", "summary.txt", "summary.html"):
         assert (tmp_path / "rep" / name).stat().st_size > 500, name
     assert "ALARM" in log and "resonance shift" in (tmp_path / "rep" / "summary.txt").read_text()
+    code, out, _ = cli(capsys, "report", "soak", "--spool", str(spool), "-o",
+                       str(tmp_path / "rep2"), "--json")
+    report = validate(out, "report")
+    assert code == 0 and Path(report["html"]).is_file() and set(report["pictures"]) == {
+        "drift", "allan", "deviation"}
     code, _, err = cli(capsys, "report", "nothing-like-it", "--spool", str(spool))
     assert code == 2 and "no job 'nothing-like-it'" in err
 

@@ -66,7 +66,7 @@ def _calset() -> tuple[str, bytes]:
     try:
         with SimServer(time_scale=0.0, noise=False) as sim:
             plan = load_plan(write_plan(folder, sim.tcp_resource))
-            outcome = calibrate(plan, Options(prompt="switch", out_dir=folder / "out",
+            outcome = calibrate(plan, Options(prompt="switch",
                                               compare_last=False), stdout=io.StringIO())
         assert outcome.saved is not None
         return outcome.saved.name, outcome.saved.read_bytes()

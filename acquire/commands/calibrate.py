@@ -19,6 +19,10 @@ backends (plan: calibration.prompt and calibration.switch.command):
   scripted  --script lists what the 'technician' connects and presses, e.g.
             --script "short,short,open,short,load"; then unattended
 
+cal sets go to the plan's cal store: calibration.dir, else cal/ in the plan's output.dir
+(both taken from the plan's folder); run, measure, station and soak read the same store
+whatever their --output.
+
 Exit codes: 0 cal set saved, 1 verification failed (nothing saved), 2 error or abort
 (nothing saved; measured steps are kept for --resume)."""
 
@@ -28,8 +32,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.epilog = EPILOG
     parser.add_argument("plan", help="test plan (YAML) with a calibration section")
     parser.add_argument("--resource", help="VISA resource string; overrides the plan's")
-    parser.add_argument("--output", metavar="DIR",
-                        help="output folder; cal sets go to calibration.dir or DIR/cal")
     parser.add_argument("--prompt", choices=PROMPT_CHOICES,
                         help="who connects standards and answers (default: the plan's)")
     parser.add_argument("--switch-command", metavar="CMD",
@@ -55,15 +57,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from pathlib import Path
-
     from acquire.guided import Options, calibrate
     from acquire.plan import load_plan
 
     plan = load_plan(args.plan)
     options = Options(
         resource=args.resource,
-        out_dir=Path(args.output) if args.output else None,
         prompt=args.prompt,
         switch_command=args.switch_command,
         script=args.script,

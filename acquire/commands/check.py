@@ -24,6 +24,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from acquire.commands.jsonout import run_with_json_errors
+
+    return run_with_json_errors(args, "check", lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
     from acquire.checks import Check, any_mask_check, evaluate_checks

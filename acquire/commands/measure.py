@@ -29,8 +29,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     import json
     import sys
-    from pathlib import Path
 
+    from acquire.commands import cli_path
     from acquire.station.single import Request, measure_one, result_dict, result_line
     from drivers.errors import SweepdError
 
@@ -41,7 +41,7 @@ def run(args: argparse.Namespace) -> int:
         plan = load_plan(args.plan)
         plan_name = plan.name
         request = Request(serial=args.serial, golden=args.golden, resource=args.resource,
-                          out_dir=Path(args.output) if args.output else None,
+                          out_dir=cli_path(args.output) if args.output else None,
                           station_id=args.station)
         outcome = measure_one(plan, request)
     except SweepdError as exc:

@@ -16,19 +16,41 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("job", help="job id (or a prefix naming one job)")
     parser.add_argument("-o", "--output", metavar="DIR",
                         help="report folder (default: <job data folder>/report)")
+    parser.add_argument("--json", action="store_true",
+                        help="print where the report went and its summary as one JSON object")
     add_spool_argument(parser)
 
 
-def run(args: argparse.Namespace) -> int:
-    from pathlib import Path
+REPORT_FORMAT = "sweepd-report"
+REPORT_VERSION = 1
 
+
+def run(args: argparse.Namespace) -> int:
+    from acquire.commands.jsonout import run_with_json_errors
+
+    return run_with_json_errors(args, "report", lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
+    import json
+
+    from acquire.commands import cli_path
     from acquire.soak.report import write_report
     from acquire.soak.spool import Spool
 
     spool = Spool(args.spool).require()
     job = spool.find(args.job)
-    out = Path(args.output) if args.output else job.data_dir / "report"
+    out = cli_path(args.output) if args.output else job.data_dir / "report"
     report = write_report(job, out)
+    if args.json:
+        print(json.dumps({
+            "format": REPORT_FORMAT, "version": REPORT_VERSION, "job": job.id,
+            "folder": str(report.folder), "html": str(report.html),
+            "text_file": str(report.folder / "summary.txt"),
+            "pictures": {name: str(path) for name, path in report.pictures.items()},
+            "summary": report.text.splitlines(),
+        }))
+        return 0
     print(report.text)
     print(f"\nreport: {report.html}")
     return 0

@@ -14,14 +14,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    import json
-    from pathlib import Path
+    from acquire.commands.jsonout import run_with_json_errors
 
+    return run_with_json_errors(args, "run", lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
+    import json
+
+    from acquire.commands import cli_path
     from acquire.measure import measure_and_save
     from acquire.plan import load_plan
 
     plan = load_plan(args.plan)
-    out_dir = Path(args.output) if args.output else plan.output.dir
+    out_dir = cli_path(args.output) if args.output else plan.output.dir
     result = measure_and_save(plan, out_dir, resource=args.resource, serial=args.serial)
     if args.json:
         print(json.dumps(result.summary(), sort_keys=True))

@@ -27,8 +27,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from pathlib import Path
 
+    from acquire.commands import cli_path
     from acquire.plan import load_plan
     from acquire.station.loop import Station, StationOptions
     from acquire.station.terminal import Terminal
@@ -36,7 +36,7 @@ def run(args: argparse.Namespace) -> int:
     plan = load_plan(args.plan)
     options = StationOptions(
         resource=args.resource, station_id=args.station, operator=args.operator,
-        out_dir=Path(args.output) if args.output else None,
+        out_dir=cli_path(args.output) if args.output else None,
     )
     term = Terminal(color=False if args.no_color else None)
     return Station(plan, options, term).run()

@@ -16,6 +16,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from acquire.commands.jsonout import run_with_json_errors
+
+    return run_with_json_errors(args, "status", lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
     import json
     import time
 

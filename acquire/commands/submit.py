@@ -16,7 +16,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from acquire.commands.jsonout import run_with_json_errors
+
+    return run_with_json_errors(args, "submit", lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
     import json
+    import shlex
     import sys
     from pathlib import Path
 
@@ -52,6 +59,7 @@ def run(args: argparse.Namespace) -> int:
         print(f"submitted {job.id}: {plan.name} on {resource}, {every}, {extent}; "
               f"files in {job.data_dir}")
     if spool.daemon_pid() is None:
-        print(f"sweepd: note: no sweepd serve runs on spool {spool.root}; start it (or the "
-              "sweepd service) to run the job", file=sys.stderr)
+        serve = shlex.join(["sweepd", "serve", "--spool", str(spool.root)])
+        print(f"sweepd: note: no sweepd serve runs on spool {spool.root}; start it to run the "
+              f"job: {serve} (or start the sweepd service)", file=sys.stderr)
     return 0

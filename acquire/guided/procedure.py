@@ -505,6 +505,9 @@ class Procedure:
         if self.partial.readings and self.s.partial_file.exists():
             return (f"measured steps kept in {self.s.partial_file} "
                     "(run again with --resume to continue)")
+        if self.s.partial_file.exists():  # an earlier run's steps, not replaced
+            return (f"nothing was measured in this run; the earlier unfinished calibration "
+                    f"in {self.s.partial_file} is untouched (--resume continues it)")
         return "nothing was measured"
 
     def _say_kept(self) -> None:

@@ -43,7 +43,6 @@ class Options:
     """Command-line choices; None means 'as the plan says'."""
 
     resource: str | None = None
-    out_dir: Path | None = None
     prompt: str | None = None
     switch_command: str | None = None
     script: str | None = None
@@ -76,7 +75,7 @@ def calibrate(plan: Plan, options: Options = Options(), *, stdin: TextIO | None 
     steps = build_steps(spec.method, kit, plan.ports, str(plan.source))
     kit.check_range(plan.stimulus.frequencies())
     verify = _verify_spec(options, spec.method, steps)
-    cal_dir = cal_dir_for(plan, options.out_dir or plan.output.dir)
+    cal_dir = cal_dir_for(plan)
     _writable(cal_dir)
     console = Console(stdout, ascii_only=options.ascii_only)
     with Session(plan, options.resource) as session:

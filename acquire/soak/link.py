@@ -15,7 +15,6 @@ from __future__ import annotations
 import logging
 from collections.abc import Callable
 from dataclasses import dataclass
-from pathlib import Path
 
 from acquire.errors import CalError, JournalError, PlanError, StorageError, TouchstoneError
 from acquire.measure import CalChoice, choose_calibration
@@ -96,10 +95,9 @@ class Readiness:
 class InstrumentLink:
     """One plan's analyzer session, kept usable across faults."""
 
-    def __init__(self, plan: Plan, cal_dir_root: Path, resource: str | None = None) -> None:
+    def __init__(self, plan: Plan, resource: str | None = None) -> None:
         self.plan = plan
         self.resource = resource or plan.instrument.resource
-        self.cal_root = cal_dir_root
         self.session: Session | None = None
         self.cal = CalChoice()
         self.suspect = False
@@ -120,7 +118,7 @@ class InstrumentLink:
         analyzer = self.session.analyzer
         if not self.ever_opened:
             self.session.open()
-            self.cal = choose_calibration(self.plan, self.session, self.cal_root)
+            self.cal = choose_calibration(self.plan, self.session)
             self.ever_opened = True
             self.suspect = False
             done.opened = True
@@ -136,7 +134,7 @@ class InstrumentLink:
             done.reconfigured = True
             done.cal_kept = self.session.applied == before
             if not done.cal_kept:
-                self.cal = choose_calibration(self.plan, self.session, self.cal_root)
+                self.cal = choose_calibration(self.plan, self.session)
             cal_text = ("host-side calibration kept (settings as before)" if done.cal_kept
                         else "calibration chosen again for the new settings")
             on_note("settings-lost",

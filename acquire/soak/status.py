@@ -26,6 +26,9 @@ from acquire.soak import history
 from acquire.soak.daemon import resource_key
 from acquire.soak.progress import clock_text, drift_text, sweeps_text
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
+from drivers.errors import SweepdError
+
+COUNTERS = ("done", "kept", "missed", "failed", "pending")
 
 
 def spool_view(spool: Spool, only: list[Job] | None = None) -> dict[str, Any]:
@@ -55,22 +58,37 @@ def job_view(job: Job, *, daemon_running: bool) -> dict[str, Any]:
         note = "waiting for sweepd serve"
     if job.cancel_requested and name in ACTIVE_STATES:
         note = "cancel requested"
-    schedule = live.get("schedule") or {}
     view: dict[str, Any] = {
         "id": job.id, "plan": job.plan_name, "resource": job.resource, "state": name,
         "note": note, "submitted_utc": job.submitted_utc,
         "started_utc": state.get("started_utc"), "ended_utc": state.get("ended_utc"),
         "run_id": state.get("run_id"),
-        "sweeps": {"planned": schedule.get("planned"), **(live.get("sweeps") or {})},
+        "sweeps": {**dict.fromkeys(COUNTERS, 0), **(live.get("sweeps") or {}),
+                   "planned": _planned(job, live)},
         "last_sweep": live.get("last_sweep"), "last_fault": live.get("last_fault"),
         "next_sweep": live.get("next_sweep") if name in ("running", "held") else None,
         "eta_utc": live.get("eta_utc") if name in ACTIVE_STATES else None,
-        "drift": live.get("drift"), "alarms": live.get("alarms"),
+        "drift": live.get("drift") or {"reference": None, "parameter": None, "latest": None,
+                                       "worst": {}, "allan_resonance": []},
+        "alarms": {"count": 0, "active": [], "last": None, **(live.get("alarms") or {})},
         "files": live.get("files") or {"data_dir": str(job.data_dir),
                                        "journal": str(job.output_dir / "journal.sqlite")},
     }
     _merge_journal(job, view)
     return view
+
+
+def _planned(job: Job, live: dict[str, Any]) -> int | None:
+    """Sweeps the schedule plans (None: until cancelled), from the worker or the plan."""
+    schedule = live.get("schedule") or {}
+    if "planned" in schedule:
+        return schedule["planned"]
+    try:
+        from acquire.soak.spec import parse_soak
+
+        return parse_soak(job.load_plan()).schedule.total()
+    except SweepdError:
+        return None
 
 
 def _merge_journal(job: Job, view: dict[str, Any]) -> None:

@@ -183,7 +183,7 @@ class SoakWorker:
         if unfilled:
             self._fill_adopted(unfilled)
         self._load_series()
-        self.link = InstrumentLink(plan, job.output_dir, job.resource)
+        self.link = InstrumentLink(plan, job.resource)
         self.backoff = Backoff(self.spec.faults.backoff_first_s, self.spec.faults.backoff_max_s)
         self._prepared = True
         log.info("job %s: %s run %d at sweep %d (%s)", job.id,

@@ -17,6 +17,7 @@ unit is reported as not measured, and the station reconnects.
 from __future__ import annotations
 
 import contextlib
+import shlex
 from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
@@ -334,7 +335,7 @@ class Station:
 
         try:
             if line.cal is None:
-                line.cal = choose_calibration(self.plan, line.session, self.out_dir)
+                line.cal = choose_calibration(self.plan, line.session)
                 self._say_cal(line.cal)
             elif line.cal.calset is not None:
                 check_validity(line.cal.calset, line.session.applied,
@@ -382,8 +383,7 @@ class Station:
             self.term.say("this plan has no calibration section: nothing to calibrate")
             return
         self._close_session()
-        options = Options(resource=self.resource, out_dir=self.out_dir,
-                          compare_last=compare_last)
+        options = Options(resource=self.resource, compare_last=compare_last)
         try:
             outcome = calibrate(self.plan, options, stdin=self.term,  # type: ignore[arg-type]
                                 stdout=self.term.out)
@@ -439,4 +439,4 @@ class Station:
     def _goodbye(self, journal: Journal, run_id: int) -> None:
         self.term.say(f"shift ended: {run_yield(journal, run_id).line()}",
                       f"files in {self.out_dir}; journal {journal.path}",
-                      f"statistics: sweepd summary {self.out_dir}")
+                      f"statistics: {shlex.join(['sweepd', 'summary', str(self.out_dir)])}")

@@ -8,6 +8,7 @@ every outcome, errors included (``RESULT_KEYS``; see README "sweepd measure").
 
 from __future__ import annotations
 
+import shlex
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -26,7 +27,7 @@ RESULT_VERSION = 1
 RESULT_KEYS = (
     "format", "version", "plan", "serial", "station", "golden", "verdict", "exit_code",
     "attempt", "retest", "time_utc", "worst_margin", "key_figures", "checks", "golden_check",
-    "files", "calibration", "instrument", "resource", "journal", "error",
+    "files", "calibration", "instrument", "resource", "journal", "warnings", "error",
 )
 
 
@@ -86,19 +87,19 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         try:
             with Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
-                cal = choose_calibration(plan, session, out_dir)
+                cal = choose_calibration(plan, session)
                 line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
                             reference)
                 if golden is not None and not request.golden:
                     created = cal.calset.created if cal.calset is not None else None
                     state = line_state(journal, plan.name, golden, cal_created=created)
+                    golden_run = golden_command(plan, request)
                     if state.stopped:
                         raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
-                                          f"pass a golden re-check (sweepd measure "
-                                          f"{plan.source} --golden)")
+                                          f"pass a golden re-check: run `{golden_run}`")
                     if state.due:
-                        raise LineStopped(f"golden check due: {state.due_reason}; run sweepd "
-                                          f"measure {plan.source} --golden first")
+                        raise LineStopped(f"golden check due: {state.due_reason}; run "
+                                          f"`{golden_run}` first")
                 result = measure_unit(line, serial, golden=request.golden)
         except SweepdError as exc:
             journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
@@ -111,12 +112,23 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         return Outcome(result, journal.path, run_id, resource)
 
 
+def golden_command(plan: Plan, request: Request) -> str:
+    """The ``sweepd measure --golden`` call that clears the line for this request: same
+    plan, instrument, output folder and station, quoted for a POSIX shell."""
+    words = ["sweepd", "measure", str(plan.source), "--golden"]
+    for flag, value in (("--resource", request.resource), ("--output", request.out_dir),
+                        ("--station", request.station_id)):
+        if value:
+            words += [flag, str(value)]
+    return shlex.join(words)
+
+
 def result_dict(outcome: Outcome | None, *, plan: str | None = None, serial: str | None = None,
                 error: str | None = None) -> dict[str, Any]:
     """The JSON result (``RESULT_KEYS``, always all of them; null where unknown)."""
     data: dict[str, Any] = dict.fromkeys(RESULT_KEYS)
     data.update(format=RESULT_FORMAT, version=RESULT_VERSION, plan=plan, serial=serial,
-                golden=False, exit_code=2, retest=False, checks=[], error=error)
+                golden=False, exit_code=2, retest=False, checks=[], warnings=[], error=error)
     if outcome is None:
         return data
     r = outcome.result
@@ -140,6 +152,7 @@ def result_dict(outcome: Outcome | None, *, plan: str | None = None, serial: str
         instrument=meta.get("instrument"), resource=outcome.resource,
         journal={"path": str(outcome.journal_path), "run_id": outcome.run_id,
                  "measurement_id": r.planned.id},
+        warnings=list(cap.cal_warnings),
     )
     return data
 
