@@ -8,10 +8,10 @@ twice the test cable's one-way delay plus twice the short's offset delay.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 import pytest
+from schema_support import one_json_object, validate
 
 from acquire.cli import main
 from acquire.touchstone import read_touchstone
@@ -50,7 +50,7 @@ def test_run_judges_a_captured_sweep_in_the_distance_domain(
         sim.bench.connect("short")
         assert main(["run", str(plan), "--resource", sim.tcp_resource,
                      "--output", str(tmp_path / "out"), "--json"]) == code
-    summary = json.loads(capsys.readouterr().out)
+    summary = validate(one_json_object(capsys.readouterr().out), "capture")
     (check,) = summary["checks"]
     assert check["kind"] == "distance" and check["verdict"] == ("pass", "fail")[code]
     strongest = max(check["peaks"], key=lambda p: p["level_db"])
@@ -60,7 +60,7 @@ def test_run_judges_a_captured_sweep_in_the_distance_domain(
     path = summary["capture"]["touchstone"]
     assert any("distance" in c for c in read_touchstone(path).comments)
     assert main(["dtf", path, "--plan", str(plan), "--json"]) == code
-    again = json.loads(capsys.readouterr().out)
+    again = validate(one_json_object(capsys.readouterr().out), "dtf")
     assert len(again["peaks"]) == len(check["peaks"])
     for ours, theirs in zip(again["peaks"], check["peaks"], strict=True):
         assert ours["distance_m"] == pytest.approx(theirs["distance_m"], abs=1e-9)

@@ -13,6 +13,7 @@ import textwrap
 import numpy as np
 import pytest
 from dtf_line import line_s11
+from schema_support import one_json_object, validate
 
 from acquire.checks import evaluate_checks, parse_checks
 from acquire.cli import main
@@ -168,11 +169,27 @@ def test_sweepd_dtf_text_json_and_exit_codes(s1p, tmp_path, capsys) -> None:
     mask.write_text("domain: distance\nzones: [{from: 0.3 m, to: end, lower: 30 dB}]\n")
     assert main(["dtf", str(s1p), "--velocity", "0.66", "--mask", str(mask), "--json",
                  "--trace"]) == 1
-    body = json.loads(capsys.readouterr().out)
+    body = validate(one_json_object(capsys.readouterr().out), "dtf")
     assert body["format"] == "sweepd-dtf" and body["verdict"] == "fail"
     assert [round(p["distance_m"], 2) for p in body["peaks"]] == [12.3, 32.3, 52.3]
     assert len(body["trace"]["distance_m"]) == len(body["trace"]["level_db"])
     assert body["checks"][0]["zones"][0]["verdict"] == "fail"
+
+
+def test_sweepd_dtf_json_on_failure_is_the_error_document(s1p, capsys) -> None:
+    assert main(["dtf", str(s1p), "--json", "--mode", "lowpass", "--velocity", "0.7",
+                 "--padding", "0"]) == 2
+    out, err = capsys.readouterr()
+    doc = validate(one_json_object(out), "error")
+    assert doc["command"] == "dtf" and "--padding" in doc["error"] and err.count("\n") == 1
+    assert main(["dtf", str(s1p), "--json", "--velocity", "0.66", "--mask", "feeder-dtf"]) == 1
+    good = validate(one_json_object(capsys.readouterr().out), "dtf")
+    import jsonschema
+
+    for bad in ({**good, "format": "sweepd-verdict"}, {**good, "peaks": [{"distance_m": -1}]},
+                {**good, "axis": {**good["axis"], "mode": "timewarp"}}):
+        with pytest.raises(jsonschema.ValidationError):
+            validate(bad, "dtf")
 
 
 def test_sweepd_dtf_errors_are_one_line_exit_2(s1p, tmp_path, capsys) -> None:

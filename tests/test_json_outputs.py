@@ -38,8 +38,8 @@ def cli(capsys: pytest.CaptureFixture, *argv: str) -> tuple[int, str, str]:
 
 def test_every_shipped_schema_is_a_valid_draft_2020_12_schema() -> None:
     names = sorted(p.name.removesuffix(".schema.json") for p in SCHEMAS.glob("*.schema.json"))
-    assert names == ["calset", "capture", "error", "measure", "report", "status", "submit",
-                     "summary", "verdict"]
+    assert names == ["calset", "capture", "dtf", "error", "measure", "report", "status",
+                     "submit", "summary", "verdict"]
     for name in names:
         doc = schema(name)
         assert doc["$schema"] == "https://json-schema.org/draft/2020-12/schema"

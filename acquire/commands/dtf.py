@@ -49,6 +49,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from acquire.commands.jsonout import run_with_json_errors
+
+    return run_with_json_errors(args, "dtf", lambda: _run(args))
+
+
+def _run(args: argparse.Namespace) -> int:
     from acquire.checks import evaluate_checks
     from acquire.commands.check import read_sweep
     from acquire.timedomain.peaks import find_peaks
