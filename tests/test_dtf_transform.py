@@ -13,6 +13,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from dtf_line import C0, line_s11, rho
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from acquire.timedomain.distance import LineSettings, distance_profile, round_trip_loss_db
 from acquire.timedomain.peaks import find_peaks
@@ -52,6 +54,22 @@ def test_peaks_of_a_closed_form_line_sit_within_one_range_bin(mode: str, window:
         assert abs(peak.level_db - level) < LEVEL_TOL_DB
     if mode == "lowpass":  # sign: 50 -> 60 ohm is a step up, 60 -> 40 a step down
         assert [p.sign for p in peaks] == [1, -1]
+
+
+@settings(max_examples=40, deadline=None)
+@given(distance=st.floats(1.0, 55.0), level_db=st.floats(-45.0, -3.0),
+       start_hz=st.floats(1e6, 2e9), window=st.sampled_from(["none", "hann", "kaiser-6"]))
+def test_one_delayed_reflection_reads_its_distance_and_level(
+        distance: float, level_db: float, start_hz: float, window: str) -> None:
+    # Gamma(f) = rho exp(-j 2 pi f 2d / v): one reflection at d (DFT shift theorem), inside
+    # the shown range (15/16 of v / (2 df) = 61.8 m here).
+    f = start_hz + np.arange(601) * 1.5e6
+    v = C0 * VF
+    g = 10 ** (level_db / 20) * np.exp(-2j * np.pi * f * 2 * distance / v)
+    profile = distance_profile(f, g, LineSettings(VF), TransformSettings("bandpass", window))
+    (peak,) = find_peaks(profile, level_db - 20)
+    assert abs(peak.distance_m - distance) < v / (2 * (f[-1] - f[0]))  # one range bin
+    assert abs(peak.level_db - level_db) < 0.1  # zero padding 8 + parabola: scalloping
 
 
 def test_bandpass_with_any_start_frequency() -> None:
