@@ -134,6 +134,16 @@ def test_window_sidelobes_match_published_levels(name: str, sidelobe_db: float,
     assert window_info("kaiser-13").sidelobe_db < -85.0
 
 
+@pytest.mark.parametrize("n", [8, 13, 40])
+def test_short_rectangular_window_matches_the_dirichlet_kernel(n: int) -> None:
+    # |sum_k exp(j k x)| / n = |sin(n x / 2) / (n sin(x / 2))| (Oppenheim & Schafer); its
+    # highest sidelobe lies beyond the first null x = 2 pi / n.
+    x = np.linspace(2 * np.pi / n, np.pi, 200_001)
+    dirichlet = np.abs(np.sin(n * x / 2) / (n * np.sin(x / 2)))
+    expected = 20 * np.log10(dirichlet.max())
+    assert window_info("none", n).sidelobe_db == pytest.approx(expected, abs=0.01)
+
+
 def test_unknown_window_and_bad_grids_are_refused() -> None:
     with pytest.raises(WindowError, match="kaiser-<beta>"):
         check_window("kaiser-99")

@@ -150,7 +150,7 @@ def _bandpass(f: np.ndarray, g: np.ndarray, step_hz: float,
     kernel = np.abs(np.fft.ifft(w, n_fft)) * (n_fft / w.sum())
     shown = _shown(n_fft)
     return TimeResponse(
-        "bandpass", window_info(settings.window), np.arange(shown) / (n_fft * step_hz),
+        "bandpass", window_info(settings.window, w.size), np.arange(shown) / (n_fft * step_hz),
         h[:shown], None, _db(kernel), f.size, n_fft, float(f[0]), float(f[-1]), step_hz, None,
     )
 
@@ -180,7 +180,8 @@ def _lowpass(f: np.ndarray, g: np.ndarray, step_hz: float,
     kernel = np.abs(np.fft.irfft(w, n_fft)) * scale
     shown = _shown(n_fft)
     return TimeResponse(
-        "lowpass", window_info(settings.window), np.arange(shown) / (n_fft * step_hz),
+        "lowpass", window_info(settings.window, 2 * w.size - 1),
+        np.arange(shown) / (n_fft * step_hz),
         raw[:shown] * scale, step[:shown], _db(kernel), f.size, n_fft,
         0.0 if dc_measured else float(f[0] - step_hz), float(f[-1]), step_hz,
         None if dc is None else float(dc),

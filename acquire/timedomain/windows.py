@@ -26,6 +26,7 @@ WINDOW_NAMES = ("none", "hann", "kaiser-6", "kaiser-13")
 DEFAULT_WINDOW = "kaiser-6"
 _KAISER = re.compile(r"^kaiser-(\d+(?:\.\d+)?)$")
 _MEASURE_PAD = 64  # zero-padding factor used to measure a window's transform
+MEASURE_MAX_POINTS = 1024
 
 
 class WindowError(ValueError):
@@ -76,10 +77,16 @@ def half(name: str, n: int) -> np.ndarray:
     return symmetric(name, 2 * n - 1)[n - 1:]
 
 
-@lru_cache(maxsize=32)
-def window_info(name: str) -> WindowInfo:
-    """Measure a window's highest sidelobe and -6 dB main-lobe width (256 points)."""
-    n = 256
+def window_info(name: str, points: int = 256) -> WindowInfo:
+    """Measure a window's highest sidelobe and -6 dB main-lobe width at ``points``.
+
+    Long windows are measured at 1024 points: the figures have settled by then.
+    """
+    return _measured(name, int(min(max(points, 8), MEASURE_MAX_POINTS)))
+
+
+@lru_cache(maxsize=64)
+def _measured(name: str, n: int) -> WindowInfo:
     ratio_6db = _width_6db(symmetric(name, n)) / _width_6db(np.ones(n))
     return WindowInfo(name, _sidelobe_db(symmetric(name, n)), float(ratio_6db))
 
