@@ -30,6 +30,7 @@ lobe of a reflection at the reference plane, wrapped around by the FFT.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property, lru_cache
 
 import numpy as np
 
@@ -94,7 +95,7 @@ class TimeResponse:
         """Round-trip time resolution with a rectangular window (1/B or 1/(2 f2))."""
         return 1.0 / (2.0 * self.stop_hz) if self.mode == "lowpass" else 1.0 / self.span_hz
 
-    @property
+    @cached_property
     def level_db(self) -> np.ndarray:
         """20 log10 |impulse|: the reflection level at each time (negative dB)."""
         with np.errstate(divide="ignore"):
@@ -144,14 +145,14 @@ def _shown(n_fft: int) -> int:
 
 def _bandpass(f: np.ndarray, g: np.ndarray, step_hz: float,
               settings: TransformSettings) -> TimeResponse:
-    w = symmetric(settings.window, f.size)
+    w = _window("bandpass", settings.window, f.size)
     n_fft = _n_fft(settings.padding, f.size)
     h = np.fft.ifft(w * g, n_fft) * (n_fft / w.sum())
-    kernel = np.abs(np.fft.ifft(w, n_fft)) * (n_fft / w.sum())
     shown = _shown(n_fft)
     return TimeResponse(
         "bandpass", window_info(settings.window, w.size), np.arange(shown) / (n_fft * step_hz),
-        h[:shown], None, _db(kernel), f.size, n_fft, float(f[0]), float(f[-1]), step_hz, None,
+        h[:shown], None, _kernel_db("bandpass", settings.window, f.size, n_fft), f.size,
+        n_fft, float(f[0]), float(f[-1]), step_hz, None,
     )
 
 
@@ -171,18 +172,17 @@ def _lowpass(f: np.ndarray, g: np.ndarray, step_hz: float,
     else:
         dc = estimate_dc(g)
         spectrum = np.concatenate([[dc], g])
-    w = half(settings.window, spectrum.size)
+    w = _window("lowpass", settings.window, spectrum.size)
     n_fft = _n_fft(settings.padding, 2 * spectrum.size)
     raw = np.fft.irfft(w * spectrum, n_fft)  # sums to w[0] * spectrum[0] = DC value
-    scale = n_fft / (w[0] + 2.0 * w[1:].sum())
     guard = n_fft // WRAP_GUARD
     step = np.cumsum(np.roll(raw, guard))[guard:]  # start the running sum at -guard bins
-    kernel = np.abs(np.fft.irfft(w, n_fft)) * scale
     shown = _shown(n_fft)
     return TimeResponse(
         "lowpass", window_info(settings.window, 2 * w.size - 1),
         np.arange(shown) / (n_fft * step_hz),
-        raw[:shown] * scale, step[:shown], _db(kernel), f.size, n_fft,
+        raw[:shown] * _lowpass_scale(w, n_fft), step[:shown],
+        _kernel_db("lowpass", settings.window, spectrum.size, n_fft), f.size, n_fft,
         0.0 if dc_measured else float(f[0] - step_hz), float(f[-1]), step_hz,
         None if dc is None else float(dc),
     )
@@ -199,6 +199,32 @@ def estimate_dc(gamma: np.ndarray) -> float:
     phase = np.unwrap(np.angle(gamma[:2]))
     phase0 = 2.0 * phase[0] - phase[1]
     return float(mag if np.cos(phase0) >= 0 else -mag)
+
+
+@lru_cache(maxsize=16)
+def _window(mode: str, name: str, n: int) -> np.ndarray:
+    """The window over the sweep (band-pass) or its right half from DC (low-pass); cached."""
+    w = symmetric(name, n) if mode == "bandpass" else half(name, n)
+    w.setflags(write=False)
+    return w
+
+
+@lru_cache(maxsize=16)
+def _kernel_db(mode: str, name: str, n: int, n_fft: int) -> np.ndarray:
+    """The transform of the window alone (dB; 0 dB for a reflection of 1), cached."""
+    w = _window(mode, name, n)
+    if mode == "bandpass":
+        kernel = np.abs(np.fft.ifft(w, n_fft)) * (n_fft / w.sum())
+    else:
+        kernel = np.abs(np.fft.irfft(w, n_fft)) * _lowpass_scale(w, n_fft)
+    result = _db(kernel)
+    result.setflags(write=False)
+    return result
+
+
+def _lowpass_scale(w: np.ndarray, n_fft: int) -> float:
+    """Makes a reflection rho read rho: irfft sums w0 + 2 (w1 + ... + wN) per unit."""
+    return n_fft / (w[0] + 2.0 * w[1:].sum())
 
 
 def _db(values: np.ndarray) -> np.ndarray:
