@@ -27,11 +27,11 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-import numpy as np  # noqa: E402
+import numpy as np
 
-from acquire.timedomain.distance import C0, LineSettings, distance_profile  # noqa: E402
-from acquire.timedomain.peaks import find_peaks  # noqa: E402
-from acquire.timedomain.transform import TransformSettings  # noqa: E402
+from acquire.timedomain.distance import C0, LineSettings, distance_profile
+from acquire.timedomain.peaks import find_peaks
+from acquire.timedomain.transform import TransformSettings
 
 VF = 0.66
 

@@ -242,3 +242,11 @@ def test_every_json_key_is_documented(s1p, capsys) -> None:
             *failing, *failing["failing_peaks"][0], *check["mask"]}
     missing = sorted(k for k in keys if f"`{k}`" not in docs and f'"{k}"' not in docs)
     assert not missing
+
+
+def test_sweepd_check_takes_a_distance_mask(s1p, capsys) -> None:
+    # sweepd check reads distance masks too (before, 'domain' was an unknown mask key).
+    assert main(["check", str(s1p), "--mask", "feeder-dtf", "--json"]) == 1
+    doc = validate(one_json_object(capsys.readouterr().out), "verdict")
+    assert doc["checks"][0]["kind"] == "distance"
+    assert doc["checks"][0]["mask"]["name"] == "feeder-dtf"
