@@ -250,3 +250,14 @@ def test_sweepd_check_takes_a_distance_mask(s1p, capsys) -> None:
     doc = validate(one_json_object(capsys.readouterr().out), "verdict")
     assert doc["checks"][0]["kind"] == "distance"
     assert doc["checks"][0]["mask"]["name"] == "feeder-dtf"
+
+
+def test_lengths_in_engineering_units() -> None:
+    from acquire.units import parse_quantity
+
+    # 1 ft = 0.3048 m exactly (international foot, 1959).
+    assert parse_quantity("12 ft", "length") == pytest.approx(3.6576)
+    assert parse_quantity("30 cm", "length") == pytest.approx(0.3)
+    assert parse_quantity(2, "length") == 2.0
+    with pytest.raises(ValueError, match="unknown length unit 'yd'"):
+        parse_quantity("3 yd", "length")
