@@ -38,14 +38,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         "(default '-50 dB')")
     parser.add_argument("--mask", action="append", default=[], metavar="MASK",
                         help="distance mask (domain: distance) to judge against; repeatable")
-    parser.add_argument("--plan", metavar="PLAN", help="take settings and limits from the "
-                        "distance checks of this plan")
+    parser.add_argument("--plan", metavar="PLAN", help="take settings (its dtf: section) and "
+                        "limits (its distance checks) from this plan")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
     parser.add_argument("--trace", action="store_true",
                         help="with --json: include the whole profile (distance, level)")
     parser.add_argument("-o", "--output", metavar="OUT", help="picture to write (.png, .svg)")
     parser.add_argument("--title", help="picture title (default: the file name)")
-    parser.epilog = "Exit codes: 0 pass (or no limits), 1 a limit is broken, 2 error."
+    parser.epilog = ("Exit codes: 0 pass (or no limits), 1 a limit is broken, 2 error, "
+                     "130 interrupted.")
 
 
 def run(args: argparse.Namespace) -> int:
