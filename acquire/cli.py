@@ -62,6 +62,8 @@ def main(argv: list[str] | None = None) -> int:
     from drivers.errors import SweepdError
 
     try:
+        if getattr(args, "resource", None) is not None and _check_resource(args):
+            return EXIT_ERROR
         return int(_module(args._module).run(args))
     except SweepdError as exc:
         print(f"sweepd: error: {exc}", file=sys.stderr)
@@ -75,6 +77,18 @@ def main(argv: list[str] | None = None) -> int:
         where = f" ({exc.filename})" if exc.filename else ""
         print(f"sweepd: error: {exc.strerror or exc}{where}", file=sys.stderr)
         return EXIT_ERROR
+
+
+def _check_resource(args: argparse.Namespace) -> bool:
+    """``--resource`` follows the rules plans follow; True when refused (with --json)."""
+    from acquire.commands.jsonout import run_with_json_errors
+    from drivers.resources import parse_resource
+
+    def check() -> int:
+        parse_resource(args.resource, where="--resource")
+        return EXIT_OK
+
+    return run_with_json_errors(args, args.command, check) != EXIT_OK
 
 
 def _module(name: str):

@@ -27,12 +27,12 @@ def _run(args: argparse.Namespace) -> int:
     import sys
     from pathlib import Path
 
-    from acquire.errors import PlanError
-    from acquire.plan import _RESOURCE, load_plan
+    from acquire.plan import load_plan
     from acquire.soak.drift import reference_from_file
     from acquire.soak.spec import parse_soak
     from acquire.soak.spool import Spool
     from acquire.units import format_duration
+    from drivers.resources import parse_resource
 
     path = Path(args.plan)
     plan = load_plan(path)
@@ -41,8 +41,7 @@ def _run(args: argparse.Namespace) -> int:
         reference_from_file(spec.reference, spec.parameter, spec.band_hz,
                             plan.stimulus.frequencies())
     resource = args.resource or plan.instrument.resource
-    if not _RESOURCE.match(resource):
-        raise PlanError(f"--resource: not a supported VISA resource string: {resource!r}")
+    parse_resource(resource, where="--resource")
     output = Path(args.output or plan.output.dir).expanduser().resolve()
     spool = Spool(args.spool)
     job = spool.create_job(plan.name, path.resolve(), path.read_text(encoding="utf-8"),
