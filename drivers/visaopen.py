@@ -10,6 +10,7 @@ records themselves go to our own logger at debug level (``-vv`` shows them).
 
 from __future__ import annotations
 
+import gc
 import logging
 import threading
 import warnings
@@ -68,12 +69,23 @@ def open_session(resource: str, **kwargs: Any) -> Any:
             warnings.simplefilter("ignore")
             return rm.open_resource(resource, **kwargs)
     except Exception as exc:  # pyvisa, pyvisa-py and pyserial raise many kinds here
-        raise OpenFailed(_root_cause(exc, _HELD.records)) from None
+        reason = _root_cause(exc, _HELD.records)
     finally:
         records, _HELD.records = _HELD.records, None
         for record in records:
             LOG.debug("pyvisa said while opening %s: %s", resource, record.getMessage(),
                       exc_info=record.exc_info)
+    del records
+    _collect_leaked_sockets()
+    raise OpenFailed(reason)
+
+
+def _collect_leaked_sockets() -> None:
+    """pyvisa-py 0.8 leaves a failed HiSLIP/VXI-11 client's socket open: collect it now,
+    quietly, rather than letting its ResourceWarning surface at some later moment."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ResourceWarning)
+        gc.collect()
 
 
 class OpenFailed(Exception):

@@ -150,6 +150,7 @@ class HislipSession(Session):
         self.async_conn: socket.socket | None = None
         self.abandon = False  # set by AsyncDeviceClear: stop sending the current reply
         self._control_lock = threading.RLock()
+        self.finished = False
 
     def fileno(self) -> int:
         return self.conn.fileno()
@@ -171,7 +172,7 @@ class HislipSession(Session):
             return None
         if self.reader.oversized:
             self.reader.oversized = 0
-            self._control(pack(ERROR, ERROR_TOO_LARGE, 0, b"message too large"))
+            self.control(pack(ERROR, ERROR_TOO_LARGE, 0, b"message too large"))
         out = bytearray()
         for frame in frames:
             out = self._take(frame, out)
@@ -192,11 +193,11 @@ class HislipSession(Session):
             out = bytearray()
             self.abandon = False
             self.message_id = 0xFFFF_FFFF
-            self._control(pack(DEVICE_CLEAR_ACKNOWLEDGE, 0))
+            self.control(pack(DEVICE_CLEAR_ACKNOWLEDGE, 0))
         elif frame.kind in (ERROR, FATAL_ERROR):
             pass  # a client's error report needs no answer
         else:
-            self._control(pack(ERROR, ERROR_UNRECOGNIZED_TYPE, 0,
+            self.control(pack(ERROR, ERROR_UNRECOGNIZED_TYPE, 0,
                                f"unrecognized message type {frame.kind}".encode()))
         return out
 
@@ -236,7 +237,7 @@ class HislipSession(Session):
         with self._control_lock:
             super()._send(self._frames(payload, DATA))
 
-    def _control(self, message: bytes) -> None:
+    def control(self, message: bytes) -> None:
         """A protocol message on the sync channel (never inside a reply's frames)."""
         with self._control_lock, contextlib.suppress(OSError):
             self.conn.setblocking(True)
@@ -247,7 +248,7 @@ class HislipSession(Session):
                 self.conn.setblocking(False)
 
     def _fatal(self, code: int, text: str) -> None:
-        self._control(pack(FATAL_ERROR, code, 0, text.encode("ascii", "replace")))
+        self.control(pack(FATAL_ERROR, code, 0, text.encode("ascii", "replace")))
 
     # -- ending ----------------------------------------------------------------------
     def drop_link(self) -> None:
@@ -259,6 +260,7 @@ class HislipSession(Session):
         self.wake()
 
     def _finish(self) -> None:
+        self.finished = True
         for conn in (self.conn, self.async_conn):
             if conn is not None:
                 with contextlib.suppress(OSError):
@@ -383,16 +385,17 @@ class HislipEndpoint(TcpEndpoint):
             session = HislipSession(conn, next(self._ids) & 0xFFFF, self.core, self.tree,
                                     self.terminator, self.seed)
             self.session = session
-        conn.sendall(pack(INITIALIZE_RESPONSE, 0,
-                          (PROTOCOL_VERSION << 16) | session.session_id))
-        thread = threading.Thread(target=session.serve, name="sim-hislip-session", daemon=True)
-        self._session_thread = thread
-        thread.start()
+            thread = threading.Thread(target=session.serve, name="sim-hislip-session",
+                                      daemon=True)
+            self._session_thread = thread
+            thread.start()
+        session.control(pack(INITIALIZE_RESPONSE, 0,
+                             (PROTOCOL_VERSION << 16) | session.session_id))
 
     def _free(self, wait_s: float = 1.0) -> bool:
         """No live session (a client that just closed gets a moment to be noticed)."""
         end = time.monotonic() + wait_s
-        while self._session_thread is not None and self._session_thread.is_alive():
+        while isinstance(self.session, HislipSession) and not self.session.finished:
             if time.monotonic() > end:
                 return False
             time.sleep(0.01)
