@@ -64,28 +64,27 @@ def open_session(resource: str, **kwargs: Any) -> Any:
     """
     rm = resource_manager()
     _HELD.records = []
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
+    # Ignored while opening: pyvisa-py's warnings about optional transports, and the
+    # ResourceWarning of the socket a failed HiSLIP/VXI-11 client of pyvisa-py 0.8 leaves
+    # open (collected here rather than at some later moment).
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
             return rm.open_resource(resource, **kwargs)
-    except Exception as exc:  # pyvisa, pyvisa-py and pyserial raise many kinds here
-        reason = _root_cause(exc, _HELD.records)
-    finally:
-        records, _HELD.records = _HELD.records, None
-        for record in records:
-            LOG.debug("pyvisa said while opening %s: %s", resource, record.getMessage(),
-                      exc_info=record.exc_info)
-    del records
-    _collect_leaked_sockets()
+        except Exception as exc:  # pyvisa, pyvisa-py and pyserial raise many kinds here
+            reason = _root_cause(exc, _HELD.records)
+        finally:
+            _release(resource)
+        gc.collect()
     raise OpenFailed(reason)
 
 
-def _collect_leaked_sockets() -> None:
-    """pyvisa-py 0.8 leaves a failed HiSLIP/VXI-11 client's socket open: collect it now,
-    quietly, rather than letting its ResourceWarning surface at some later moment."""
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ResourceWarning)
-        gc.collect()
+def _release(resource: str) -> None:
+    """Stop holding records back; pass them to our logger at debug level."""
+    records, _HELD.records = _HELD.records, None
+    for record in records:
+        LOG.debug("pyvisa said while opening %s: %s", resource, record.getMessage(),
+                  exc_info=record.exc_info)
 
 
 class OpenFailed(Exception):
