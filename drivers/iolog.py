@@ -48,7 +48,7 @@ class IoLog:
         if block is not None:
             header, length, term = block
             detail = (f" {len(header) + length + len(term)} B block {header.decode('ascii')}"
-                      f" + {length} B binary + {term!r}")
+                      f" + {length} B binary + {repr(term)[1:]}")
         elif data is not None:
             detail = f" {len(data)} B {show(data)}"
         line = f"{time.monotonic() - self._origin:12.6f} {resource} {what}{detail}"
