@@ -261,7 +261,7 @@ def test_spool_is_private_and_bad_input_is_one_line(tmp_path: Path,
             assert not path.stat().st_mode & (stat.S_IWGRP | stat.S_IWOTH), path
     os.chmod(spool, 0o777)
     code, _, err = cli(capsys, "submit", str(plan), "--spool", str(spool))
-    assert code == 2 and "is writable by others; chmod 700 it" in err
+    assert code == 2 and "writable by group or others (mode 0777)" in err
     os.chmod(spool, 0o700)
     bad = tmp_path / "bad.yaml"
     bad.write_text(plan.read_text().replace("every: 0 s", "every: soon"))

@@ -21,6 +21,7 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
+from acquire.soak.ownership import OwnershipError
 from acquire.soak.progress import progress_line
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from acquire.soak.worker import SoakWorker, StopSignal
@@ -96,7 +97,12 @@ class Daemon:
             if job.id in self.running or job.id in self._settled:
                 continue
             try:
+                job.check_trusted()
                 state = job.read_state().get("state", "queued")
+            except OwnershipError as exc:
+                log.error("%s; the job is not run", exc)
+                self._settled.add(job.id)
+                continue
             except SpoolError as exc:
                 log.error("%s", exc)
                 continue

@@ -32,6 +32,7 @@ from acquire.journal import Journal, utc_text
 from acquire.measure import (
     Capture,
     Stored,
+    cal_dir_for,
     capture,
     journal_stored,
     plan_path,
@@ -50,6 +51,7 @@ from acquire.soak.drift import (
     reference_from_file,
 )
 from acquire.soak.link import Backoff, InstrumentLink, fault_kind
+from acquire.soak.ownership import check_job_paths
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job
 from acquire.soak.timeline import Clock, Timeline
@@ -140,6 +142,8 @@ class SoakWorker:
             plan = dataclasses.replace(plan, output=dataclasses.replace(
                 plan.output, name=plan.output.name + "-{index}"))
         self.plan = plan
+        check_job_paths(job.output_dir, job.data_dir, cal_dir_for(plan),
+                        self.spec.alarms.command)
         job.data_dir.mkdir(parents=True, exist_ok=True, mode=0o700)
         sweep_stale_temps(job.data_dir)
         self.journal = journal = Journal.in_folder(job.output_dir)
