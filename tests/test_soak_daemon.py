@@ -75,7 +75,8 @@ def test_submit_serve_status_report_from_other_shells(tmp_path: Path,
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out",
                          every="0.03 s", count=60,
                          soak={"alarms": {"resonance_shift": "1 MHz", "command":
-                                          f"{sys.executable} -c pass"}})
+                                          f"{sys.executable} -c pass"},
+                               "statistics": {"min_sweeps": 20, "min_span": "0.5 s"}})
         code, out, err = cli(capsys, "submit", str(plan), "--spool", str(spool))
         assert code == 0 and out.startswith("submitted soak-test-001: soak-test on TCPIP::")
         assert "no sweepd serve runs on spool" in err

@@ -9,20 +9,24 @@ the sweeps the journal holds.
 
 from __future__ import annotations
 
+import contextlib
 import html
 from collections import Counter
 from dataclasses import dataclass
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from acquire.soak import history
-from acquire.soak.allan import adev_curve
+from acquire.soak.alarms import LABELS
+from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import read_deviation
-from acquire.soak.report_plots import allan_plot, deviation_plot, drift_plot
+from acquire.soak.report_plots import Events, Panel, allan_plot, deviation_plot, drift_plot
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job, SpoolError
+from acquire.soak.statistics import allan_points, trend_per_hour
 from acquire.storage import replace_atomic
 from acquire.units import format_duration, format_frequency
 
@@ -63,7 +67,8 @@ def write_report(job: Job, folder: Path) -> Report:
     t_s = _times(ser, spec)
     title = f"soak {job.id}"
     pictures = {
-        "drift": _drift(folder, ser, spec, t_s, alarms, faults, title),
+        "drift": _drift(folder, ser, spec, t_s, alarms, faults, title,
+                        float(state.get("start_epoch") or 0.0)),
         "allan": _allan(folder, ser, spec, t_s, title),
     }
     if deviation is not None and deviation[1].size:
@@ -115,36 +120,66 @@ def _alarm_times(alarms: list[dict[str, Any]], ser: history.Series,
 
 
 def _drift(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
-           alarms: list[dict[str, Any]], faults: list[dict[str, Any]], title: str) -> Path:
+           alarms: list[dict[str, Any]], faults: list[dict[str, Any]], title: str,
+           start_epoch: float) -> Path:
     done = ser.done_mask()
     th = spec.alarms
-    panels: list[tuple[str, np.ndarray, float | None]] = []
+    panels: list[Panel] = []
     if spec.reflection:
         shift = np.where(done, ser.values("resonance_shift_hz"), np.nan)
-        panels.append(("resonance shift (kHz)", shift / 1e3,
-                       th.resonance_shift_hz / 1e3 if th.resonance_shift_hz else None))
-        panels.append(("worst in-band SWR", np.where(done, ser.values("worst_swr"), np.nan),
-                       th.worst_swr))
-    panels.append((f"max |change| |{spec.parameter}| (dB)",
-                   np.where(done, ser.values("max_db"), np.nan), th.deviation_db))
-    panels.append((f"max |change| phase {spec.parameter} (deg)",
-                   np.where(done, ser.values("max_deg"), np.nan), th.deviation_deg))
+        panels.append(Panel("resonance shift (kHz)", shift / 1e3,
+                            th.resonance_shift_hz / 1e3 if th.resonance_shift_hz else None,
+                            signed=True))
+        panels.append(Panel("worst in-band SWR", np.where(done, ser.values("worst_swr"),
+                                                          np.nan), th.worst_swr))
+    panels.append(Panel(f"max |change| |{spec.parameter}| (dB)",
+                        np.where(done, ser.values("max_db"), np.nan), th.deviation_db))
+    panels.append(Panel(f"max |change| phase {spec.parameter} (deg)",
+                        np.where(done, ser.values("max_deg"), np.nan), th.deviation_deg))
     where = {int(s): float(t) for s, t in zip(ser.seq, t_s, strict=True)}
-    fault_t = np.array([where[f["seq"]] for f in faults if f["seq"] in where], dtype=float)
+
+    def times(rows: list[dict[str, Any]]) -> np.ndarray:
+        """Where each event sits: at its sweep, else at its journalled time."""
+        found = []
+        for row in rows:
+            if row.get("seq") in where:
+                found.append(where[row["seq"]])
+            elif start_epoch and row.get("time_utc"):
+                with contextlib.suppress(ValueError):
+                    found.append(_epoch(row["time_utc"]) - start_epoch)
+        return np.array(found, dtype=float)
+
     missed = t_s[np.array([s == "missed" for s in ser.state], dtype=bool)] \
         if ser.seq.size else np.array([])
-    return drift_plot(folder / "drift.png", panels, t_s, _alarm_times(alarms, ser, t_s),
-                      fault_t, missed, f"{title}: drift from the reference")
+    events = Events(
+        alarms=[(t, LABELS.get(m, m)) for t, m in _alarm_times(alarms, ser, t_s)],
+        faults=times([f for f in faults if f.get("kind") != "restart"]),
+        restarts=times([f for f in faults if f.get("kind") == "restart"]),
+        missed=missed)
+    return drift_plot(folder / "drift.png", panels, t_s, events,
+                      f"{title}: drift from the reference")
 
 
 def _allan(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
            title: str) -> Path:
     points: list[dict[str, Any]] = []
-    tau0 = _tau0(spec, ser, t_s)
-    if spec.reflection and ser.seq.size and tau0 > 0:
-        points = [p.to_dict() for p in adev_curve(_resonance_by_index(ser), tau0)]
+    note = "the soak tracks a transmission: no resonance"
+    if spec.reflection:
+        found = _allan_points(ser, spec, t_s)
+        if isinstance(found, str):
+            note = found
+        else:
+            points = [p.to_dict() for p in found]
     return allan_plot(folder / "allan.png", points, spec.alarms.resonance_adev_hz,
-                      f"{title}: stability of the resonance")
+                      f"{title}: stability of the resonance", note)
+
+
+def _allan_points(ser: history.Series, spec: SoakSpec,
+                  t_s: np.ndarray) -> list[AllanPoint] | str:
+    y = _resonance_by_index(ser)
+    times = np.full(y.size, np.nan)
+    times[ser.seq] = np.where(ser.done_mask(), t_s, np.nan)
+    return allan_points(y, times, _tau0(spec, ser, t_s), spec.minimums)
 
 
 def _deviation(folder: Path, deviation: tuple[np.ndarray, ...], spec: SoakSpec,
@@ -215,10 +250,9 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
             lines.append(f"resonance: reference {format_frequency(ref)}, last shift "
                          f"{_signed(shift[ok][-1])}, largest {_signed(shift[i])} at sweep "
                          f"{ser.seq[i]}")
-            if ok.sum() >= 3 and np.ptp(t_s[ok]) > 0:
-                slope = np.polyfit(t_s[ok], shift[ok], 1)[0]  # least squares, Hz/s
-                lines.append(f"resonance trend (least-squares line): {_signed(slope * 3600)}"
-                             "/h")
+            trend = trend_per_hour(t_s, np.where(ok, shift, np.nan), spec.minimums)
+            lines.append("resonance trend (least-squares line): " + (
+                trend if isinstance(trend, str) else f"{_signed(trend)}/h"))
         swr = np.where(done, ser.values("worst_swr"), np.nan)
         rise = np.where(done, ser.values("worst_swr_rise"), np.nan)
         if np.isfinite(swr).any():
@@ -226,13 +260,10 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
             ref = swr[np.isfinite(swr)][0] - rise[np.isfinite(swr)][0]
             lines.append(f"worst in-band SWR: reference {ref:.4f}, largest {swr[i]:.4f} at "
                          f"sweep {ser.seq[i]}")
-        tau0 = _tau0(spec, ser, t_s)
-        if tau0 > 0:
-            curve = adev_curve(_resonance_by_index(ser), tau0)
-            if curve:
-                shown = "; ".join(f"tau {format_duration(p.tau_s)}: {format_frequency(p.adev)}"
-                                  for p in curve[:6])
-                lines.append(f"Allan deviation of the resonance: {shown}")
+        curve = _allan_points(ser, spec, t_s)
+        shown = curve if isinstance(curve, str) else "; ".join(
+            f"tau {format_duration(p.tau_s)}: {format_frequency(p.adev)}" for p in curve[:6])
+        lines.append(f"Allan deviation of the resonance: {shown}")
     if deviation is not None and deviation[1].size:
         freq, _seq, db, _deg = deviation
         env = np.abs(db).max(axis=0)
@@ -240,6 +271,10 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
         lines.append(f"largest change of |{spec.parameter}| at any frequency: "
                      f"{env[i]:.4g} dB at {format_frequency(freq[i])}")
     return lines
+
+
+def _epoch(utc: str) -> float:
+    return datetime.fromisoformat(utc.replace("Z", "+00:00")).timestamp()
 
 
 def _signed(hz: float) -> str:

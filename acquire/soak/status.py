@@ -69,7 +69,8 @@ def job_view(job: Job, *, daemon_running: bool) -> dict[str, Any]:
         "next_sweep": live.get("next_sweep") if name in ("running", "held") else None,
         "eta_utc": live.get("eta_utc") if name in ACTIVE_STATES else None,
         "drift": live.get("drift") or {"reference": None, "parameter": None, "latest": None,
-                                       "worst": {}, "allan_resonance": []},
+                                       "worst": {}, "allan_resonance": [],
+                                       "statistics": "not enough data (not started)"},
         "alarms": {"count": 0, "active": [], "last": None, **(live.get("alarms") or {})},
         "files": live.get("files") or {"data_dir": str(job.data_dir),
                                        "journal": str(job.output_dir / "journal.sqlite")},
@@ -169,7 +170,10 @@ def _details(job: dict[str, Any]) -> list[str]:
         last = alarms.get("last") or {}
         active = ", ".join(alarms.get("active") or []) or "none active"
         out.append(f"    alarms {alarms['count']} ({active}); last: {last.get('message', '-')}")
-    allan = (job.get("drift") or {}).get("allan_resonance") or []
+    drift = job.get("drift") or {}
+    allan = drift.get("allan_resonance") or []
+    if not allan and drift.get("statistics") not in (None, "ready"):
+        out.append(f"    statistics: {drift['statistics']}")
     if allan:
         from acquire.units import format_duration, format_frequency
 

@@ -41,7 +41,7 @@ from acquire.measure import (
 )
 from acquire.soak import history
 from acquire.soak.alarms import AlarmBook
-from acquire.soak.allan import AllanPoint, adev_curve
+from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import DeviationFile
 from acquire.soak.drift import (
     Reference,
@@ -54,6 +54,7 @@ from acquire.soak.link import Backoff, InstrumentLink, fault_kind
 from acquire.soak.ownership import check_job_paths
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job
+from acquire.soak.statistics import allan_points
 from acquire.soak.timeline import Clock, Timeline
 from acquire.storage import sweep_stale_temps
 from drivers.errors import InstrumentError, ScpiErrorQueue, SweepdError
@@ -110,6 +111,7 @@ class SoakWorker:
         self.alarm_count = 0
         self.last_alarm: dict[str, Any] | None = None
         self.allan: list[AllanPoint] = []
+        self.stats_note: str | None = "not enough data (no sweep yet)"
         self.state = "running"
         self.reason: str | None = None
         self.next_index = 0
@@ -639,10 +641,10 @@ class SoakWorker:
         if not force and now - self._allan_at < ALLAN_EVERY_S:
             return
         self._allan_at = now
-        y = self._resonance[: self.next_index + 1]
-        if np.count_nonzero(np.isfinite(y)) < 2:
-            return
-        self.allan = adev_curve(y, self._tau0())
+        n = self.next_index + 1
+        found = allan_points(self._resonance[:n], self._t_s[:n], self._tau0(),
+                             self.spec.minimums)
+        self.allan, self.stats_note = ([], found) if isinstance(found, str) else (found, None)
         watched = self.spec.alarms.resonance_adev_hz
         if watched is not None and self.allan:
             worst = max(p.adev for p in self.allan)
@@ -708,6 +710,7 @@ class SoakWorker:
                 "latest": self.latest.to_dict() if self.latest else None,
                 "worst": dict(self.worst),
                 "allan_resonance": [p.to_dict() for p in self.allan],
+                "statistics": self.stats_note or "ready",
             },
             "alarms": {"count": self.alarm_count, "active": sorted(self.alarms.active),
                        "last": self.last_alarm},
