@@ -126,6 +126,9 @@ class Series:
     touchstone: list[str | None]
     note: list[str | None]
     soak: list[dict[str, Any] | None]
+    cal_id: list[str | None] = field(default_factory=list)
+    cal_age_s: list[float | None] = field(default_factory=list)
+    instrument: list[str | None] = field(default_factory=list)
 
     def values(self, key: str) -> np.ndarray:
         """One soak metric per sweep (nan where absent)."""
@@ -136,8 +139,9 @@ class Series:
 
 
 def series(query: Query, run_id: int) -> Series:
-    rows = query("SELECT seq, state, verdict, touchstone, note, metrics_json FROM measurements "
-                 "WHERE run_id = ? ORDER BY seq", (run_id,))
+    rows = query("SELECT seq, state, verdict, touchstone, note, metrics_json, cal_id, "
+                 "cal_age_s, instrument FROM measurements WHERE run_id = ? ORDER BY seq",
+                 (run_id,))
     soak, t_s = [], []
     for row in rows:
         metrics = json.loads(row["metrics_json"]) if row["metrics_json"] else None
@@ -152,6 +156,9 @@ def series(query: Query, run_id: int) -> Series:
         touchstone=[row["touchstone"] for row in rows],
         note=[row["note"] for row in rows],
         soak=soak,
+        cal_id=[row["cal_id"] for row in rows],
+        cal_age_s=[row["cal_age_s"] for row in rows],
+        instrument=[row["instrument"] for row in rows],
     )
 
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import html
+import os
 from collections import Counter
 from dataclasses import dataclass
 from datetime import datetime
@@ -24,6 +25,7 @@ from acquire.soak.alarms import LABELS
 from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import read_deviation
 from acquire.soak.report_plots import Events, Panel, allan_plot, deviation_plot, drift_plot
+from acquire.soak.sentences import FAULT_WORDS, fault_sentence
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job, SpoolError
 from acquire.soak.statistics import allan_points, trend_per_hour
@@ -76,7 +78,7 @@ def write_report(job: Job, folder: Path) -> Report:
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
     text = _text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
-    page = replace_atomic(folder / "summary.html", _html(facts, pictures))
+    page = replace_atomic(folder / "summary.html", _html(facts, pictures, folder))
     return Report(folder, text, page, pictures)
 
 
@@ -217,14 +219,58 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
                    f"{states.get('pending', 0)} pending"),
         "verdicts": ", ".join(f"{n} {v}" for v, n in sorted(verdicts.items())) or "no checks",
         "drift": _drift_lines(spec, ser, t_s, done, deviation),
-        "alarms": [f"{a['time_utc']} sweep {a['seq']}: {a['message']}" for a in alarms],
-        "faults_by_kind": ", ".join(f"{k} {n}" for k, n in
+        "alarms": [f"{a['time_utc'][11:19]} UTC, sweep {a['seq']}: {a['message']}"
+                   for a in alarms],
+        "faults_by_kind": ", ".join(f"{FAULT_WORDS.get(k, k)}: {n}" for k, n in
                                     Counter(f["kind"] for f in faults).most_common()),
-        "faults": [f"{f['time_utc']} sweep {f['seq'] if f['seq'] is not None else '-'} "
-                   f"{f['kind']}: {f['message']} -> {f['action']}" for f in faults],
+        "faults": [fault_sentence(f) for f in faults],
         "data_dir": str(job.data_dir),
+        "instrument": _instruments(ser, run, job.resource),
+        "calibration": _calibrations(ser, plan),
+        "kept": [(int(q), Path(p)) for q, p, st in zip(ser.seq, ser.touchstone, ser.state,
+                                                       strict=True) if p and st == "stored"],
     }
     return facts
+
+
+def _instruments(ser: history.Series, run: dict[str, Any], resource: str) -> list[str]:
+    """Each instrument identity the sweeps were taken with, and over which sweeps."""
+    spans: list[list[Any]] = []  # [identity, first seq, last seq]
+    for seq, who in zip(ser.seq, ser.instrument, strict=True):
+        if not who:
+            continue
+        if spans and spans[-1][0] == who:
+            spans[-1][2] = int(seq)
+        else:
+            spans.append([who, int(seq), int(seq)])
+    if not spans:
+        who = run.get("instrument")
+        return [f"{who} at {resource}" if who else f"at {resource} (identity not recorded)"]
+    return [f"{who} at {resource}, sweeps {a}..{b}" for who, a, b in spans]
+
+
+def _calibrations(ser: history.Series, plan: Any) -> list[str]:
+    """Each calibration used: its id, method, when made and its age while in use."""
+    from acquire.calibration.calset import SUFFIX, read_header
+    from acquire.measure import cal_dir_for
+
+    ages: dict[str, list[float]] = {}
+    for cal_id, age in zip(ser.cal_id, ser.cal_age_s, strict=True):
+        if cal_id:
+            ages.setdefault(cal_id, []).extend([float(age)] if age is not None else [])
+    if not ages:
+        return ["none: the sweeps are uncorrected (raw instrument data)"]
+    lines = []
+    for cal_id, seen in ages.items():
+        detail = ""
+        with contextlib.suppress(Exception):  # a missing or unreadable file: id and age only
+            header = read_header(cal_dir_for(plan) / f"{cal_id}{SUFFIX}")
+            detail = (f", method {header.get('method', 'unknown')}, made "
+                      f"{header.get('created_utc', 'at an unknown time')}")
+        age = (f", {format_duration(min(seen))} old at the first sweep and "
+               f"{format_duration(max(seen))} at the last" if seen else "")
+        lines.append(f"{cal_id}{detail}{age}")
+    return lines
 
 
 def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.ndarray,
@@ -282,46 +328,71 @@ def _signed(hz: float) -> str:
 
 
 def _text(f: dict[str, Any]) -> str:
+    kept = f["kept"]
     lines = [
-        f"Soak report {f['job']}: plan {f['plan']} on {f['resource']}",
-        f"state: {f['state']} (journal {f['run']}: {f['run_state']})",
-        f"started {f['started']}, ended {f['ended'] or 'not yet'}",
-        f"schedule: {f['schedule']}",
-        f"sweeps: {f['sweeps']}",
-        f"verdicts: {f['verdicts']}",
-        "drift from the reference:",
+        f"Soak report {f['job']}: plan {f['plan']}",
+        "",
+        "Instrument:", *(f"  {line}" for line in f["instrument"]),
+        "Calibration:", *(f"  {line}" for line in f["calibration"]),
+        f"State: {f['state']} (journal {f['run']}: {f['run_state']})",
+        f"Started {f['started']}, ended {f['ended'] or 'not yet'}",
+        f"Schedule: {f['schedule']}",
+        f"Sweeps: {f['sweeps']}",
+        f"Verdicts: {f['verdicts']}",
+        "",
+        "Drift from the reference:",
         *(f"  {line}" for line in f["drift"]),
-        f"alarms: {len(f['alarms'])}",
+        f"Alarms: {len(f['alarms'])}",
         *(f"  {line}" for line in f["alarms"][-20:]),
-        f"faults: {len(f['faults'])}" + (f" ({f['faults_by_kind']})" if f["faults"] else ""),
+        f"Faults: {len(f['faults'])}" + (f" ({f['faults_by_kind']})" if f["faults"] else ""),
         *(f"  {line}" for line in f["faults"][-20:]),
-        f"files: {f['data_dir']}",
+        f"Files kept: {len(kept)} Touchstone file(s) in {f['data_dir']}",
+        *(f"  sweep {seq}: {path.name}" for seq, path in kept[:5]),
+        *(["  ..."] if len(kept) > 10 else []),
+        *(f"  sweep {seq}: {path.name}" for seq, path in kept[max(5, len(kept) - 5):]),
     ]
     return "\n".join(lines)
 
 
-def _html(f: dict[str, Any], pictures: dict[str, Path]) -> str:
+def _link(path: Path, folder: Path) -> str:
+    """A link to a kept file that works from the report folder when both are moved
+    together (relative), else an absolute file URL."""
+    try:
+        return Path(os.path.relpath(path, folder)).as_posix()
+    except ValueError:
+        return path.resolve().as_uri()
+
+
+def _html(f: dict[str, Any], pictures: dict[str, Path], folder: Path) -> str:
     e = html.escape
     rows = "".join(f"<tr><th>{e(k)}</th><td>{e(str(v))}</td></tr>" for k, v in (
-        ("plan", f["plan"]), ("instrument", f["resource"]), ("state", f["state"]),
-        ("started", f["started"]), ("ended", f["ended"] or "not yet"),
-        ("schedule", f["schedule"]), ("sweeps", f["sweeps"]), ("verdicts", f["verdicts"]),
-        ("journal", f["run"]), ("files", f["data_dir"])))
+        ("Plan", f["plan"]), ("Instrument", "; ".join(f["instrument"])),
+        ("Calibration", "; ".join(f["calibration"])), ("State", f["state"]),
+        ("Started", f["started"]), ("Ended", f["ended"] or "not yet"),
+        ("Schedule", f["schedule"]), ("Sweeps", f["sweeps"]), ("Verdicts", f["verdicts"]),
+        ("Journal", f["run"]), ("Data folder", f["data_dir"])))
 
     def items(lines: list[str]) -> str:
         return "<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>" if lines \
             else "<p>none</p>"
 
-    images = "".join(f'<h2>{e(name)}</h2><img src="{e(path.name)}" alt="{e(name)}">'
+    kept = "".join(f'<li>sweep {seq}: <a href="{e(_link(path, folder))}">{e(path.name)}</a>'
+                   "</li>" for seq, path in f["kept"])
+    headings = {"drift": "Drift against time", "allan": "Stability of the resonance "
+                "(Allan deviation)", "deviation": "Change from the reference by frequency"}
+    images = "".join(f'<h2>{e(headings.get(name, name))}</h2>'
+                     f'<img src="{e(path.name)}" alt="{e(headings.get(name, name))}">'
                      for name, path in pictures.items())
     return (
         "<!DOCTYPE html>\n<html><head><meta charset=\"utf-8\">"
-        f"<title>soak {e(f['job'])}</title><style>body{{font-family:sans-serif;"
-        "max-width:1100px;margin:1em auto}th{text-align:left;padding-right:1em}"
-        "img{max-width:100%}</style></head><body>"
+        f"<title>Soak report {e(f['job'])}</title><style>body{{font-family:sans-serif;"
+        "max-width:1100px;margin:1em auto}th{text-align:left;padding-right:1em;"
+        "vertical-align:top}img{max-width:100%}</style></head><body>"
         f"<h1>Soak report {e(f['job'])}</h1><table>{rows}</table>"
         f"<h2>Drift from the reference</h2>{items(f['drift'])}"
         f"<h2>Alarms ({len(f['alarms'])})</h2>{items(f['alarms'])}"
         f"<h2>Faults ({len(f['faults'])})</h2>{items(f['faults'][-200:])}"
-        f"{images}</body></html>\n"
+        f"{images}"
+        f"<h2>Touchstone files kept ({len(f['kept'])})</h2>"
+        f"{'<ul>' + kept + '</ul>' if kept else '<p>none</p>'}</body></html>\n"
     )

@@ -163,7 +163,8 @@ def allan_plot(path: Path, points: list[dict[str, Any]], threshold_hz: float | N
     ax.grid(True, which="both", color=GRID, linewidth=0.5)
     ax.set_xlabel("averaging time tau (s)")
     ax.set_ylabel("Allan deviation of the resonance (Hz)")
-    ax.legend(fontsize=8, loc="best")
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=8, loc="best")
     fig.suptitle(title, fontsize=12, fontweight="bold")
     return _save(fig, path)
 
