@@ -290,13 +290,20 @@ def _render(value: Any, out: list[str], budget: list[int], depth: int) -> None:
         piece = repr(value[: budget[0] + 1])
     elif isinstance(value, int) and not isinstance(value, bool) \
             and value.bit_length() > _BIG_INT_BITS:
-        piece = f"an integer of about {int(value.bit_length() * math.log10(2)) + 1} digits"
+        piece = f"an integer of {_digits(value)} digits"
     elif value is None or isinstance(value, (bool, int, float)):
         piece = repr(value)
     else:
         piece = f"a {type(value).__name__}"
     out.append(piece)
     budget[0] -= len(piece)
+
+
+def _digits(value: int) -> int:
+    """Decimal digits of a large ``value`` without ``str()`` (quadratic, and capped)."""
+    size = abs(value)
+    digits = int(size.bit_length() * math.log10(2))  # within one of the answer
+    return digits + 1 if size >= 10**digits else digits
 
 
 def _render_container(value: Any, out: list[str], budget: list[int], depth: int) -> None:
