@@ -20,6 +20,7 @@ else ``pass``; ``none`` when there were no checks. Exit codes: 0 pass/none, 1 fa
 from __future__ import annotations
 
 import json
+import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -29,7 +30,7 @@ from acquire.errors import ConfigError
 from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask, load_mask
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
-from acquire.yamlfile import Node
+from acquire.yamlfile import Node, show
 from drivers.errors import SweepdError
 
 VERDICT_FORMAT = "sweepd-verdict"
@@ -157,7 +158,7 @@ class BandwidthCheck(Check):
                 self, f"the band reaches the sweep edge after {format_frequency(bw.width_hz)}; "
                 f"widen the sweep to measure {format_frequency(self.at_least_hz)}",
             )
-        verdict = "pass" if margin >= 0 else "fail"
+        verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
         return CheckResult(
             self.kind, self.name, verdict,
@@ -208,7 +209,7 @@ class ResonanceCheck(Check):
                                f"{self.name} fail: the reactance never crosses zero", details)
         margin = min(res.freq_hz - self.lo_hz, self.hi_hz - res.freq_hz)
         details["margin_hz"] = margin
-        verdict = "pass" if margin >= 0 and not res.at_edge else "fail"
+        verdict = _judged(self, margin, inside=not res.at_edge)
         where = " (minimum at the sweep edge: no resonance inside)" if res.at_edge else ""
         return CheckResult(
             self.kind, self.name, verdict,
@@ -281,6 +282,27 @@ def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
 
 class CheckError(SweepdError):
     """A check cannot judge this sweep."""
+
+
+def _judged(check: Check, margin: float, *, inside: bool = True) -> str:
+    """"pass" or "fail" from a margin; a non-finite margin is an error, never a verdict."""
+    if not math.isfinite(margin):
+        raise _check_error(check, f"margin is {margin}; a verdict needs finite numbers")
+    return "pass" if margin >= 0 and inside else "fail"
+
+
+def _unfinished_margin(details: Any) -> bool:
+    """True if any ``margin*`` value in ``details`` (at any depth) is not a finite number."""
+    if isinstance(details, dict):
+        for key, value in details.items():
+            if str(key).startswith("margin") and isinstance(value, float) \
+                    and not math.isfinite(value):
+                return True
+            if _unfinished_margin(value):
+                return True
+    elif isinstance(details, list):
+        return any(_unfinished_margin(item) for item in details)
+    return False
 
 
 def _check_error(check: Check, message: str) -> CheckError:
@@ -422,7 +444,10 @@ def evaluate_checks(
     results = []
     for check in checks:
         try:
-            results.append(check.evaluate(sweep))
+            result = check.evaluate(sweep)
+            if result.verdict != "error" and _unfinished_margin(result.details):
+                raise _check_error(check, "a margin is not a finite number; no verdict")
+            results.append(result)
         except SweepdError as exc:
             text = str(exc)
             rest = text.removeprefix(f"{check.name}: ")
@@ -562,7 +587,7 @@ def _reflection(node: Node) -> str:
     text = node.text("S11").strip().upper()
     if len(text) != 3 or text[0] != "S" or not text[1:].isdigit() or text[1] != text[2] \
             or text[1] == "0":
-        node.fail(f"must be a reflection parameter such as S11 or S22, got {node.value!r}")
+        node.fail(f"must be a reflection parameter such as S11 or S22, got {show(node.value)}")
     return text
 
 

@@ -16,7 +16,7 @@ from typing import Any
 
 from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
-from acquire.yamlfile import Node, load_yaml
+from acquire.yamlfile import Node, load_yaml, show
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
@@ -237,8 +237,8 @@ def _output(node: Node, plan_name: str) -> OutputSpec:
     elif precision_node.present:
         precision = 17
     version = ts["version"].value if ts["version"].present else "1.1"
-    if str(version) not in ("1.1", "2.0", "2"):
-        ts["version"].fail(f"must be 1.1 or 2.0, got {version!r}")
+    if isinstance(version, bool) or version not in ("1.1", "2.0", "2", 1.1, 2.0):
+        ts["version"].fail(f"must be 1.1 or 2.0, got {show(version)}")
     return OutputSpec(
         dir=out_dir,
         name=name,
