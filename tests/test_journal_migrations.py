@@ -92,7 +92,7 @@ def test_version_1_rows_settled_as_missed_after_a_crash_become_interrupted(old: 
 
 
 def test_a_failing_migration_leaves_the_file_as_it_was(old: Path, monkeypatch) -> None:
-    import acquire.journal.sqlite as backend
+    import acquire.journal.sqlite_file as backend
     from acquire.errors import JournalError
 
     monkeypatch.setattr(backend, "MIGRATIONS", {**MIGRATIONS,
