@@ -17,7 +17,7 @@ import pytest
 from test_station_support import GOLDEN, write_plan
 
 from acquire.errors import PlanError
-from acquire.journal import Journal, utc_text
+from acquire.journal import StoredFields, journal_in, utc_text
 from acquire.plan import load_plan
 from acquire.station.config import SerialRule, Tolerance, station_config
 from acquire.station.counters import count_yield
@@ -237,7 +237,7 @@ def test_line_state_from_the_journal(tmp_path: Path) -> None:
     from acquire.station.config import GoldenSpec
 
     golden = GoldenSpec("GOLDEN", GOLDEN, every_units=2, every_s=3600.0)
-    with Journal.in_folder(tmp_path) as j:
+    with journal_in(tmp_path) as j:
         run = j.start_run("station", "patch-station")
         state = line_state(j, "patch-station", golden)
         assert state.due and "no golden check on record" in state.due_reason
@@ -245,7 +245,8 @@ def test_line_state_from_the_journal(tmp_path: Path) -> None:
         assert not line_state(j, "patch-station", golden).due
         for seq in range(2):
             p = j.plan_measurement(run, seq, tmp_path / f"u{seq}.s1p", serial=f"PA-{seq}")
-            j.store_measurement(p, touchstone=p.touchstone, summary=None, verdict="pass")
+            j.store_measurement(p, touchstone=p.touchstone, summary=None, raw_touchstone=None,
+                                fields=StoredFields(verdict="pass"))
         state = line_state(j, "patch-station", golden)
         assert state.due and state.units_since == 2 and "2 units since" in state.due_reason
         later = datetime.now(timezone.utc) + timedelta(hours=2)

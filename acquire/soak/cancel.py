@@ -5,7 +5,7 @@ from __future__ import annotations
 import getpass
 import os
 
-from acquire.journal import Journal, utc_text
+from acquire.journal import JOURNAL_NAME, journal_in, utc_text
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool
 
 
@@ -28,8 +28,8 @@ def cancel_without_daemon(spool: Spool, job: Job) -> bool:
             return True
         reason = f"cancelled by {who()} while sweepd serve was not running"
         run_id = state.get("run_id")
-        if run_id and (job.output_dir / "journal.sqlite").is_file():
-            with Journal.in_folder(job.output_dir) as journal:
+        if run_id and (job.output_dir / JOURNAL_NAME).is_file():
+            with journal_in(job.output_dir) as journal:
                 journal.reconcile(run_id=int(run_id))
                 journal.record_fault(int(run_id), "cancel", reason, action="job stopped")
                 journal.end_run(int(run_id), "stopped", note=reason)

@@ -20,6 +20,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
 from acquire.soak.alarms import LABELS
 from acquire.soak.allan import AllanPoint
@@ -50,19 +51,14 @@ def write_report(job: Job, folder: Path) -> Report:
     if run_id is None:
         raise SpoolError(f"job {job.id}: never ran (state {state.get('state')}); "
                          "nothing to report yet")
-    query, close = history.open_for_job(job.output_dir)
-    try:
-        rows = query("SELECT * FROM runs WHERE id = ?", (int(run_id),))
-        if not rows:
-            raise SpoolError(f"job {job.id}: run {run_id} is not in "
-                             f"{job.output_dir / 'journal.sqlite'}")
-        run = dict(rows[0])
+    with history.open_for_job(job.output_dir) as journal:
+        run = journal.run(int(run_id))
+        if run is None:
+            raise SpoolError(f"job {job.id}: run {run_id} is not in {journal.where}")
         run_id = int(run["id"])
-        ser = history.series(query, run_id)
-        faults = history.faults(query, run_id)
-        alarms = history.alarms(query, run_id)
-    finally:
-        close()
+        ser = history.series(journal, run_id)
+        faults = history.faults(journal, run_id)
+        alarms = history.alarms(journal, run_id)
     folder.mkdir(parents=True, exist_ok=True)
     done = ser.done_mask()
     deviation = read_deviation(job.data_dir, set(ser.seq[done].tolist()))
@@ -209,7 +205,7 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
               else "until cancelled")
     facts: dict[str, Any] = {
         "job": job.id, "plan": plan.name, "resource": job.resource,
-        "run": f"run {run['id']} in {job.output_dir / 'journal.sqlite'}",
+        "run": f"run {run['id']} in {job.output_dir / JOURNAL_NAME}",
         "started": run.get("started_utc"), "ended": run.get("ended_utc"),
         "state": job.read_state().get("state"), "run_state": run.get("state"),
         "schedule": f"{every}, {extent}" + (f" ({sched.total()} planned)" if sched.total()

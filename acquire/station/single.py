@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from acquire.journal import Journal
+from acquire.journal import journal_in
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
@@ -81,7 +81,7 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         reference = load_reference(golden, plan)
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with Journal.in_folder(out_dir) as journal:
+    with journal_in(out_dir) as journal:
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
                                    station=station_id or None, resource=resource)
         try:
@@ -109,7 +109,7 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
             journal.end_run(run_id, "stopped", note="interrupted")
             raise
         journal.end_run(run_id)
-        return Outcome(result, journal.path, run_id, resource)
+        return Outcome(result, Path(journal.where), run_id, resource)
 
 
 def golden_command(plan: Plan, request: Request) -> str:
