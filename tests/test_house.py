@@ -57,3 +57,138 @@ def test_package_data_globs_ship_every_file_in_configs():
     wanted = {p for p in folder.rglob("*") if p.is_file()
               and p.suffix not in {".py", ".pyc"} and "results" not in p.parts}
     assert wanted - shipped == set(), "pyproject package-data misses these files"
+
+
+# -- the import graph ----------------------------------------------------------------------
+
+# Cycles that are being broken elsewhere, each with the issue point that removes it. The
+# list only shrinks: an entry that is no longer a cycle fails the test until removed.
+KNOWN_CYCLES: dict[frozenset[str], str] = {
+    frozenset({"drivers.dialect", "drivers.dialect_parse"}): "12.5 (dialects engineer)",
+}
+
+# Which top-level rooms each may import (DEVELOPERS.md, "Map of the house").
+# The longest matching prefix rules: only the front doors to the simulator (the demo and
+# the sim and fixture commands) may reach it from acquire.
+MAY_IMPORT = {
+    "acquire": {"acquire", "drivers", "sweepd_configs"},
+    "acquire.commands": {"acquire", "drivers", "simulators", "sweepd_configs"},
+    "acquire.demo": {"acquire", "drivers", "simulators", "sweepd_configs"},
+    "drivers": {"drivers", "sweepd_configs"},
+    "simulators": {"simulators", "sweepd_configs"},
+    "sweepd_configs": {"sweepd_configs"},
+}
+SOURCE_ROOTS = {"acquire": "acquire", "drivers": "drivers", "simulators": "simulators",
+                "sweepd_configs": "configs"}
+
+
+def _module_files() -> dict[str, Path]:
+    mods = {}
+    for name, folder in SOURCE_ROOTS.items():
+        for path in (ROOT / folder).rglob("*.py"):
+            parts = [name, *path.relative_to(ROOT / folder).with_suffix("").parts]
+            if parts[-1] == "__init__":
+                parts.pop()
+            mods[".".join(parts)] = path
+    return mods
+
+
+def _imported(module: str, node: ast.Import | ast.ImportFrom, is_package: bool,
+              mods: dict[str, Path]) -> list[str]:
+    """The project modules one import statement loads (at module or function level).
+
+    ``from pkg import sub`` counts as importing ``pkg.sub``, not ``pkg``: every submodule
+    loads its package first, so that edge is no cycle of ours."""
+    if isinstance(node, ast.Import):
+        names = [alias.name for alias in node.names]
+    else:
+        base = node.module or ""
+        if node.level:
+            parts = module.split(".")[: len(module.split(".")) - (0 if is_package else 1)]
+            parts = parts[: len(parts) - (node.level - 1)]
+            base = ".".join([*parts, base] if base else parts)
+        names = [f"{base}.{a.name}" if f"{base}.{a.name}" in mods else base for a in node.names]
+    found = []
+    for name in names:
+        while name and name not in mods:
+            name = name.rpartition(".")[0]
+        if name and name != module:
+            found.append(name)
+    return found
+
+
+def _import_graph() -> dict[str, set[str]]:
+    mods = _module_files()
+    graph: dict[str, set[str]] = {m: set() for m in mods}
+    for module, path in mods.items():
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, (ast.Import, ast.ImportFrom)):
+                graph[module].update(
+                    _imported(module, node, path.name == "__init__.py", mods))
+    return graph
+
+
+def _cycles(graph: dict[str, set[str]]) -> list[frozenset[str]]:
+    """Strongly connected components with more than one module (Tarjan, iterative)."""
+    index: dict[str, int] = {}
+    low: dict[str, int] = {}
+    stack: list[str] = []
+    on_stack: set[str] = set()
+    found: list[frozenset[str]] = []
+    for root in graph:
+        if root in index:
+            continue
+        work = [(root, iter(sorted(graph[root])))]
+        index[root] = low[root] = len(index)
+        stack.append(root)
+        on_stack.add(root)
+        while work:
+            node, children = work[-1]
+            child = next(children, None)
+            if child is not None:
+                if child not in index:
+                    index[child] = low[child] = len(index)
+                    stack.append(child)
+                    on_stack.add(child)
+                    work.append((child, iter(sorted(graph[child]))))
+                elif child in on_stack:
+                    low[node] = min(low[node], index[child])
+                continue
+            work.pop()
+            if work:
+                low[work[-1][0]] = min(low[work[-1][0]], low[node])
+            if low[node] == index[node]:
+                component = set()
+                while True:
+                    member = stack.pop()
+                    on_stack.discard(member)
+                    component.add(member)
+                    if member == node:
+                        break
+                if len(component) > 1:
+                    found.append(frozenset(component))
+    return found
+
+
+def test_cycle_finder_finds_a_cycle_and_ignores_a_chain():
+    assert _cycles({"a": {"b"}, "b": {"c"}, "c": {"a"}, "d": {"a"}}) == [
+        frozenset({"a", "b", "c"})]
+    assert _cycles({"a": {"b"}, "b": {"c"}, "c": set()}) == []
+
+
+def test_no_import_cycles_in_acquire_drivers_simulators():
+    cycles = set(_cycles(_import_graph()))
+    new = [sorted(c) for c in cycles - KNOWN_CYCLES.keys()]
+    assert not new, f"import cycles (function-level imports count too): {new}"
+    stale = [sorted(c) for c in KNOWN_CYCLES.keys() - cycles]
+    assert not stale, f"no longer cycles: remove them from KNOWN_CYCLES: {stale}"
+
+
+def test_imports_point_one_way_between_rooms():
+    wrong = []
+    for module, targets in _import_graph().items():
+        room = max((r for r in MAY_IMPORT if module == r or module.startswith(r + ".")),
+                   key=len)
+        wrong += [f"{module} -> {t}" for t in sorted(targets)
+                  if t.split(".")[0] not in MAY_IMPORT[room]]
+    assert not wrong, f"imports against the map of the house: {wrong}"
