@@ -309,7 +309,7 @@ def _calibration(node: Node) -> CalibrationSpec | None:
 def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
     checks: tuple[Any, ...] = ()
     if node.present and node.value is not None:
-        from acquire.checks import parse_checks
+        from acquire.check_parse import parse_checks
 
         checks = tuple(parse_checks(node))
     if dtf.present:  # distance-to-fault settings: defaults for the distance checks

@@ -13,8 +13,9 @@ from pathlib import Path
 
 from drivers.errors import DialectError
 from drivers.templates import Template
+from sweepd_configs import shipped_dir
 
-DIALECT_DIR = Path(__file__).resolve().parents[1] / "configs" / "dialects"
+DIALECT_DIR = shipped_dir("dialects")
 
 SETTING_NAMES: tuple[str, ...] = ("start", "stop", "points", "power", "if_bandwidth", "averaging")
 REQUIRED_SETTINGS: tuple[str, ...] = ("start", "stop", "points", "power", "if_bandwidth")

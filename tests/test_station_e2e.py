@@ -15,10 +15,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from station_driver import StationProcess
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
 from acquire.journal import journal_in
-from acquire.station.driver import StationProcess
 from acquire.storage import sweep_stale_temps
 from simulators.server import SimServer
 

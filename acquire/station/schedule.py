@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from datetime import datetime, timezone
 
 from acquire.journal import JournalStore, utc_text
-from acquire.station.config import GoldenSpec
+from acquire.station.golden import GoldenSpec
 from acquire.units import format_duration
 
 
