@@ -29,10 +29,6 @@ _RESOURCE = re.compile(
 ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
-CAL_METHODS = (
-    "one-port", "response-open", "response-short", "response-open-short", "response-open-load",
-    "response-short-load", "thru-response", "enhanced-response", "none",
-)
 PROMPTS = ("terminal", "command", "switch", "scripted")
 
 
@@ -274,9 +270,14 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         ("method", "kit", "max_age", "reference_plane", "dir", "power_mismatch",
          "if_bandwidth_mismatch", "allow_interpolation", "prompt", "switch", "required"),
     )
-    method = node["method"].text("one-port", choices=CAL_METHODS)
+    # the method registry brings numpy: only plans with a calibration section load it
+    from acquire.calibration.methods import ALIASES, METHODS, canonical_name
+
+    method = node["method"].text("one-port", choices=(*METHODS, "none", *ALIASES))
     if method == "none":
         return None
+    where = node["method"]
+    method = canonical_name(method, f"{where.source}: {where.path}")
     try:
         kit = find_config("calkits", node["kit"].text("ideal"), node.base_dir)
     except ConfigError as exc:
