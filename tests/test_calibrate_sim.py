@@ -394,7 +394,8 @@ def test_confirm_asks_before_each_switched_step(sim: SimServer, tmp_path: Path) 
 def test_transmission_normalisation_of_a_cable(sim: SimServer, tmp_path: Path) -> None:
     sim.bench.set_device("cable-1m")
     plan_path = _plan(tmp_path, "cable-thru", measure="two-port",
-                      calibration="method: transmission-normalisation", start="10 MHz", stop="3 GHz")
+                      calibration="method: transmission-normalisation", start="10 MHz",
+                      stop="3 GHz")
     outcome, text = _cal(plan_path, sim, tmp_path / "out")
     assert "[1/1] THRU  ·thru" in text and "thru connected" in text
     assert outcome.calset.model.params == ("S21",)
