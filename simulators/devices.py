@@ -9,7 +9,8 @@ model.
 
 Presets (plain names for the demo and tests): ``patch-2g45``, ``whip-915``, ``cable-1m``,
 ``bandpass-2g45``, ``check-25ohm``, ``attenuator-10db``. The RLC element values follow
-Pozar, Microwave Engineering, 4th ed., ch. 6: series Q0 = ω0L/R, parallel Q0 = R/(ω0L), ω0 = 1/√(LC).
+Pozar, Microwave Engineering, 4th ed., ch. 6: series Q0 = ω0L/R, parallel Q0 = R/(ω0L),
+ω0 = 1/√(LC).
 """
 
 from __future__ import annotations
