@@ -33,7 +33,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
     parser.add_argument("--device", default="patch-2g45", metavar="KIND",
                         help="device kind or preset: resonator, impedance, cable, filter, "
-                             "patch-2g45, whip-915, cable-1m, bandpass-2g45, check-25ohm")
+                             "attenuator, patch-2g45, whip-915, cable-1m, bandpass-2g45, "
+                             "check-25ohm, attenuator-10db")
     parser.add_argument("--param", action="append", default=[], metavar="KEY=VALUE",
                         help="device parameter override, repeatable (e.g. f0_hz=2.44e9)")
     parser.add_argument("--lot", default="patch-2g45", metavar="NAME",

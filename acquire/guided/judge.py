@@ -14,6 +14,9 @@ defines them):
   open end or a loose connector (a full two-port checks port 2 the same way, and its
   raw S12 as well as S21).
 
+An isolation step (loads on both ports) must read its transmission below
+``THRU_MIN_DB``: above it, something joins the ports.
+
 A full two-port reads open, short and load at each port and keeps both reflections of
 every reflect step. Where one port's readings cannot be told apart (the same reading
 twice) while the other port's readings of the same steps can, the standards went to the
@@ -32,7 +35,7 @@ from acquire.calibration import CalKit, CheckLimits, Finding, check_raw, check_t
 from acquire.calibration.checks import FAIL
 from acquire.calibration.model import OnePortTerms, solve_one_port
 from acquire.errors import CalError
-from acquire.guided.steps import REFLECTION, TRANSMISSION, Step
+from acquire.guided.steps import ISOLATION, REFLECTION, TRANSMISSION, Step
 from acquire.units import format_frequency
 
 THRU_MIN_DB = -30.0  # common practice: a joined thru reads far above this raw level
@@ -98,6 +101,8 @@ class Judge:
             figures.update(result.figures if port == 1 else
                            {f"port2_{k}": v for k, v in result.figures.items()})
         for step in self.steps:
+            if step.name == ISOLATION and step.name in held:
+                found += _isolation(step, held[step.name], figures)
             if not step.is_reflect and step.name in held:
                 found += self._thru(step, held, reflect, figures)
                 if step.port == 0 and "S22" in step.params:
@@ -233,3 +238,17 @@ def swapped_ports(freq: np.ndarray, steps: tuple[Step, ...], held: Readings, por
                    f"port {3 - port}: they went to port {3 - port}; connect each standard at "
                    f"port {port} and repeat {', '.join(n.upper() for n in names)}",
                    1.0, apart, float(freq[0]), 0.1 * scale)
+
+
+def _isolation(step: Step, readings: Mapping[str, np.ndarray], figures: dict[str, Any]
+               ) -> list[Finding]:
+    """Loads on both ports transmit nothing: a raw level near a thru's is a thru left in."""
+    for param, values in readings.items():
+        level_db = 20 * np.log10(max(float(np.median(np.abs(values))), 1e-300))
+        figures[f"{step.name}_median_{param.lower()}_db"] = level_db
+        if level_db >= THRU_MIN_DB:
+            return [Finding("isolation-level", FAIL, (step.name,),
+                            f"the {step.label} step reads {param} at {level_db:.0f} dB (raw): "
+                            "something joins the ports; connect a load at each port, then "
+                            "repeat it", 1.0, level_db, 0.0, THRU_MIN_DB)]
+    return []

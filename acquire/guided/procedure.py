@@ -49,7 +49,7 @@ from acquire.guided.keys import (
 )
 from acquire.guided.partial import Partial, utc_text
 from acquire.guided.progress import DONE, PENDING, REPEAT, progress_line
-from acquire.guided.steps import PORT, REFLECTION, Step, flat_readings
+from acquire.guided.steps import ISOLATION, PORT, REFLECTION, Step, flat_readings
 from acquire.guided.verify import VerifySpec
 from acquire.units import format_frequency
 from drivers.errors import SweepdError
@@ -166,8 +166,7 @@ class Procedure:
             return
         lines = []
         if self.s.connector.manual:
-            lines.append(f"Connect the {step.label} standard ({self.s.kit.name}) at the "
-                         "reference plane, then press Enter.")
+            lines.append(_connect_line(step, self.s.kit.name))
         else:
             lines.append(f"Enter connects the {step.label} standard and measures it.")
         if step.kind == "thru":
@@ -314,8 +313,11 @@ class Procedure:
     def _solve(self) -> tuple[Any, Judgement | None] | None:
         flat = flat_readings(self.s.steps, self.partial.readings)
         try:
+            iso = next((f"{s.standard}.{s.params[0]}" for s in self.s.steps
+                        if s.name == ISOLATION), None)
             solution = solve(self.method.name, self._freq(), flat, self.s.kit, port=PORT,
-                             standards=tuple(s.standard for s in self.s.steps))
+                             standards=tuple(s.standard for s in self.s.steps
+                                             if s.name != ISOLATION), isolation=iso)
         except CalError as exc:
             self._failed(Judgement((_finding("solve", str(exc), self.names),)))
             self._save_partial()
@@ -520,3 +522,13 @@ def _finding(check: str, message: str, steps: tuple[str, ...]) -> Any:
     from acquire.calibration.checks import FAIL
 
     return Finding(check, FAIL, steps, message)
+
+
+def _connect_line(step: Step, kit: str) -> str:
+    """What the technician connects for ``step`` (by hand)."""
+    if step.name == ISOLATION:
+        return (f"Connect a LOAD ({kit}) at the reference plane of each port, then press "
+                "Enter.")
+    where = f"port {step.port} reference plane" if step.port == 2 else "reference plane"
+    return (f"Connect the {step.standard.upper()} standard ({kit}) at the {where}, then "
+            "press Enter.")

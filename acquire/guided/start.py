@@ -72,7 +72,7 @@ def calibrate(plan: Plan, options: Options = Options(), *, stdin: TextIO | None 
                        "in the plan or --switch-command")
     actions = parse_script(options.script) if options.script else ()
     kit = load_kit(spec.kit)
-    steps = build_steps(spec.method, kit, plan.ports, str(plan.source))
+    steps = build_steps(spec.method, kit, plan.ports, str(plan.source), spec.isolation)
     kit.check_range(plan.stimulus.frequencies())
     verify = _verify_spec(options, spec.method, steps)
     cal_dir = cal_dir_for(plan)

@@ -22,6 +22,7 @@ PORT = 1  # the source port every one-port and one-path method calibrates
 REFLECTION = "S11"
 TRANSMISSION = "S21"
 ALL_PARAMS = ("S11", "S21", "S12", "S22")
+ISOLATION = "isolation"  # the step with loads on both ports; its readings are load.S21/S12
 
 
 @dataclass(frozen=True)
@@ -40,6 +41,8 @@ class Step:
 
     @property
     def label(self) -> str:
+        if self.name == ISOLATION:
+            return "ISOLATION (loads at both ports)"
         if self.port == 2:
             return f"{self.standard.upper()} at port 2"
         return self.name.upper()
@@ -56,11 +59,15 @@ class Step:
     @property
     def solve_params(self) -> tuple[str, ...]:
         """The readings the solver takes from this step."""
-        return self.params if not self.is_reflect else (self.reflection,)
+        return self.params if self.port == 0 else (self.reflection,)
 
 
-def build_steps(method_name: str, kit: CalKit, ports: int, plan: str = "") -> tuple[Step, ...]:
-    """The steps of ``method_name`` with ``kit``; ``CalError`` if the plan cannot do it."""
+def build_steps(method_name: str, kit: CalKit, ports: int, plan: str = "",
+                isolation: bool = False) -> tuple[Step, ...]:
+    """The steps of ``method_name`` with ``kit``; ``CalError`` if the plan cannot do it.
+
+    ``isolation`` adds a step with the kit's load on both ports before the thru (its
+    transmission readings are the isolation terms)."""
     m = method(method_name)
     if m.two_port and ports < 2:
         raise CalError(f"plan {plan}: calibration method {m.name} calibrates two ports; the "
@@ -79,9 +86,19 @@ def build_steps(method_name: str, kit: CalKit, ports: int, plan: str = "") -> tu
             params = ALL_PARAMS if m.two_port else (TRANSMISSION, REFLECTION)
         else:
             params = ("S11", "S22") if m.two_port else (REFLECTION,)
+        if kind == "thru" and isolation:
+            steps.append(_isolation_step(kit, m.two_port, plan))
         name = f"{spec.standard}-2" if spec.port == 2 else spec.standard
         steps.append(Step(name, kind, params, spec.standard, spec.port))
     return tuple(steps)
+
+
+def _isolation_step(kit: CalKit, two_port: bool, plan: str) -> Step:
+    loads = kit.names_of_kind("load")
+    if not loads:
+        raise CalError(f"plan {plan}: isolation needs a load standard; kit {kit.name} has none")
+    return Step(ISOLATION, "load", ("S21", "S12") if two_port else (TRANSMISSION,),
+                loads[0], 0)
 
 
 def flat_readings(steps: tuple[Step, ...], held: Mapping[str, Mapping[str, np.ndarray]]
