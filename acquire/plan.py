@@ -29,10 +29,6 @@ _RESOURCE = re.compile(
 ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
-CAL_METHODS = (
-    "one-port", "response-open", "response-short", "response-open-short", "response-open-load",
-    "response-short-load", "thru-response", "enhanced-response", "none",
-)
 PROMPTS = ("terminal", "command", "switch", "scripted")
 
 
@@ -82,6 +78,7 @@ class CalibrationSpec:
     prompt: str = "terminal"
     switch_command: str | None = None
     required: bool = True
+    isolation: bool = False  # two-port methods: a step with loads on both ports
 
 
 @dataclass(frozen=True)
@@ -272,11 +269,17 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         return None
     node.mapping(
         ("method", "kit", "max_age", "reference_plane", "dir", "power_mismatch",
-         "if_bandwidth_mismatch", "allow_interpolation", "prompt", "switch", "required"),
+         "if_bandwidth_mismatch", "allow_interpolation", "prompt", "switch", "required",
+         "isolation"),
     )
-    method = node["method"].text("one-port", choices=CAL_METHODS)
+    # the method registry brings numpy: only plans with a calibration section load it
+    from acquire.calibration.methods import ALIASES, METHODS, canonical_name
+
+    method = node["method"].text("one-port", choices=(*METHODS, "none", *ALIASES))
     if method == "none":
         return None
+    where = node["method"]
+    method = canonical_name(method, f"{where.source}: {where.path}")
     try:
         kit = find_config("calkits", node["kit"].text("ideal"), node.base_dir)
     except ConfigError as exc:
@@ -303,7 +306,16 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         prompt=prompt,
         switch_command=switch_command,
         required=node["required"].boolean(True),
+        isolation=_isolation(node["isolation"], METHODS[method]),
     )
+
+
+def _isolation(node: Node, method: Any) -> bool:
+    """``isolation: true`` adds a step with loads on both ports (two-port methods only)."""
+    wanted = node.boolean(False)
+    if wanted and not method.needs_thru:
+        node.fail(f"method {method.name} corrects no transmission: no isolation to measure")
+    return wanted
 
 
 def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
