@@ -13,8 +13,9 @@ A plan's ``checks:`` list holds masks and derived checks::
 the sweep (non-finite data, a mask outside the sweep, a missing S-parameter) gives an
 ``error`` result instead of raising, so a verdict always exists and nothing already
 captured is lost. Overall: ``error`` if any check erred, else ``fail`` if any failed,
+else ``indeterminate`` if any was (guarded acceptance, see acquire/uncertainty/decision.py),
 else ``pass``; ``none`` when there were no checks. Exit codes: 0 pass/none, 1 fail,
-2 error. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
+2 error, 3 indeterminate. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
 """
 
 from __future__ import annotations
@@ -32,7 +33,7 @@ from drivers.errors import SweepdError
 
 VERDICT_FORMAT = "sweepd-verdict"
 VERDICT_VERSION = 1
-EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2}
+EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2, "indeterminate": 3}
 
 
 @dataclass(frozen=True)
@@ -41,7 +42,7 @@ class CheckResult:
 
     kind: str
     name: str
-    verdict: str  # "pass" | "fail" | "error"
+    verdict: str  # "pass" | "fail" | "error" | "indeterminate" (guarded acceptance)
     summary: str  # one ASCII line
     details: dict[str, Any] = field(default_factory=dict)
     message: str | None = None  # the error, when verdict == "error"
@@ -99,6 +100,12 @@ class MaskCheck(Check):
             self.kind, self.name, result.verdict,
             f"{self.name} {result.verdict}: {worst.summary()}", result.to_dict(), None, result,
         )
+
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance (``acquire.uncertainty.decision``) of the same positions."""
+        from acquire.uncertainty.guarded import guarded_result
+
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
 
 
 @dataclass(frozen=True)
@@ -255,6 +262,12 @@ class WorstSwrCheck(Check):
             f"{format_frequency(worst.freq_hz)}", details, None, result,
         )
 
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance of the band's positions (``acquire.uncertainty.decision``)."""
+        from acquire.uncertainty.guarded import guarded_result
+
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
+
 
 def _param(check: Check, sweep: Sweep):
     name = next(iter(check.parameters))
@@ -315,11 +328,12 @@ class Verdict:
     results: tuple[CheckResult, ...]
     sweep_info: dict[str, Any] = field(default_factory=dict)
     metrics: dict[str, Any] = field(default_factory=dict)
+    decision: dict[str, Any] = field(default_factory=dict)
 
     @property
     def verdict(self) -> str:
         states = {r.verdict for r in self.results}
-        for state in ("error", "fail", "pass"):
+        for state in ("error", "fail", "indeterminate", "pass"):
             if state in states:
                 return state
         return "none"
@@ -342,6 +356,7 @@ class Verdict:
             "sweep": self.sweep_info,
             "checks": [r.to_dict() for r in self.results],
             "metrics": self.metrics,
+            "decision": self.decision or _simple_decision(),
         }
 
     def to_json(self, indent: int | None = 2) -> str:
@@ -372,7 +387,8 @@ class Verdict:
 
     def comment_lines(self) -> list[str]:
         """Lines for Touchstone comments (ASCII, without the leading ``!``)."""
-        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})"]
+        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})",
+                 f"  decision rule: {(self.decision or _simple_decision())['statement']}"]
         for r in self.results:
             lines.extend(_check_lines(r, "  ", ranges=False))
         return [_ascii(line) for line in lines]
@@ -433,14 +449,39 @@ def _ascii(text: str) -> str:
     return text.encode("ascii", "replace").decode("ascii").replace("\n", " ")
 
 
+def _simple_decision() -> dict[str, Any]:
+    from acquire.uncertainty.decision import SIMPLE
+
+    return SIMPLE.to_dict()
+
+
+def _judge(check: Check, sweep: Sweep, decision: Any, uncertainty: Any) -> CheckResult:
+    guarded = decision is not None and decision.guarded
+    if guarded and hasattr(check, "evaluate_guarded"):
+        return check.evaluate_guarded(sweep, decision, uncertainty)
+    result = check.evaluate(sweep)
+    if guarded:
+        note = {"rule": "simple", "statement": f"{check.kind} checks have no guard band: "
+                "simple acceptance"}
+        result = CheckResult(result.kind, result.name, result.verdict, result.summary,
+                             {**result.details, "decision": note}, result.message,
+                             result.mask_result)
+    return result
+
+
 def evaluate_checks(
-    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None
+    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None,
+    decision: Any = None, uncertainty: Any = None,
 ) -> Verdict:
-    """Judge ``sweep`` with every check; errors become ``error`` results."""
+    """Judge ``sweep`` with every check; errors become ``error`` results.
+
+    ``decision`` (``acquire.uncertainty.DecisionRule``) chooses simple or guarded
+    acceptance; guarded acceptance uses ``uncertainty`` (a ``SweepUncertainty``).
+    """
     results = []
     for check in checks:
         try:
-            result = check.evaluate(sweep)
+            result = _judge(check, sweep, decision, uncertainty)
             if result.verdict != "error" and _unfinished_margin(result.details):
                 raise _check_error(check, "a margin is not a finite number; no verdict")
             results.append(result)
@@ -466,7 +507,8 @@ def evaluate_checks(
         from acquire.metrics import key_metrics
 
         key = key_metrics(sweep)
-    return Verdict(tuple(results), info, _finite_json(key))
+    rule = decision.to_dict() if decision is not None else {}
+    return Verdict(tuple(results), info, _finite_json(key), rule)
 
 
 def _finite_json(value: Any) -> Any:

@@ -116,6 +116,7 @@ class Capture:
     verdict: Verdict
     corrected: bool = False
     cal_warnings: list[str] = field(default_factory=list)
+    uncertainty: Any = None  # acquire.uncertainty.SweepUncertainty
 
 
 def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> Capture:
@@ -126,8 +127,23 @@ def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> 
         sweep = cal.calset.correct(raw).with_meta(corrected=True, **notes)
     else:
         sweep = raw.with_meta(corrected=False, **notes)
-    verdict = evaluate_checks(list(session.plan.checks), sweep)
-    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings))
+    unc = capture_uncertainty(session.plan, cal.calset, sweep)
+    verdict = evaluate_checks(list(session.plan.checks), sweep, decision=session.plan.decision,
+                              uncertainty=unc)
+    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings), unc)
+
+
+def capture_uncertainty(plan: Plan, calset: Any | None, sweep: Sweep) -> Any:
+    """The per-point uncertainty of a capture (acquire/uncertainty/capture.py)."""
+    from acquire.uncertainty.capture import sweep_uncertainty, unavailable
+    from acquire.uncertainty.decision import SIMPLE
+
+    if calset is None or plan.calibration is None:
+        return unavailable(sweep, "the sweep is uncorrected")
+    from acquire.calibration import load_kit
+
+    return sweep_uncertainty(sweep, calset, load_kit(plan.calibration.kit),
+                             plan.decision or SIMPLE)
 
 
 @dataclass
@@ -155,6 +171,8 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
     if raw_path is not None:
         save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
     comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
+    if cap.uncertainty is not None:
+        comments += tuple(cap.uncertainty.comment_lines())
     final = save_capture(cap.sweep, plan, path, comments, unique=False)
     return Stored(final, summary_path, raw_path)
 
@@ -233,6 +251,8 @@ def summary_dict(cap: Capture, touchstone: Path | None = None,
         } if cap.corrected else None,
         "warnings": list(cap.cal_warnings),
     }
+    if cap.uncertainty is not None:
+        data["uncertainty"] = json.loads(json.dumps(cap.uncertainty.to_dict(), allow_nan=False))
     return data
 
 

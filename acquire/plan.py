@@ -100,6 +100,7 @@ class Plan:
     checks: tuple[Any, ...] = ()
     description: str = ""
     sections: dict[str, Any] = field(default_factory=dict)  # raw later sections (station, soak)
+    decision: Any = None  # acquire.uncertainty.DecisionRule (None: simple acceptance)
 
     @property
     def ports(self) -> int:
@@ -108,7 +109,7 @@ class Plan:
 
 SECTIONS = (
     "plan", "description", "instrument", "stimulus", "measure", "calibration", "checks",
-    "output", "schedule", "station", "soak", "dtf",
+    "output", "schedule", "station", "soak", "dtf", "decision",
 )
 
 
@@ -144,7 +145,15 @@ def parse_plan(root: Node, source: Path) -> Plan:
         checks=_checks(root["checks"], root["dtf"]),
         sections={key: root[key] for key in ("schedule", "station", "soak", "dtf")
                   if root[key].present},
+        decision=_decision(root["decision"]),
     )
+
+
+def _decision(node: Node) -> Any:
+    """The ``decision:`` section (acquire/uncertainty/decision.py documents it)."""
+    from acquire.uncertainty.decision import parse_decision
+
+    return parse_decision(node)
 
 
 def _instrument(node: Node) -> InstrumentSpec:
