@@ -42,8 +42,24 @@ class Report:
     pictures: dict[str, Path]
 
 
-def write_report(job: Job, folder: Path) -> Report:
-    """Build every part of the report for ``job`` into ``folder``."""
+REPORT_FORMAT = "sweepd-report"
+REPORT_VERSION = 1
+
+
+def report_document(job: Job, report: Report) -> dict[str, Any]:
+    """The report as the JSON document ``sweepd report --json`` prints."""
+    return {
+        "format": REPORT_FORMAT, "version": REPORT_VERSION, "job": job.id,
+        "folder": str(report.folder), "html": str(report.html),
+        "text_file": str(report.folder / "summary.txt"),
+        "pictures": {name: str(path) for name, path in report.pictures.items()},
+        "summary": report.text.splitlines(),
+    }
+
+
+def _gather(job: Job) -> tuple[Any, SoakSpec, dict[str, Any], dict[str, Any], history.Series,
+                               list[dict[str, Any]], list[dict[str, Any]]]:
+    """Plan, soak spec, job state, journal run, series, faults and alarms of ``job``."""
     plan = job.load_plan()
     spec = parse_soak(plan)
     state = job.read_state()
@@ -59,6 +75,24 @@ def write_report(job: Job, folder: Path) -> Report:
         ser = history.series(journal, run_id)
         faults = history.faults(journal, run_id)
         alarms = history.alarms(journal, run_id)
+    return plan, spec, state, run, ser, faults, alarms
+
+
+def drift_png(job: Job) -> bytes:
+    """Only the drift picture of ``job``, as PNG bytes (for the live status page)."""
+    import tempfile
+
+    _, spec, state, _, ser, faults, alarms = _gather(job)
+    t_s = _times(ser, spec)
+    with tempfile.TemporaryDirectory(prefix="sweepd-drift-") as tmp:
+        path = _drift(Path(tmp), ser, spec, t_s, alarms, faults, f"soak {job.id}",
+                      float(state.get("start_epoch") or 0.0))
+        return path.read_bytes()
+
+
+def write_report(job: Job, folder: Path) -> Report:
+    """Build every part of the report for ``job`` into ``folder``."""
+    plan, spec, state, run, ser, faults, alarms = _gather(job)
     folder.mkdir(parents=True, exist_ok=True)
     done = ser.done_mask()
     deviation = read_deviation(job.data_dir, set(ser.seq[done].tolist()))

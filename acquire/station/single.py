@@ -8,6 +8,7 @@ every outcome, errors included (``RESULT_KEYS``; see README "sweepd measure").
 
 from __future__ import annotations
 
+import contextlib
 import shlex
 from dataclasses import dataclass
 from pathlib import Path
@@ -54,8 +55,13 @@ class Outcome:
         return self.result.exit_code
 
 
-def measure_one(plan: Plan, request: Request) -> Outcome:
-    """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure."""
+def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
+    """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure.
+
+    ``session`` is an open ``Session`` for this plan on the request's instrument (the
+    measurement service keeps one open between calls); without it one is opened and
+    closed here.
+    """
     from acquire.measure import choose_calibration
     from acquire.runner import Session
 
@@ -85,7 +91,8 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
                                    station=station_id or None, resource=resource)
         try:
-            with Session(plan, resource) as session:
+            with contextlib.nullcontext(session) if session is not None \
+                    else Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
                 cal = choose_calibration(plan, session)
                 line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
