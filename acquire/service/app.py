@@ -30,11 +30,12 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
-from acquire.instruments import InstrumentBusy, Instruments
+from acquire.instruments import Instruments
 from acquire.service.access import token_matches
 from acquire.service.models import JOB_ID, CancelRequest, MeasureRequest, Problem, SubmitRequest
 from acquire.service.plans import PLAN_NAME, PlanBook
-from drivers.errors import InstrumentError, SweepdError
+from acquire.service.statuses import status_for
+from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)
 MAX_BODY = 64 * 1024
@@ -60,23 +61,6 @@ class Service:
 
 def problem(status: int, text: str) -> JSONResponse:
     return JSONResponse({"error": " ".join(str(text).split())}, status_code=status)
-
-
-def status_for(exc: BaseException) -> int:
-    """The HTTP status for a ``SweepdError`` (see the module docstring)."""
-    from acquire.errors import CalError, ConfigError
-    from acquire.soak.spool import SpoolError
-    from acquire.station.errors import LineStopped, StationError
-
-    if isinstance(exc, (InstrumentBusy, LineStopped, CalError)):
-        return 409
-    if isinstance(exc, (ConfigError, StationError)):
-        return 404 if "no such plan" in str(exc) else 422
-    if isinstance(exc, SpoolError):
-        return 404 if "no job" in str(exc) else 409
-    if isinstance(exc, InstrumentError):
-        return 502
-    return 500
 
 
 def create_app(service: Service) -> FastAPI:
