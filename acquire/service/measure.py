@@ -16,7 +16,7 @@ def measure_unit(service: Any, body: MeasureRequest) -> tuple[int, dict[str, Any
     """(HTTP status, measure document) for one request; never raises a ``SweepdError``."""
     from acquire.plan import _RESOURCE
     from acquire.service.statuses import status_for
-    from acquire.station.single import Request, measure_one, result_dict
+    from acquire.station.single import Request, measure_one, result_dict, unit_serial
 
     plan_name = body.plan
     try:
@@ -27,13 +27,9 @@ def measure_unit(service: Any, body: MeasureRequest) -> tuple[int, dict[str, Any
             from acquire.errors import PlanError
 
             raise PlanError(f"resource: not a supported VISA resource string: {resource!r}")
-        if body.serial and not body.golden:  # refused before the instrument is touched
-            from acquire.station.config import station_config
-            from acquire.station.serials import check_serial
-
-            check_serial(body.serial, station_config(plan).serial)
         request = Request(serial=body.serial, golden=body.golden, resource=resource,
                           station_id=body.station)
+        unit_serial(plan, request)  # refused before the instrument is touched
         who = "measurement of the golden unit" if body.golden else \
             f"measurement of unit {body.serial or '(no serial)'}"
         with service.instruments.hold(resource, who, body.wait_s):

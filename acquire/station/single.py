@@ -67,16 +67,7 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
 
     config = station_config(plan)
     golden = config.golden
-    if request.golden:
-        if golden is None:
-            raise StationError(f"plan {plan.source}: --golden needs station.golden in the plan")
-        serial = golden.serial
-    else:
-        if not request.serial:
-            raise StationError("measure: give --serial SERIAL (or --golden)")
-        serial = check_serial(request.serial, config.serial)
-        if golden is not None and serial == golden.serial:
-            raise StationError(f"serial {serial} is the golden unit's: use --golden")
+    serial = unit_serial(plan, request)
     station_id = request.station_id or config.station_id or ""
     if station_id:
         check_station_id(station_id)
@@ -98,15 +89,7 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
                 line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
                             reference)
                 if golden is not None and not request.golden:
-                    created = cal.calset.created if cal.calset is not None else None
-                    state = line_state(journal, plan.name, golden, cal_created=created)
-                    golden_run = golden_command(plan, request)
-                    if state.stopped:
-                        raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
-                                          f"pass a golden re-check: run `{golden_run}`")
-                    if state.due:
-                        raise LineStopped(f"golden check due: {state.due_reason}; run "
-                                          f"`{golden_run}` first")
+                    _check_line_open(journal, plan, golden, cal, request)
                 result = measure_unit(line, serial, golden=request.golden)
         except SweepdError as exc:
             journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
@@ -117,6 +100,36 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
             raise
         journal.end_run(run_id)
         return Outcome(result, Path(journal.where), run_id, resource)
+
+
+def unit_serial(plan: Plan, request: Request) -> str:
+    """The serial to measure: the request's, checked against the plan's rule, or the
+    golden unit's; ``StationError`` saying why not (before any instrument is touched)."""
+    config = station_config(plan)
+    golden = config.golden
+    if request.golden:
+        if golden is None:
+            raise StationError(f"plan {plan.source}: --golden needs station.golden in the plan")
+        return golden.serial
+    if not request.serial:
+        raise StationError("measure: give --serial SERIAL (or --golden)")
+    serial = check_serial(request.serial, config.serial)
+    if golden is not None and serial == golden.serial:
+        raise StationError(f"serial {serial} is the golden unit's: use --golden")
+    return serial
+
+
+def _check_line_open(journal: Any, plan: Plan, golden: Any, cal: Any,
+                     request: Request) -> None:
+    """``LineStopped`` while the line is stopped or a golden check is due."""
+    created = cal.calset.created if cal.calset is not None else None
+    state = line_state(journal, plan.name, golden, cal_created=created)
+    golden_run = golden_command(plan, request)
+    if state.stopped:
+        raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
+                          f"pass a golden re-check: run `{golden_run}`")
+    if state.due:
+        raise LineStopped(f"golden check due: {state.due_reason}; run `{golden_run}` first")
 
 
 def golden_command(plan: Plan, request: Request) -> str:
