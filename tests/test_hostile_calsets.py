@@ -88,9 +88,9 @@ def inflating_member(size: int) -> bytes:
 
 HOSTILE = {
     "deep JSON": (rebuild(GOOD, header=raw_value("figures", "[" * 100_000 + "]" * 100_000)),
-                  r"nested too deeply|not valid JSON"),
+                  r"nested deeper than 16 levels"),
     "moderately deep JSON": (rebuild(GOOD, header=raw_value("figures", "[" * 500 + "]" * 500)),
-                             r"nested too deeply"),
+                             r"nested deeper than 16 levels"),
     "huge integer": (rebuild(GOOD, header=raw_value("port", "9" * 400)),
                      r"not valid JSON \(an integer of 400 digits"),
     "integer beyond the digit limit": (rebuild(GOOD, header=raw_value("port", "9" * 5000)),
@@ -98,9 +98,9 @@ HOSTILE = {
     "1e999": (rebuild(GOOD, header=raw_value("temperature_c", "1e999")),
               r"1e999 is beyond a finite number"),
     "NaN": (rebuild(GOOD, header=raw_value("temperature_c", "NaN")),
-            r"NaN is not a number a cal set may hold"),
+            r"NaN is not a finite number"),
     "-Infinity": (rebuild(GOOD, header=raw_value("temperature_c", "-Infinity")),
-                  r"-Infinity is not a number"),
+                  r"-Infinity is not a finite number"),
     "array claiming 10^12 points": (
         rebuild(GOOD, members={"freq_hz.npy": npy_claiming((10**12,))}),
         r"array 'freq_hz.npy' is float64\[1000000000000\], expected float64\[51\]"),

@@ -1,15 +1,15 @@
 """Bounded reading of a cal set file image: size, ZIP members, JSON header, ``.npy`` arrays.
 
 Every limit is checked before memory is committed, so a hostile or damaged file (deep
-JSON, huge integers, ``1e999``, an array header claiming 10^12 elements, a compressed
-member that inflates to gigabytes) costs no more than a valid one. Problems raise
-``Refused`` with a short reason; ``acquire.calibration.calset`` adds the file name.
+JSON, huge integers, ``1e999``: see ``acquire.safejson``; an array header claiming 10^12
+elements, a compressed member that inflates to gigabytes) costs no more than a valid
+one. Problems raise ``Refused`` with a short reason; ``acquire.calibration.calset`` adds
+the file name.
 """
 
 from __future__ import annotations
 
 import io
-import json
 import math
 import zipfile
 from pathlib import Path
@@ -17,13 +17,13 @@ from typing import Any
 
 import numpy as np
 
+from acquire.safejson import loads_bounded
 from drivers.yamlnode import show
 
 MAX_FILE_BYTES = 256 * 1024 * 1024  # 64 arrays of 200,001 complex points fit easily
 MAX_HEADER_BYTES = 1024 * 1024
 MAX_MEMBERS = 128
 MAX_JSON_DEPTH = 16
-MAX_INT_DIGITS = 19
 
 
 class Refused(Exception):
@@ -57,19 +57,12 @@ def parse_json(raw: bytes, name: str) -> Any:
     """JSON with finite numbers, integers of at most 19 digits and bounded depth."""
     if len(raw) > MAX_HEADER_BYTES:
         raise Refused(f"{name} is larger than {MAX_HEADER_BYTES >> 20} MiB")
-    deep = f"{name} is nested too deeply (at most {MAX_JSON_DEPTH} levels)"
     try:
-        value = json.loads(raw.decode("utf-8"), parse_constant=_no_constant,
-                           parse_int=_bounded_int, parse_float=_finite_float)
+        return loads_bounded(raw.decode("utf-8"), MAX_JSON_DEPTH)
     except UnicodeDecodeError as exc:
         raise Refused(f"{name} is not UTF-8 (byte {exc.start})") from None
     except ValueError as exc:
         raise Refused(f"{name} is not valid JSON ({str(exc)[:120]})") from None
-    except RecursionError:
-        raise Refused(deep) from None
-    if depth(value) > MAX_JSON_DEPTH:
-        raise Refused(deep)
-    return value
 
 
 def read_npy(raw: bytes, name: str, dtype: type, shape: tuple[int, ...]) -> np.ndarray:
@@ -92,33 +85,3 @@ def read_npy(raw: bytes, name: str, dtype: type, shape: tuple[int, ...]) -> np.n
         raise Refused(f"array '{name}' is damaged ({len(data)} data bytes for {list(shape)})")
     array = np.frombuffer(data, dtype=want)
     return array.reshape(shape, order="F" if fortran else "C").copy()
-
-
-def depth(value: Any) -> int:
-    """Nesting depth of a parsed JSON value (a scalar is 0, ``[]`` is 1)."""
-    level_depth, level = 0, [value]
-    while True:
-        containers = [item for item in level if isinstance(item, (dict, list))]
-        if not containers:
-            return level_depth
-        level_depth += 1
-        level = [child for item in containers
-                 for child in (item.values() if isinstance(item, dict) else item)]
-
-
-def _no_constant(name: str) -> Any:
-    raise ValueError(f"{name} is not a number a cal set may hold")
-
-
-def _bounded_int(text: str) -> int:
-    digits = len(text.lstrip("-"))
-    if digits > MAX_INT_DIGITS:
-        raise ValueError(f"an integer of {digits} digits")
-    return int(text)
-
-
-def _finite_float(text: str) -> float:
-    value = float(text)
-    if not math.isfinite(value):
-        raise ValueError(f"{text[:30]} is beyond a finite number")
-    return value
