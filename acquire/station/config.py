@@ -29,7 +29,8 @@ from pathlib import Path
 from typing import Any
 
 from acquire.plan import Plan
-from acquire.yamlfile import Node
+from acquire.station.pattern import PatternError, compile_pattern
+from acquire.yamlfile import Node, show
 
 DEFAULT_PATTERN = r"[A-Za-z0-9][A-Za-z0-9._+-]*"
 DEFAULT_MAX_LENGTH = 40
@@ -51,8 +52,9 @@ class SerialRule:
     max_length: int = DEFAULT_MAX_LENGTH
 
     @property
-    def regex(self) -> re.Pattern[str]:
-        return re.compile(self.pattern)
+    def regex(self) -> Any:
+        """The pattern compiled with RE2 (linear-time matching; see station/pattern.py)."""
+        return compile_pattern(self.pattern)
 
 
 @dataclass(frozen=True)
@@ -147,11 +149,11 @@ def _serial(node: Node) -> SerialRule:
     node.mapping(("pattern", "max_length"))
     pattern = node["pattern"].text(DEFAULT_PATTERN)
     try:
-        compiled = re.compile(pattern)
-    except re.error as exc:
-        node["pattern"].fail(f"not a valid regular expression: {exc}")
+        compiled = compile_pattern(pattern)
+    except PatternError as exc:
+        node["pattern"].fail(str(exc))
     if compiled.fullmatch(""):
-        node["pattern"].fail(f"must not accept an empty serial, got {pattern!r}")
+        node["pattern"].fail(f"must not accept an empty serial, got {show(pattern)}")
     max_length = node["max_length"].integer(DEFAULT_MAX_LENGTH, lo=1, hi=MAX_LENGTH_LIMIT)
     return SerialRule(pattern, max_length)
 
