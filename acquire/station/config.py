@@ -35,6 +35,7 @@ from acquire.station.golden import (
     Tolerance,
     load_reference,
 )
+from acquire.station.pattern import PatternError, compile_pattern
 from acquire.station.serials import (
     DEFAULT_MAX_LENGTH,
     DEFAULT_PATTERN,
@@ -43,7 +44,7 @@ from acquire.station.serials import (
     unsafe_reason,
 )
 from acquire.units import format_frequency
-from acquire.yamlfile import Node
+from acquire.yamlfile import Node, show
 
 STATION_ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]{0,31}")
 
@@ -94,11 +95,11 @@ def _serial(node: Node) -> SerialRule:
     node.mapping(("pattern", "max_length"))
     pattern = node["pattern"].text(DEFAULT_PATTERN)
     try:
-        compiled = re.compile(pattern)
-    except re.error as exc:
-        node["pattern"].fail(f"not a valid regular expression: {exc}")
+        compiled = compile_pattern(pattern)
+    except PatternError as exc:
+        node["pattern"].fail(str(exc))
     if compiled.fullmatch(""):
-        node["pattern"].fail(f"must not accept an empty serial, got {pattern!r}")
+        node["pattern"].fail(f"must not accept an empty serial, got {show(pattern)}")
     max_length = node["max_length"].integer(DEFAULT_MAX_LENGTH, lo=1, hi=MAX_LENGTH_LIMIT)
     return SerialRule(pattern, max_length)
 
