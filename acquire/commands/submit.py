@@ -53,8 +53,8 @@ def _run(args: argparse.Namespace) -> int:
               f"for {format_duration(s.duration_s)}" if s.duration_s is not None
               else "until cancelled")
     if args.json:
-        print(json.dumps({"job": job.id, "spool": str(spool.root), "resource": resource,
-                          "data_dir": str(job.data_dir)}))
+        print(json.dumps({"job": job.id, "uid": job.uid, "spool": str(spool.root),
+                          "resource": resource, "data_dir": str(job.data_dir)}))
     else:
         print(f"submitted {job.id}: {plan.name} on {resource}, {every}, {extent}; "
               f"files in {job.data_dir}")
