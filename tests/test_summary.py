@@ -15,6 +15,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from schema_support import validate
 from test_station_support import PLAN
 
 from acquire.checks import evaluate_checks
@@ -22,6 +23,7 @@ from acquire.cli import main
 from acquire.journal import StoredFields, journal_in
 from acquire.measure import worst_margin
 from acquire.plan import load_plan
+from acquire.station.counters import count_yield
 from acquire.station.errors import StationError
 from acquire.station.figures import key_figures, with_figures
 from acquire.station.stats import cpk, describe
@@ -192,3 +194,36 @@ def test_since_forms() -> None:
         "+00:00", "Z")
     with pytest.raises(StationError):
         parse_since("-3 h")
+
+
+# -- unjudged units, yield over judged ones -------------------------------------------------
+
+
+def test_a_plan_without_checks_is_unjudged_not_failed(tmp_path: Path, capsys) -> None:
+    """Sweeps of a plan without checks have no verdict: they are neither passed nor
+    failed, and the yield is over judged units only (none here)."""
+    with journal_in(tmp_path) as j:
+        run = j.start_run("run", "no-checks")
+        for seq, serial in enumerate(("U-1", "U-2", "U-3")):
+            p = j.plan_measurement(run, seq, tmp_path / f"{serial}.s1p", serial=serial)
+            j.store_measurement(p, touchstone=p.touchstone, summary=None, raw_touchstone=None,
+                                fields=StoredFields(metrics_json="{}"))
+    assert main(["summary", str(tmp_path)]) == 0
+    text = capsys.readouterr().out
+    assert "tested 3 | passed 0 | failed 0 | unjudged 3 | yield n/a (0 judged)" in text
+    assert main(["summary", str(tmp_path), "--json"]) == 0
+    counters = validate(capsys.readouterr().out, "summary")["plans"][0]["yield"]
+    assert (counters["tested"], counters["judged"], counters["passed"], counters["failed"],
+            counters["unjudged"], counters["yield"]) == (3, 0, 0, 0, 3, None)
+
+
+def test_yield_is_over_judged_units_and_says_how_many() -> None:
+    rows = [{"serial": "A", "attempt": 1, "verdict": "pass"},
+            {"serial": "B", "attempt": 1, "verdict": "fail"},
+            {"serial": "C", "attempt": 1, "verdict": None},
+            {"serial": "D", "attempt": 1, "verdict": "pass"},
+            {"serial": "E", "attempt": 1, "verdict": "pass"}]
+    y = count_yield(rows)
+    assert (y.tested, y.judged, y.passed, y.failed, y.unjudged) == (5, 4, 3, 1, 1)
+    assert y.yield_ == pytest.approx(0.75) and y.first_pass_yield == pytest.approx(0.75)
+    assert "yield 75.0 % (4 judged)" in y.line()
