@@ -23,7 +23,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
     "measure": ("measure", "measure one unit for MES calls: checks, files, journal (0/1/2)"),
-    "summary": ("summary", "yield and per-metric statistics with Cpk from a journal; CSV"),
+    "summary": ("summary", "yield and per-metric statistics (Ppk, Cpk) from a journal; CSV"),
     "serve": ("serve", "run queued soak jobs in the foreground (for systemd); Ctrl-C stops"),
     "submit": ("submit", "queue a soak job from a plan with schedule: and soak: sections"),
     "status": ("status", "show every soak job: state, sweeps, faults, next sweep, drift"),

@@ -170,7 +170,8 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
                              unique=False)
     if raw_path is not None:
         save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
-    comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
+    judged = plan.checks or cap.verdict.results  # a golden capture is judged without them
+    comments = tuple(cap.verdict.comment_lines()) if judged else ()
     if cap.uncertainty is not None:
         comments += tuple(cap.uncertainty.comment_lines())
     final = save_capture(cap.sweep, plan, path, comments, unique=False)
@@ -190,7 +191,7 @@ def companions(path: Path) -> tuple[Path, ...]:
 def plan_path(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
               index: int | None = None, station: str = "") -> Path:
     """A free Touchstone path for a capture, from the plan's name template."""
-    verdict = cap.verdict.verdict if plan.checks else ""
+    verdict = cap.verdict.verdict if plan.checks or cap.verdict.results else ""
     path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
                         station=station, when=utc_now())
     return free_path(path, companions)

@@ -51,7 +51,7 @@ def journal_rows(job: Job) -> tuple[list[sqlite3.Row], list[sqlite3.Row], list[s
     db = sqlite3.connect(job.output_dir / "journal.sqlite")
     db.row_factory = sqlite3.Row
     try:
-        runs = db.execute("SELECT * FROM runs WHERE job_id = ?", (job.id,)).fetchall()
+        runs = db.execute("SELECT * FROM runs WHERE job_uid = ?", (job.uid,)).fetchall()
         assert len(runs) == 1, f"one run per job, found {len(runs)}"
         rows = db.execute("SELECT * FROM measurements WHERE run_id = ? ORDER BY seq",
                           (runs[0]["id"],)).fetchall()

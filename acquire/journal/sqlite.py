@@ -65,8 +65,8 @@ class SqliteJournal(SqliteFile, JournalStore):
         return self._one("SELECT * FROM runs WHERE id = ?", (run_id,))
 
     def soak_run(self, job_uid: str) -> Row | None:
-        return self._one("SELECT * FROM runs WHERE job_id = ? AND kind = 'soak' "
-                         "ORDER BY id LIMIT 1", (job_uid,))
+        return self._one("SELECT * FROM runs WHERE job_uid = ? AND kind = 'soak'",
+                         (job_uid,))
 
     def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[int]:
         sql = (f"SELECT id FROM runs WHERE state = 'running' AND kind IN "

@@ -10,7 +10,7 @@ test (``tests/test_journal_migrations.py``).
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 _V1 = """
 CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -94,4 +94,10 @@ CREATE INDEX measurements_run_state ON measurements(run_id, state);
 CREATE INDEX runs_kind_state ON runs(kind, state)
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2}
+# 3: a soak job's unique identity (a UUID) beside its short per-spool name.
+_V3 = """
+ALTER TABLE runs ADD COLUMN job_uid TEXT;
+CREATE UNIQUE INDEX runs_job_uid ON runs(job_uid) WHERE job_uid IS NOT NULL
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3}

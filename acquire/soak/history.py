@@ -19,8 +19,16 @@ from acquire.journal import DONE_STATES, JournalStore, journal_in
 SOAK_KIND = "soak"
 
 
-def find_run(journal: JournalStore, job_uid: str) -> dict[str, Any] | None:
-    return journal.soak_run(job_uid)
+def find_run(journal: JournalStore, job: Any) -> dict[str, Any] | None:
+    """The journal run of ``job``, matched on its unique id. A job submitted before jobs
+    had one is matched on the run its own state file names, if that run is its."""
+    if job.uid:
+        return journal.soak_run(job.uid)
+    run_id = job.read_state().get("run_id")
+    run = journal.run(int(run_id)) if run_id else None
+    if run is None or run["kind"] != SOAK_KIND or run["job_id"] != job.id:
+        return None
+    return run
 
 
 @dataclass

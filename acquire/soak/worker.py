@@ -147,15 +147,16 @@ class SoakWorker:
         self.plan = plan
         check_job_paths(job.output_dir, job.data_dir, cal_dir_for(plan),
                         self.spec.alarms.command)
-        job.data_dir.mkdir(parents=True, exist_ok=True, mode=0o700)
+        job.claim_data_dir()
         sweep_stale_temps(job.data_dir)
         self.journal = journal = journal_in(job.output_dir)
         state = job.read_state()
-        run = history.find_run(journal, job.id)
+        run = history.find_run(journal, job)
         now = self.clock.now()
         if run is None:
             self.run_id = journal.start_run("soak", plan.name, plan_path=str(job.plan_source),
-                                            resource=job.resource, job_id=job.id)
+                                            resource=job.resource, job_id=job.id,
+                                            job_uid=job.uid or None)
         else:
             self.run_id = int(run["id"])
         start = float(state.get("start_epoch") or now)
