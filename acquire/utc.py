@@ -3,7 +3,8 @@
 - ``utc_text(moment)``: ISO 8601 with ``Z`` and milliseconds, ``2026-12-02T06:10:00.123Z``
   (journal rows, status and JSON files); ``digits=6`` gives the microsecond form that cal
   set and partial-cal files use (``2026-12-02T06:10:00.123456Z``).
-- ``compact_utc(moment)``: the file-name form ``20261202T061000Z``.
+- ``compact_utc(moment)``: the file-name form ``20261202T061000Z``; ``minute_text(moment)``
+  the message form ``2026-12-02T06:10Z``.
 - ``epoch_text(seconds)``: ``utc_text`` of a POSIX time, ``None`` for none or non-finite.
 - ``parse_utc(text)``: any ISO 8601 time with ``Z`` or an offset as an aware UTC datetime
   (a time without either is taken as UTC); ``parse_iso`` leaves a naive time naive.
@@ -31,6 +32,11 @@ def utc_text(moment: datetime | None = None, *, digits: int = 3) -> str:
 def compact_utc(moment: datetime | None = None) -> str:
     """File-name form of a UTC time: ``20261202T061000Z``."""
     return (moment or utc_now()).astimezone(timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+
+
+def minute_text(moment: datetime | None = None) -> str:
+    """A UTC time to the minute, for messages: ``2026-12-02T06:10Z``."""
+    return (moment or utc_now()).astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%MZ")
 
 
 def epoch_text(seconds: float | None) -> str | None:
