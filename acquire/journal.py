@@ -33,11 +33,11 @@ import time
 from collections.abc import Callable, Iterator, Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass
-from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
 from acquire.errors import JournalError
+from acquire.utc import utc_text
 
 SCHEMA_VERSION = 1
 JOURNAL_NAME = "journal.sqlite"
@@ -119,13 +119,6 @@ CREATE TABLE alarms (
 MIGRATIONS: dict[int, str] = {1: _SCHEMA_V1}
 
 MEASUREMENT_STATES = ("pending", "stored", "missed", "failed", "measured")
-
-
-def utc_text(moment: datetime | None = None) -> str:
-    moment = moment or datetime.now(timezone.utc)
-    return moment.astimezone(timezone.utc).isoformat(timespec="milliseconds").replace(
-        "+00:00", "Z"
-    )
 
 
 @dataclass(frozen=True)
