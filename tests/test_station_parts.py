@@ -17,7 +17,7 @@ import pytest
 from test_station_support import GOLDEN, write_plan
 
 from acquire.errors import PlanError
-from acquire.journal import Journal, utc_text
+from acquire.journal import Journal
 from acquire.plan import load_plan
 from acquire.station.config import station_config
 from acquire.station.counters import count_yield
@@ -29,6 +29,7 @@ from acquire.station.schedule import line_state
 from acquire.station.serials import SerialRule, check_serial
 from acquire.station.terminal import MAX_LINE, Terminal
 from acquire.sweep import Sweep
+from acquire.utc import utc_text
 
 RESOURCE = "TCPIP::127.0.0.1::5025::SOCKET"
 

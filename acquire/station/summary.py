@@ -3,14 +3,15 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import datetime, timedelta, timezone
+from datetime import datetime, timedelta
 from pathlib import Path
 from typing import Any
 
-from acquire.journal import JOURNAL_NAME, Journal, utc_text
+from acquire.journal import JOURNAL_NAME, Journal
 from acquire.station.errors import StationError
 from acquire.station.records import Record, query_records
 from acquire.station.report import PlanSummary, summarise, summary_lines
+from acquire.utc import parse_iso, utc_now, utc_text
 
 
 def parse_since(text: str, now: datetime | None = None) -> str:
@@ -26,9 +27,9 @@ def parse_since(text: str, now: datetime | None = None) -> str:
     if seconds is not None:
         if seconds < 0:
             raise StationError(f"--since {text!r}: a duration back must be positive")
-        return utc_text((now or datetime.now(timezone.utc)) - timedelta(seconds=seconds))
+        return utc_text((now or utc_now()) - timedelta(seconds=seconds))
     try:
-        moment = datetime.fromisoformat(value.replace("Z", "+00:00").replace(" ", "T", 1))
+        moment = parse_iso(value)
     except ValueError:
         raise StationError(f"--since {text!r}: give a date or time such as 2026-12-02 or "
                            "2026-12-02T06:00, or a duration back such as '8 h'") from None
