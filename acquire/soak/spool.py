@@ -28,8 +28,8 @@ from pathlib import Path
 from typing import Any
 
 from acquire.errors import PlanError
-from acquire.journal import utc_text
 from acquire.storage import replace_atomic, write_new
+from acquire.utc import utc_text
 from drivers.errors import SweepdError
 
 ENV_SPOOL = "SWEEPD_SPOOL"
