@@ -23,7 +23,7 @@ from acquire.library import find_config
 from acquire.masks import load_mask
 from acquire.timedomain.checks import is_distance_mask, load_distance_mask, parse_distance_check
 from acquire.units import format_frequency
-from acquire.yamlfile import Node, load_yaml
+from acquire.yamlfile import Node, load_yaml, show
 
 CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance")
 
@@ -110,7 +110,7 @@ def _reflection(node: Node) -> str:
     text = node.text("S11").strip().upper()
     if len(text) != 3 or text[0] != "S" or not text[1:].isdigit() or text[1] != text[2] \
             or text[1] == "0":
-        node.fail(f"must be a reflection parameter such as S11 or S22, got {node.value!r}")
+        node.fail(f"must be a reflection parameter such as S11 or S22, got {show(node.value)}")
     return text
 
 

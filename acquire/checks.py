@@ -13,13 +13,15 @@ A plan's ``checks:`` list holds masks and derived checks::
 the sweep (non-finite data, a mask outside the sweep, a missing S-parameter) gives an
 ``error`` result instead of raising, so a verdict always exists and nothing already
 captured is lost. Overall: ``error`` if any check erred, else ``fail`` if any failed,
+else ``indeterminate`` if any was (guarded acceptance, see acquire/uncertainty/decision.py),
 else ``pass``; ``none`` when there were no checks. Exit codes: 0 pass/none, 1 fail,
-2 error. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
+2 error, 3 indeterminate. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
 """
 
 from __future__ import annotations
 
 import json
+import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any
@@ -32,7 +34,7 @@ from drivers.errors import SweepdError
 
 VERDICT_FORMAT = "sweepd-verdict"
 VERDICT_VERSION = 1
-EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2}
+EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2, "indeterminate": 3}
 
 
 @dataclass(frozen=True)
@@ -41,7 +43,7 @@ class CheckResult:
 
     kind: str
     name: str
-    verdict: str  # "pass" | "fail" | "error"
+    verdict: str  # "pass" | "fail" | "error" | "indeterminate" (guarded acceptance)
     summary: str  # one ASCII line
     details: dict[str, Any] = field(default_factory=dict)
     message: str | None = None  # the error, when verdict == "error"
@@ -100,6 +102,12 @@ class MaskCheck(Check):
             f"{self.name} {result.verdict}: {worst.summary()}", result.to_dict(), None, result,
         )
 
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance (``acquire.uncertainty.decision``) of the same positions."""
+        from acquire.uncertainty.guarded import guarded_result
+
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
+
 
 @dataclass(frozen=True)
 class BandwidthCheck(Check):
@@ -154,7 +162,7 @@ class BandwidthCheck(Check):
                 self, f"the band reaches the sweep edge after {format_frequency(bw.width_hz)}; "
                 f"widen the sweep to measure {format_frequency(self.at_least_hz)}",
             )
-        verdict = "pass" if margin >= 0 else "fail"
+        verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
         return CheckResult(
             self.kind, self.name, verdict,
@@ -205,7 +213,7 @@ class ResonanceCheck(Check):
                                f"{self.name} fail: the reactance never crosses zero", details)
         margin = min(res.freq_hz - self.lo_hz, self.hi_hz - res.freq_hz)
         details["margin_hz"] = margin
-        verdict = "pass" if margin >= 0 and not res.at_edge else "fail"
+        verdict = _judged(self, margin, inside=not res.at_edge)
         where = " (minimum at the sweep edge: no resonance inside)" if res.at_edge else ""
         return CheckResult(
             self.kind, self.name, verdict,
@@ -255,6 +263,12 @@ class WorstSwrCheck(Check):
             f"{format_frequency(worst.freq_hz)}", details, None, result,
         )
 
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance of the band's positions (``acquire.uncertainty.decision``)."""
+        from acquire.uncertainty.guarded import guarded_result
+
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
+
 
 def _param(check: Check, sweep: Sweep):
     name = next(iter(check.parameters))
@@ -278,6 +292,27 @@ class CheckError(SweepdError):
     """A check cannot judge this sweep."""
 
 
+def _judged(check: Check, margin: float, *, inside: bool = True) -> str:
+    """"pass" or "fail" from a margin; a non-finite margin is an error, never a verdict."""
+    if not math.isfinite(margin):
+        raise _check_error(check, f"margin is {margin}; a verdict needs finite numbers")
+    return "pass" if margin >= 0 and inside else "fail"
+
+
+def _unfinished_margin(details: Any) -> bool:
+    """True if any ``margin*`` value in ``details`` (at any depth) is not a finite number."""
+    if isinstance(details, dict):
+        for key, value in details.items():
+            if str(key).startswith("margin") and isinstance(value, float) \
+                    and not math.isfinite(value):
+                return True
+            if _unfinished_margin(value):
+                return True
+    elif isinstance(details, list):
+        return any(_unfinished_margin(item) for item in details)
+    return False
+
+
 def _check_error(check: Check, message: str) -> CheckError:
     return CheckError(f"{check.name}: {message}")
 
@@ -292,11 +327,12 @@ class Verdict:
     results: tuple[CheckResult, ...]
     sweep_info: dict[str, Any] = field(default_factory=dict)
     metrics: dict[str, Any] = field(default_factory=dict)
+    decision: dict[str, Any] = field(default_factory=dict)
 
     @property
     def verdict(self) -> str:
         states = {r.verdict for r in self.results}
-        for state in ("error", "fail", "pass"):
+        for state in ("error", "fail", "indeterminate", "pass"):
             if state in states:
                 return state
         return "none"
@@ -319,6 +355,7 @@ class Verdict:
             "sweep": self.sweep_info,
             "checks": [r.to_dict() for r in self.results],
             "metrics": self.metrics,
+            "decision": self.decision or _simple_decision(),
         }
 
     def to_json(self, indent: int | None = 2) -> str:
@@ -349,7 +386,8 @@ class Verdict:
 
     def comment_lines(self) -> list[str]:
         """Lines for Touchstone comments (ASCII, without the leading ``!``)."""
-        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})"]
+        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})",
+                 f"  decision rule: {(self.decision or _simple_decision())['statement']}"]
         for r in self.results:
             lines.extend(_check_lines(r, "  ", ranges=False))
         return [_ascii(line) for line in lines]
@@ -410,14 +448,42 @@ def _ascii(text: str) -> str:
     return text.encode("ascii", "replace").decode("ascii").replace("\n", " ")
 
 
+def _simple_decision() -> dict[str, Any]:
+    from acquire.uncertainty.decision import SIMPLE
+
+    return SIMPLE.to_dict()
+
+
+def _judge(check: Check, sweep: Sweep, decision: Any, uncertainty: Any) -> CheckResult:
+    guarded = decision is not None and decision.guarded
+    if guarded and hasattr(check, "evaluate_guarded"):
+        return check.evaluate_guarded(sweep, decision, uncertainty)
+    result = check.evaluate(sweep)
+    if guarded:
+        note = {"rule": "simple", "statement": f"{check.kind} checks have no guard band: "
+                "simple acceptance"}
+        result = CheckResult(result.kind, result.name, result.verdict, result.summary,
+                             {**result.details, "decision": note}, result.message,
+                             result.mask_result)
+    return result
+
+
 def evaluate_checks(
-    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None
+    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None,
+    decision: Any = None, uncertainty: Any = None,
 ) -> Verdict:
-    """Judge ``sweep`` with every check; errors become ``error`` results."""
+    """Judge ``sweep`` with every check; errors become ``error`` results.
+
+    ``decision`` (``acquire.uncertainty.DecisionRule``) chooses simple or guarded
+    acceptance; guarded acceptance uses ``uncertainty`` (a ``SweepUncertainty``).
+    """
     results = []
     for check in checks:
         try:
-            results.append(check.evaluate(sweep))
+            result = _judge(check, sweep, decision, uncertainty)
+            if result.verdict != "error" and _unfinished_margin(result.details):
+                raise _check_error(check, "a margin is not a finite number; no verdict")
+            results.append(result)
         except SweepdError as exc:
             text = str(exc)
             rest = text.removeprefix(f"{check.name}: ")
@@ -440,4 +506,5 @@ def evaluate_checks(
         from acquire.metrics import key_metrics
 
         key = key_metrics(sweep)
-    return Verdict(tuple(results), info, json_safe(key))
+    rule = decision.to_dict() if decision is not None else {}
+    return Verdict(tuple(results), info, json_safe(key), rule)

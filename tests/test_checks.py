@@ -160,7 +160,8 @@ def test_verdict_json_is_stable_and_documented():
     verdict = evaluate_checks(parse_checks(plan_node(PLAN)), Sweep(F, antenna(F)))
     d = json.loads(verdict.to_json())
     assert list(d) == ["format", "version", "verdict", "exit_code", "summary", "sweep",
-                       "checks", "metrics"]
+                       "checks", "metrics", "decision"]
+    assert d["decision"]["rule"] == "simple"
     assert d["format"] == "sweepd-verdict" and d["version"] == 1
     assert [c["kind"] for c in d["checks"]] == ["mask", "bandwidth", "resonance", "worst_swr"]
     for c in d["checks"]:

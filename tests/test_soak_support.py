@@ -16,7 +16,7 @@ from acquire.soak.spool import Job, Spool
 from acquire.storage import TEMP_PREFIX
 from acquire.touchstone import read_touchstone
 
-FINAL_STATES = {"stored", "measured", "missed", "failed"}
+FINAL_STATES = {"stored", "measured", "missed", "interrupted", "failed"}
 
 
 def soak_plan(path: Path, resource: str, out: Path, *, every: str = "0 s", count: int = 100,
@@ -88,7 +88,7 @@ def check_invariants(job: Job, planned: int) -> Counter:
         elif r["state"] == "measured":
             assert r["touchstone"] is None
             assert "soak" in json.loads(r["metrics_json"])
-        elif r["state"] == "missed":
+        elif r["state"] in ("missed", "interrupted"):
             assert r["note"], r["seq"]
     folder = job.data_dir
     leftovers = [p for p in folder.rglob("*") if p.name.startswith(TEMP_PREFIX)]

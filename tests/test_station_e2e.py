@@ -18,7 +18,7 @@ import pytest
 from station_driver import StationProcess
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
-from acquire.journal import Journal
+from acquire.journal import journal_in
 from acquire.storage import sweep_stale_temps
 from simulators.server import SimServer
 
@@ -339,7 +339,7 @@ def test_sigkill_between_units_and_mid_sweep(sim, tmp_path) -> None:
         time.sleep(0.3)
         st.signal(signal.SIGKILL)
         assert st.wait() == -signal.SIGKILL
-    with Journal.in_folder(out) as journal:
+    with journal_in(out) as journal:
         assert journal.reconcile() == []  # nothing was left half-recorded
     stored = agree(out)
     assert len(stored) == 5  # 2 golden checks, 3 units; the unit in flight has no file
@@ -365,7 +365,7 @@ def test_sigkill_at_random_moments_never_tears_a_record(sim, tmp_path) -> None:
             time.sleep(float(rng.uniform(0.05, 1.5)))
             st.signal(signal.SIGKILL)
             st.wait()
-        with Journal.in_folder(out) as journal:
+        with journal_in(out) as journal:
             journal.reconcile()
         # what the next start does: temp files of the killed writer go (never a live one's)
         sweep_stale_temps(out)

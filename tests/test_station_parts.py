@@ -17,7 +17,7 @@ import pytest
 from test_station_support import GOLDEN, write_plan
 
 from acquire.errors import PlanError
-from acquire.journal import Journal
+from acquire.journal import StoredFields, journal_in
 from acquire.plan import load_plan
 from acquire.station.config import station_config
 from acquire.station.counters import count_yield
@@ -168,7 +168,7 @@ def spec(tmp_path: Path, **tol):
 
 def test_differences_match_scikit_rf(tmp_path: Path) -> None:
     """Oracle: scikit-rf's s_db and s_deg (Touchstone-style dB and degrees)."""
-    rf = pytest.importorskip("skrf")
+    import skrf as rf
     ref, meas = antenna(), antenna(f0=2.452e9, r=47.0) * np.exp(-1j * 0.02)
     freq = rf.Frequency.from_f(F, unit="Hz")
     nref, nmeas = rf.Network(frequency=freq, s=ref, z0=50), rf.Network(frequency=freq, s=meas,
@@ -232,7 +232,7 @@ def test_golden_band_and_grid(tmp_path: Path) -> None:
 
 def test_line_state_from_the_journal(tmp_path: Path) -> None:
     golden = GoldenSpec("GOLDEN", GOLDEN, every_units=2, every_s=3600.0)
-    with Journal.in_folder(tmp_path) as j:
+    with journal_in(tmp_path) as j:
         run = j.start_run("station", "patch-station")
         state = line_state(j, "patch-station", golden)
         assert state.due and "no golden check on record" in state.due_reason
@@ -240,7 +240,8 @@ def test_line_state_from_the_journal(tmp_path: Path) -> None:
         assert not line_state(j, "patch-station", golden).due
         for seq in range(2):
             p = j.plan_measurement(run, seq, tmp_path / f"u{seq}.s1p", serial=f"PA-{seq}")
-            j.store_measurement(p, touchstone=p.touchstone, summary=None, verdict="pass")
+            j.store_measurement(p, touchstone=p.touchstone, summary=None, raw_touchstone=None,
+                                fields=StoredFields(verdict="pass"))
         state = line_state(j, "patch-station", golden)
         assert state.due and state.units_since == 2 and "2 units since" in state.due_reason
         later = datetime.now(timezone.utc) + timedelta(hours=2)
@@ -264,7 +265,8 @@ def test_line_state_from_the_journal(tmp_path: Path) -> None:
 
 def test_worst_swr_in_band_matches_scikit_rf(tmp_path: Path) -> None:
     """Oracle: scikit-rf ``Network.s_vswr`` (SWR = (1+|Γ|)/(1-|Γ|), Pozar ch. 2)."""
-    rf = pytest.importorskip("skrf")
+    import skrf as rf
+
     from acquire.checks import evaluate_checks
     from acquire.station.figures import key_figures
 

@@ -19,7 +19,7 @@ from test_station_support import PLAN
 
 from acquire.checks import evaluate_checks
 from acquire.cli import main
-from acquire.journal import Journal
+from acquire.journal import StoredFields, journal_in
 from acquire.measure import worst_margin
 from acquire.plan import load_plan
 from acquire.station.errors import StationError
@@ -87,17 +87,19 @@ def fill(folder: Path, units: list[tuple[str, float]], *, kind: str = "station")
     """Journal judged sweeps of antennas resonating at the given frequencies."""
     plan = load_plan(PLAN)
     out = []
-    with Journal.in_folder(folder) as j:
+    with journal_in(folder) as j:
         run = j.start_run(kind, plan.name, station="t")
         for seq, (serial, f0) in enumerate(units):
             sweep = Sweep(F, antenna(f0).reshape(-1, 1, 1), meta={"serial": serial})
             verdict = evaluate_checks(list(plan.checks), sweep)
             verdict = with_figures(verdict, key_figures(sweep, verdict, plan, None))
             p = j.plan_measurement(run, seq, folder / f"{serial}-{seq}.s1p", serial=serial)
-            j.store_measurement(p, touchstone=p.touchstone, summary=None,
-                                verdict=verdict.verdict, exit_code=verdict.exit_code,
-                                worst_margin=worst_margin(verdict), metrics=verdict.metrics,
-                                verdict_json=verdict.to_json(indent=None))
+            j.store_measurement(p, touchstone=p.touchstone, summary=None, raw_touchstone=None,
+                                fields=StoredFields(
+                                    verdict=verdict.verdict, exit_code=verdict.exit_code,
+                                    worst_margin=worst_margin(verdict),
+                                    metrics_json=json.dumps(verdict.metrics),
+                                    verdict_json=verdict.to_json(indent=None)))
             out.append(verdict.to_dict())
         j.record_golden(run, "GOLDEN", True)
         j.record_golden(run, "GOLDEN", False, message="moved")

@@ -42,7 +42,7 @@ from typing import Any
 
 import numpy as np
 
-from acquire.calibration.methods import ErrorModel
+from acquire.calibration.methods import ErrorModel, canonical_name
 from acquire.errors import CalError
 from acquire.jsonsafe import json_safe
 from acquire.storage import safe_component, write_new
@@ -372,7 +372,8 @@ class _Reader:
         terms = {t: self.array(f"terms/{t}.npy", np.complex128, n) for t in term_names}
         raw = {r: self.array(f"raw/{r}.npy", np.complex128, n) for r in raw_names}
         try:
-            model = ErrorModel.from_flat(h["method"], freq, terms)
+            model = ErrorModel.from_flat(canonical_name(h["method"], f"cal set {self.source}"),
+                                         freq, terms)
         except (ValueError, KeyError) as exc:
             self.fail(f"error terms do not form a calibration: {exc}")
         try:

@@ -22,12 +22,12 @@ import getpass
 import json
 import os
 import re
-import stat
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 from acquire.errors import PlanError
+from acquire.soak.ownership import OwnershipError, check_private
 from acquire.storage import replace_atomic, write_new
 from acquire.utc import utc_text
 from drivers.errors import SweepdError
@@ -119,6 +119,12 @@ class Job:
             write_new(self.cancel_path, json.dumps({"by": who, "utc": utc_text()}) + "\n",
                       unique=False)
 
+    def check_trusted(self) -> None:
+        """Refuse a job whose folder or files another user owns or may write (its plan
+        names commands the daemon runs)."""
+        for path in (self.dir, self.dir / "job.json", self.state_path):
+            check_private(path, f"job {self.id}:")
+
     def to_json(self) -> dict[str, Any]:
         return {
             "id": self.id, "plan_name": self.plan_name, "plan_source": str(self.plan_source),
@@ -162,8 +168,10 @@ class Spool:
         except OSError as exc:
             raise SpoolError(f"spool {self.root}: cannot create ({exc.strerror})") from None
         for folder in (self.root, self.jobs_dir):
-            if folder.stat().st_mode & (stat.S_IWGRP | stat.S_IWOTH):
-                raise SpoolError(f"spool {folder}: is writable by others; chmod 700 it")
+            try:
+                check_private(folder, "spool")
+            except OwnershipError as exc:
+                raise SpoolError(str(exc)) from None
         return self
 
     def require(self) -> Spool:

@@ -16,7 +16,7 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from acquire.journal import Journal
+from acquire.journal import JournalStore
 
 
 @dataclass(frozen=True)
@@ -63,10 +63,7 @@ def count_yield(rows: Iterable[Mapping[str, Any]]) -> Yield:
     )
 
 
-def run_yield(journal: Journal, run_id: int) -> Yield:
+def run_yield(journal: JournalStore, run_id: int) -> Yield:
     """The live counters of one run (a station shift)."""
-    rows = journal.query(
-        "SELECT serial, attempt, verdict FROM measurements WHERE run_id = ? "
-        "AND state = 'stored' AND golden = 0 ORDER BY id", (run_id,),
-    )
-    return count_yield(rows)
+    rows = journal.run_measurements(run_id, ("stored",))
+    return count_yield(r for r in rows if not r["golden"])

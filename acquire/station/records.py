@@ -19,6 +19,8 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from acquire.journal import JournalStore
+
 # key, label, unit, path into metrics_json
 BASE_METRICS: tuple[tuple[str, str, str, tuple[str, ...]], ...] = (
     ("resonance_hz", "resonance (min |S11|)", "Hz", ("S11", "resonance_hz")),
@@ -59,22 +61,10 @@ class Record:
         return self.fields[key]
 
 
-def query_records(journal: Any, *, since_utc: str | None = None, plan: str | None = None
+def query_records(journal: JournalStore, *, since_utc: str | None = None, plan: str | None = None
                   ) -> list[Record]:
     """Every measurement row (all states), oldest first, as records."""
-    where, params = [], []
-    if since_utc is not None:
-        where.append("m.time_utc >= ?")
-        params.append(since_utc)
-    if plan is not None:
-        where.append("r.plan = ?")
-        params.append(plan)
-    sql = ("SELECT m.id, m.run_id, r.plan, r.station, m.time_utc, m.serial, m.attempt, "
-           "m.golden, m.state, m.verdict, m.worst_margin, m.cal_id, m.instrument, "
-           "m.touchstone, m.summary, m.metrics_json, m.verdict_json FROM measurements m "
-           "JOIN runs r ON r.id = m.run_id"
-           + (" WHERE " + " AND ".join(where) if where else "") + " ORDER BY m.time_utc, m.id")
-    return [record(row) for row in journal.query(sql, tuple(params))]
+    return [record(row) for row in journal.measurements(since_utc=since_utc, plan=plan)]
 
 
 def record(row: Any) -> Record:

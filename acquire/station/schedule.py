@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import datetime
 
-from acquire.journal import Journal
+from acquire.journal import JournalStore
 from acquire.station.golden import GoldenSpec
 from acquire.units import format_duration
 from acquire.utc import parse_utc, utc_now, utc_text
@@ -29,18 +29,11 @@ class LineState:
     anchor_utc: str | None = None  # last good golden check, or the releasing cal
 
 
-def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
+def line_state(journal: JournalStore, plan: str, spec: GoldenSpec, *,
                cal_created: datetime | None = None, now: datetime | None = None) -> LineState:
     """The line's golden-check state for ``plan`` (see the module docstring)."""
-    last = journal.query_one(
-        "SELECT g.time_utc, g.passed, g.message FROM golden_checks g JOIN runs r "
-        "ON r.id = g.run_id WHERE r.plan = ? ORDER BY g.time_utc DESC, g.id DESC LIMIT 1",
-        (plan,),
-    )
-    last_pass = journal.query_one(
-        "SELECT MAX(g.time_utc) FROM golden_checks g JOIN runs r ON r.id = g.run_id "
-        "WHERE r.plan = ? AND g.passed = 1", (plan,),
-    )[0]
+    last = journal.last_golden(plan)
+    last_pass = journal.last_good_golden_utc(plan)
     cal_text = utc_text(cal_created) if cal_created is not None else None
     anchor = last_pass
     if last is not None and not last["passed"]:
@@ -50,12 +43,7 @@ def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
         anchor = cal_text  # released by a calibration made after the failed check
     if anchor is None:
         return LineState(due=True, due_reason=f"no golden check on record for plan {plan}")
-    # ">=": journal times have millisecond resolution, and a unit journalled in the same
-    # millisecond as the check (or the releasing cal) came after it.
-    units = int(journal.query_one(
-        "SELECT COUNT(*) FROM measurements m JOIN runs r ON r.id = m.run_id WHERE r.plan = ? "
-        "AND m.golden = 0 AND m.state = 'stored' AND m.time_utc >= ?", (plan, anchor),
-    )[0])
+    units = journal.units_since(plan, anchor)
     if spec.every_units and units >= spec.every_units:
         return LineState(due=True, due_reason=f"{units} units since the last good golden "
                          f"check (every {spec.every_units})", units_since=units,

@@ -8,12 +8,13 @@ every outcome, errors included (``RESULT_KEYS``; see README "sweepd measure").
 
 from __future__ import annotations
 
+import contextlib
 import shlex
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from acquire.journal import Journal
+from acquire.journal import journal_in
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
@@ -54,8 +55,13 @@ class Outcome:
         return self.result.exit_code
 
 
-def measure_one(plan: Plan, request: Request) -> Outcome:
-    """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure."""
+def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
+    """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure.
+
+    ``session`` is an open ``Session`` for this plan on the request's instrument (the
+    measurement service keeps one open between calls); without it one is opened and
+    closed here.
+    """
     from acquire.measure import choose_calibration
     from acquire.runner import Session
 
@@ -81,11 +87,12 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         reference = load_reference(golden, plan)
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with Journal.in_folder(out_dir) as journal:
+    with journal_in(out_dir) as journal:
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
                                    station=station_id or None, resource=resource)
         try:
-            with Session(plan, resource) as session:
+            with contextlib.nullcontext(session) if session is not None \
+                    else Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
                 cal = choose_calibration(plan, session)
                 line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
@@ -109,7 +116,7 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
             journal.end_run(run_id, "stopped", note="interrupted")
             raise
         journal.end_run(run_id)
-        return Outcome(result, journal.path, run_id, resource)
+        return Outcome(result, Path(journal.where), run_id, resource)
 
 
 def golden_command(plan: Plan, request: Request) -> str:

@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from acquire.journal import Journal, Planned
+from acquire.journal import JournalStore, Planned
 from acquire.measure import CalChoice, Capture, Stored, capture, journal_stored, plan_path, store
 from acquire.plan import Plan
 from acquire.runner import Session
@@ -33,7 +33,7 @@ class Line:
     plan: Plan
     config: StationConfig
     out_dir: Path
-    journal: Journal
+    journal: JournalStore
     run_id: int
     station_id: str = ""
     session: Session | None = None
