@@ -6,6 +6,7 @@
 - ``compact_utc(moment)``: the file-name form ``20261202T061000Z``; ``minute_text(moment)``
   the message form ``2026-12-02T06:10Z``.
 - ``epoch_text(seconds)``: ``utc_text`` of a POSIX time, ``None`` for none or non-finite.
+- ``utc_now()``: now, from the machine's clock or one a test injected (``set_clock``).
 - ``parse_utc(text)``: any ISO 8601 time with ``Z`` or an offset as an aware UTC datetime
   (a time without either is taken as UTC); ``parse_iso`` leaves a naive time naive.
 """
@@ -13,11 +14,30 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from datetime import datetime, timezone
 
 
-def utc_now() -> datetime:
+def system_now() -> datetime:
+    """The machine's clock, in UTC."""
     return datetime.now(timezone.utc)
+
+
+_source: Callable[[], datetime] = system_now
+
+
+def utc_now() -> datetime:
+    """Now, in UTC: the machine's clock unless a test has set another (``set_clock``)."""
+    return _source()
+
+
+def set_clock(source: Callable[[], datetime] | None) -> Callable[[], datetime]:
+    """Let ``utc_now`` (and so cal-set ages, journal times, schedules) read ``source``;
+    ``None`` restores the machine's clock. Returns the previous source. For tests, which
+    move time forward instead of sleeping past a validity window."""
+    global _source
+    previous, _source = _source, source or system_now
+    return previous
 
 
 def utc_text(moment: datetime | None = None, *, digits: int = 3) -> str:
