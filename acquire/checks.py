@@ -26,7 +26,8 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any
 
-from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask
+from acquire.jsonsafe import json_safe
+from acquire.masks import EDGE_RTOL, Limit, Mask, MaskResult, Segment, evaluate_mask
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
 from drivers.errors import SweepdError
@@ -278,8 +279,6 @@ def _param(check: Check, sweep: Sweep):
 
 
 def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
-    from acquire.masks import EDGE_RTOL
-
     f = sweep.freq_hz
     tol = EDGE_RTOL * max(abs(float(f[-1])), 1.0)
     if lo < f[0] - tol or hi > f[-1] + tol:
@@ -361,7 +360,7 @@ class Verdict:
 
     def to_json(self, indent: int | None = 2) -> str:
         """Stable JSON (keys in a fixed order, no NaN or infinity)."""
-        return json.dumps(_finite_json(self.to_dict()), indent=indent, allow_nan=False,
+        return json.dumps(json_safe(self.to_dict()), indent=indent, allow_nan=False,
                           ensure_ascii=True)
 
     def summary_line(self) -> str:
@@ -508,17 +507,4 @@ def evaluate_checks(
 
         key = key_metrics(sweep)
     rule = decision.to_dict() if decision is not None else {}
-    return Verdict(tuple(results), info, _finite_json(key), rule)
-
-
-def _finite_json(value: Any) -> Any:
-    """Plain JSON values: numpy scalars unwrapped, NaN and infinity as ``None``."""
-    if hasattr(value, "item") and not isinstance(value, (list, dict, str)):
-        value = value.item()
-    if isinstance(value, float):
-        return value if value == value and abs(value) != float("inf") else None
-    if isinstance(value, dict):
-        return {k: _finite_json(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_finite_json(v) for v in value]
-    return value
+    return Verdict(tuple(results), info, json_safe(key), rule)
