@@ -35,7 +35,8 @@ from drivers.errors import SweepdError
 VERDICT_FORMAT = "sweepd-verdict"
 VERDICT_VERSION = 1
 EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2}
-CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance")
+CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance", "insertion_loss",
+               "return_loss", "group_delay_flatness")  # the last three: acquire.twoport_checks
 
 
 @dataclass(frozen=True)
@@ -473,6 +474,11 @@ def parse_checks(node: Node) -> list[Check]:
             item.fail(f"must hold exactly one check ({', '.join(CHECK_KINDS)}), "
                       f"got {len(item.value)} keys")
         kind = next(iter(item.value))
+        if kind not in _PARSERS:  # two-port limits
+            from acquire.twoport_checks import PARSERS
+
+            checks.append(PARSERS[kind](item[kind]))
+            continue
         checks.append(_PARSERS[kind](item[kind]))
     return checks
 
