@@ -18,6 +18,7 @@ import pytest
 import skrf as rf
 
 from acquire.cli import main
+from acquire.errors import CalError
 from acquire.guided import Options, calibrate
 from acquire.plan import load_plan
 from simulators.bench import noise_sigma
@@ -117,3 +118,37 @@ def test_plausibility_a_thru_left_out_and_a_thru_left_in(sim: SimServer, tmp_pat
         raw = session.measure()
     corrected = outcome.calset.correct(raw)
     assert np.abs(corrected.s - truth.s).max() < 1e-9
+
+
+def test_verification_with_a_two_port_check_device(sim: SimServer, tmp_path: Path) -> None:
+    """An attenuator as check device: its truth file verifies all four parameters; a
+    reference of another attenuation fails (S21 named) and no cal set is saved."""
+    plan = _plan_copy(tmp_path, 101)
+    good, wrong = tmp_path / "pad10.s2p", tmp_path / "pad6.s2p"
+    for path, db in ((good, 10), (wrong, 6)):
+        assert main(["sim", "truth", "--device", "attenuator", "--param",
+                     f"attenuation_db={db}", "--start", "10 MHz", "--stop", "6 GHz",
+                     "--points", "101", "-o", str(path)]) == 0
+    sim.bench.set_device("attenuator-10db")
+    try:
+        text = io.StringIO()
+        outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
+                                                     prompt="switch", verify=str(good)),
+                            stdout=text)
+        assert outcome.exit_code == 0, text.getvalue()
+        assert outcome.verification.passed and outcome.verification.worst_error < 1e-9
+        text = io.StringIO()
+        outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource, script="",
+                                                     verify=str(wrong), retries=1),
+                            stdout=text)
+        assert outcome.exit_code == 1 and outcome.saved is None
+        assert "verification FAILED" in text.getvalue()
+        assert outcome.verification.name.endswith(" S21")
+        one_port = tmp_path / "one.s1p"
+        assert main(["sim", "truth", "--device", "check-25ohm", "--start", "10 MHz", "--stop",
+                     "6 GHz", "--points", "101", "-o", str(one_port)]) == 0
+        with pytest.raises(CalError, match="give an .s2p file"):
+            calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch",
+                                               verify=str(one_port)), stdout=io.StringIO())
+    finally:
+        sim.bench.set_device("cable-1m")
