@@ -147,7 +147,7 @@ def test_verification_with_a_two_port_check_device(sim: SimServer, tmp_path: Pat
         one_port = tmp_path / "one.s1p"
         assert main(["sim", "truth", "--device", "check-25ohm", "--start", "10 MHz", "--stop",
                      "6 GHz", "--points", "101", "-o", str(one_port)]) == 0
-        with pytest.raises(CalError, match="give an .s2p file"):
+        with pytest.raises(CalError, match=r"give an \.s2p file"):
             calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch",
                                                verify=str(one_port)), stdout=io.StringIO())
     finally:
