@@ -372,8 +372,8 @@ class _Reader:
         terms = {t: self.array(f"terms/{t}.npy", np.complex128, n) for t in term_names}
         raw = {r: self.array(f"raw/{r}.npy", np.complex128, n) for r in raw_names}
         try:
-            model = ErrorModel.from_flat(canonical_name(h["method"], f"cal set {self.source}"),
-                                         freq, terms)
+            canonical_name(h["method"], f"cal set {self.source}")  # warns on an older name
+            model = ErrorModel.from_flat(h["method"], freq, terms)  # kept: the id covers it
         except (ValueError, KeyError) as exc:
             self.fail(f"error terms do not form a calibration: {exc}")
         try:
