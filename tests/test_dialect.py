@@ -96,8 +96,9 @@ def test_tabletop_dialect_loads() -> None:
     assert d.opc_after_setting is True
     assert [f.encoding for f in d.formats] == ["ascii"] and d.byte_orders is None
     assert d.layout == "db_deg" and d.wait == "opc"
-    assert d.settings["start"].scale == 1e6 and d.frequency_scale == 1e6
-    assert d.frequency_query is not None and d.frequency_query.text == "MEASure:AXIS?"
+    axis = d.frequency
+    assert d.settings["start"].scale == 1e6 and axis is not None and axis.scale == 1e6
+    assert axis.kind == "list" and axis.query is not None and axis.query.text == "MEASure:AXIS?"
     assert d.switch is not None and d.switch.reply == "token"
 
 
@@ -185,7 +186,8 @@ BAD = [
     ("data.traces.S21", "S21\n", "data.traces.S21: trace token 'S21\\n' contains a newline"),
     ("data.traces.S21", "", "data.traces.S21: trace token must be a non-empty string"),
     ("data.traces.S33", "S33", "data.traces: unknown key 'S33'"),
-    ("data.trace_query", ":TRAC:DATA?", "data.trace_query: template must use {trace}"),
+    ("data.trace_query", ":TRAC:DATA?", "data.trace_query: template must use {trace} (or a measurement token) when data.traces "
+     "lists 4 traces"),
     (
         "data.trace_query",
         ":TRAC:DATA? {param}",
@@ -221,7 +223,7 @@ BAD = [
         "big",
         "data.byte_order: give either 'fixed' or the selectable orders",
     ),
-    ("trigger.wait", "poll", "trigger.wait: must be one of wai, opc, got 'poll'"),
+    ("trigger.wait", "poll", "trigger.poll: is required when wait is 'poll'"),
     ("trigger.wai", DELETE, "trigger.wai: is required when wait is 'wai'"),
     ("trigger.command", DELETE, "trigger.command: is required"),
     (
