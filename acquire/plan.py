@@ -47,6 +47,7 @@ class InstrumentSpec:
     data_format: str | None = None  # None: the dialect's preferred (binary where allowed)
     byte_order: str | None = None  # None: the dialect's preferred
     baud_rate: int | None = None  # serial resources only
+    max_sweep_time_s: float = 120.0  # an instrument claiming a longer sweep is refused
 
 
 @dataclass(frozen=True)
@@ -153,7 +154,7 @@ def parse_plan(root: Node, source: Path) -> Plan:
 def _instrument(node: Node) -> InstrumentSpec:
     node.mapping(
         ("resource", "dialect", "timeout", "connect_timeout", "data_format", "byte_order",
-         "baud_rate"),
+         "baud_rate", "max_sweep_time"),
         required=("resource",),
     )
     resource = node["resource"].text()
@@ -175,6 +176,7 @@ def _instrument(node: Node) -> InstrumentSpec:
         data_format=node["data_format"].text(None, choices=("ascii", "real32", "real64")),
         byte_order=node["byte_order"].text(None, choices=("big", "little")),
         baud_rate=node["baud_rate"].integer(None, lo=50, hi=10_000_000),
+        max_sweep_time_s=node["max_sweep_time"].quantity("time", 120.0, lo=0.001, hi=86_400),
     )
 
 

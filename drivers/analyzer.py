@@ -178,7 +178,7 @@ class Analyzer:
             reply, self._talk.where(d.identity.text), shape.separator, shape.fields
         )
         for command in d.opening:
-            t.write(command.render())
+            self._talk.write(command.render())
         self._formats.choose()
         self._errors.check("after opening")
 
