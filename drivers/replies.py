@@ -141,17 +141,19 @@ SHOWN_ENTRIES = 5  # entries spelled out in one message; the rest are counted
 SHOWN_TEXT = 80  # characters of each entry's text
 
 
-def format_entries(entries: list[tuple[int, str]] | tuple[tuple[int, str], ...]) -> str:
+def format_entries(
+    entries: list[tuple[int, str]] | tuple[tuple[int, str], ...], shown: int = SHOWN_ENTRIES
+) -> str:
     """``-222 "Data out of range"; -113 "Undefined header"``, bounded in count and length.
 
     A flooding instrument's queue stays one readable line: the first ``SHOWN_ENTRIES``
-    entries, each text cut to ``SHOWN_TEXT`` characters, then ``(+N more)``.
+    entries (or ``shown``), each text cut to ``SHOWN_TEXT`` characters, then ``(+N more)``.
     """
-    shown = []
-    for code, text in entries[:SHOWN_ENTRIES]:
+    parts = []
+    for code, text in entries[:shown]:
         text = "".join(ch if ch.isprintable() else "?" for ch in text)
         if len(text) > SHOWN_TEXT:
             text = text[: SHOWN_TEXT - 3] + "..."
-        shown.append(f'{code} "{text}"')
-    more = len(entries) - len(shown)
-    return "; ".join(shown) + (f" (+{more} more)" if more > 0 else "")
+        parts.append(f'{code} "{text}"')
+    more = len(entries) - len(parts)
+    return "; ".join(parts) + (f" (+{more} more)" if more > 0 else "")

@@ -51,6 +51,14 @@ def build(core: AnalyzerCore) -> CommandTree:
     """The command tree of this personality, bound to ``core``."""
     tree = CommandTree()
     state = SlotState()
+    power_on_reset = core.reset
+
+    def reset() -> None:  # *RST and a reboot forget the slots too
+        power_on_reset()
+        state.defined.clear()
+        state.selected = 0
+
+    core.reset = reset  # type: ignore[method-assign]
     add_common(tree, core, ("*RST", "*CLS", "*OPC", "*WAI", "*ESR"))
     add = _guarded_adder(tree, core, state)
     _add_channel(add, core)
@@ -212,8 +220,6 @@ def _add_unit(add, core: AnalyzerCore, state: SlotState) -> None:
     def preset(call: Call) -> None:
         call.none()
         core.reset()
-        state.defined.clear()
-        state.selected = 0
         state.busy_until = time.monotonic() + PRESET_S * core.time_scale
 
     def path_set(call: Call) -> None:

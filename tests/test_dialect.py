@@ -186,7 +186,8 @@ BAD = [
     ("data.traces.S21", "S21\n", "data.traces.S21: trace token 'S21\\n' contains a newline"),
     ("data.traces.S21", "", "data.traces.S21: trace token must be a non-empty string"),
     ("data.traces.S33", "S33", "data.traces: unknown key 'S33'"),
-    ("data.trace_query", ":TRAC:DATA?", "data.trace_query: template must use {trace} (or a measurement token) when data.traces "
+    ("data.trace_query", ":TRAC:DATA?",
+     "data.trace_query: template must use {trace} (or a measurement token) when data.traces "
      "lists 4 traces"),
     (
         "data.trace_query",
