@@ -106,7 +106,8 @@ def test_bare_name_and_path_resolution(tmp_path: Path) -> None:
     assert dialect_path("scpi-generic") == DIALECT_DIR / "scpi-generic.yaml"
     assert load_dialect(DIALECT_DIR / "tabletop-ascii.yaml").name == "tabletop-ascii"
     with pytest.raises(
-        DialectError, match=r"no dialect named 'nope' \(shipped: scpi-generic, slotted-blocks, tabletop-ascii"
+        DialectError,
+        match=r"no dialect named 'nope' \(shipped: scpi-generic, slotted-blocks, tabletop-ascii",
     ):
         load_dialect("nope")
     with pytest.raises(DialectError, match=r"missing.yaml: file not found"):
