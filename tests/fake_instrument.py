@@ -193,7 +193,7 @@ class FakeInstrument:
         if self.mode == "huge_header":
             return b"#9999999999" + b"\0" * 64
         if self.format == "ASC":
-            return ",".join(repr(v) for v in values).encode("ascii")
+            return ",".join(repr(v) for v in values.tolist()).encode("ascii")
         order = ">" if self.border == "NORM" else "<"
         width = 4 if self.format.endswith("32") else 8
         payload = values.astype(f"{order}f{width}").tobytes()
