@@ -17,6 +17,7 @@ from typing import Any
 from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
 from acquire.yamlfile import Node, load_yaml
+from drivers.dialect_model import STANDARDS
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
@@ -34,6 +35,7 @@ CAL_METHODS = (
     "response-short-load", "thru-response", "enhanced-response", "none",
 )
 PROMPTS = ("terminal", "command", "switch", "scripted")
+SITE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.:+-]{0,31}$")
 
 
 @dataclass(frozen=True)
@@ -83,6 +85,7 @@ class CalibrationSpec:
     prompt: str = "terminal"
     switch_command: str | None = None
     required: bool = True
+    switch_names: dict[str, str] = field(default_factory=dict)  # ours -> the fixture tool's
 
 
 @dataclass(frozen=True)
@@ -284,8 +287,9 @@ def _calibration(node: Node) -> CalibrationSpec | None:
     except ConfigError as exc:
         node["kit"].fail(str(exc))
     switch = node["switch"]
-    switch.mapping(("command",), optional=True)
+    switch.mapping(("command", "names"), optional=True)
     switch_command = switch["command"].text(None)
+    switch_names = _switch_names(switch["names"])
     if switch_command is not None and "{standard}" not in switch_command:
         switch["command"].fail("must contain {standard}, e.g. 'fixturectl connect {standard}'")
     prompt = node["prompt"].text("command" if switch_command else "terminal", choices=PROMPTS)
@@ -305,7 +309,31 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         prompt=prompt,
         switch_command=switch_command,
         required=node["required"].boolean(True),
+        switch_names=switch_names,
     )
+
+
+def _switch_names(node: Node) -> dict[str, str]:
+    """``calibration.switch.names``: our standard names -> the site fixture tool's."""
+    if not node.present:
+        return {}
+    node.mapping(STANDARDS)
+    names = {}
+    for key, child in node.items():
+        name = child.text()
+        problem = site_name_problem(name)
+        if problem:
+            child.fail(problem)
+        names[key] = name
+    return names
+
+
+def site_name_problem(name: object) -> str | None:
+    """Why ``name`` cannot stand for a fixture position in a switch command, or None."""
+    if isinstance(name, str) and SITE_NAME.match(name):
+        return None
+    return (f"must be 1-32 letters, digits or _ . : + - (starting with a letter or digit), "
+            f"got {name!r}"[:160])
 
 
 def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
