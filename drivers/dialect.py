@@ -26,6 +26,7 @@ from drivers.dialect_model import (
 )
 from drivers.dialect_parse import parse_dialect_file
 from drivers.errors import DialectError
+from sweepd_configs import shipped_dir
 
 __all__ = [
     "DIALECT_DIR",
@@ -44,7 +45,7 @@ __all__ = [
     "shown_path",
 ]
 
-DIALECT_DIR = Path(__file__).resolve().parents[1] / "configs" / "dialects"
+DIALECT_DIR = shipped_dir("dialects")
 
 
 def dialect_path(ref: str | Path) -> Path:
