@@ -13,7 +13,6 @@ import pytest
 import yaml
 from fake_instrument import FakeInstrument
 from test_analyzer import STIM, TWO_PORT, columns, expected_raw
-from test_sim_support import RawClient
 
 from drivers.analyzer import Analyzer
 from drivers.dialect import DIALECT_DIR, load_dialect
@@ -71,18 +70,23 @@ def test_define_select_read_by_number(slotted, endpoint: str, data_format: str |
     np.testing.assert_array_equal(data, want)
 
 
+def slot_definitions(sim) -> list[str]:
+    """What slots 1..4 hold, asked over the pseudo-terminal (a second way in while TCP
+    is busy; the serial line has no connections to wait for)."""
+    other = Transport(sim.serial_resource, read_termination="\r\n")
+    other.open()
+    try:
+        return [other.query(f"SLOT{n}:DEF?") for n in (1, 2, 3, 4)]
+    finally:
+        other.close()
+
+
 def test_cleanup_on_close_deletes_the_slots(slotted) -> None:
     with Analyzer(slotted.tcp_resource, load_dialect("slotted-blocks")) as an:
         an.configure(STIM)
         an.sweep(["S21"])
-        other = Transport(slotted.serial_resource, read_termination="\r\n")
-        other.open()  # the pseudo-terminal: a second way in while TCP is busy
-        try:
-            assert other.query("SLOT2:DEF?") == "S21"  # defined while the session runs
-        finally:
-            other.close()
-    with RawClient(slotted.tcp_resource, terminator=b"\r\n") as again:
-        assert [again.query(f"SLOT{n}:DEF?") for n in (1, 2, 3, 4)] == ["NONE"] * 4
+        assert slot_definitions(slotted) == TWO_PORT  # defined while the session runs
+    assert slot_definitions(slotted) == ["NONE"] * 4
 
 
 def test_polling_waits_for_the_sweep(tmp_path: Path) -> None:
