@@ -17,6 +17,7 @@ from typing import Any
 from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
 from acquire.yamlfile import Node, load_yaml, show
+from drivers.dialect_model import STANDARDS
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
@@ -30,6 +31,7 @@ ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
 PROMPTS = ("terminal", "command", "switch", "scripted")
+SITE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.:+-]{0,31}$")
 
 
 @dataclass(frozen=True)
@@ -43,6 +45,7 @@ class InstrumentSpec:
     data_format: str | None = None  # None: the dialect's preferred (binary where allowed)
     byte_order: str | None = None  # None: the dialect's preferred
     baud_rate: int | None = None  # serial resources only
+    max_sweep_time_s: float = 120.0  # an instrument claiming a longer sweep is refused
 
 
 @dataclass(frozen=True)
@@ -79,6 +82,7 @@ class CalibrationSpec:
     switch_command: str | None = None
     required: bool = True
     isolation: bool = False  # two-port methods: a step with loads on both ports
+    switch_names: dict[str, str] = field(default_factory=dict)  # ours -> the fixture tool's
 
 
 @dataclass(frozen=True)
@@ -159,7 +163,7 @@ def _decision(node: Node) -> Any:
 def _instrument(node: Node) -> InstrumentSpec:
     node.mapping(
         ("resource", "dialect", "timeout", "connect_timeout", "data_format", "byte_order",
-         "baud_rate"),
+         "baud_rate", "max_sweep_time"),
         required=("resource",),
     )
     resource = node["resource"].text()
@@ -181,6 +185,7 @@ def _instrument(node: Node) -> InstrumentSpec:
         data_format=node["data_format"].text(None, choices=("ascii", "real32", "real64")),
         byte_order=node["byte_order"].text(None, choices=("big", "little")),
         baud_rate=node["baud_rate"].integer(None, lo=50, hi=10_000_000),
+        max_sweep_time_s=node["max_sweep_time"].quantity("time", 120.0, lo=0.001, hi=86_400),
     )
 
 
@@ -294,8 +299,9 @@ def _calibration(node: Node) -> CalibrationSpec | None:
     except ConfigError as exc:
         node["kit"].fail(str(exc))
     switch = node["switch"]
-    switch.mapping(("command",), optional=True)
+    switch.mapping(("command", "names"), optional=True)
     switch_command = switch["command"].text(None)
+    switch_names = _switch_names(switch["names"])
     if switch_command is not None and "{standard}" not in switch_command:
         switch["command"].fail("must contain {standard}, e.g. 'fixturectl connect {standard}'")
     prompt = node["prompt"].text("command" if switch_command else "terminal", choices=PROMPTS)
@@ -316,7 +322,31 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         switch_command=switch_command,
         required=node["required"].boolean(True),
         isolation=_isolation(node["isolation"], METHODS[method]),
+        switch_names=switch_names,
     )
+
+
+def _switch_names(node: Node) -> dict[str, str]:
+    """``calibration.switch.names``: our standard names -> the site fixture tool's."""
+    if not node.present:
+        return {}
+    node.mapping(STANDARDS)
+    names = {}
+    for key, child in node.items():
+        name = child.text()
+        problem = site_name_problem(name)
+        if problem:
+            child.fail(problem)
+        names[key] = name
+    return names
+
+
+def site_name_problem(name: object) -> str | None:
+    """Why ``name`` cannot stand for a fixture position in a switch command, or None."""
+    if isinstance(name, str) and SITE_NAME.match(name):
+        return None
+    return (f"must be 1-32 letters, digits or _ . : + - (starting with a letter or digit), "
+            f"got {name!r}"[:160])
 
 
 def _isolation(node: Node, method: Any) -> bool:

@@ -51,6 +51,7 @@ class Session:
             data_format=spec.data_format,
             byte_order=spec.byte_order,
             serial={"baud_rate": spec.baud_rate} if spec.baud_rate else None,
+            max_sweep_time_s=spec.max_sweep_time_s,
         )
         self.identity_text = ""
         self.applied = self.plan.stimulus
