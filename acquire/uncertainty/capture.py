@@ -10,7 +10,9 @@ averaging, unless the plan states a level; drift grows with the cal set's age.
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -22,6 +24,7 @@ from acquire.uncertainty.propagate import STANDARDS, ReflectionUncertainty, refl
 from acquire.units import format_frequency
 
 FULL_REFLECTION = ("one-port", "enhanced-response")
+_PARAMS = ("S11", "S22", "S33", "S44")
 FORMAT = "sweepd-uncertainty"
 VERSION = 1
 
@@ -93,6 +96,39 @@ class SweepUncertainty:
 
 def unavailable(sweep: Sweep, why: str) -> SweepUncertainty:
     return SweepUncertainty(np.asarray(sweep.freq_hz), unavailable=why)
+
+
+def from_summary(sweep: Sweep, touchstone: Path) -> SweepUncertainty:
+    """The U stored in the capture JSON beside ``touchstone`` (``sweepd check``)."""
+    path = touchstone.with_suffix(".json")
+    try:
+        block = json.loads(path.read_text())["uncertainty"]
+    except FileNotFoundError:
+        return unavailable(sweep, f"no capture JSON {path.name} beside the file")
+    except (OSError, ValueError, KeyError, TypeError):
+        return unavailable(sweep, f"{path}: no readable uncertainty block")
+    if not isinstance(block, dict) or not block.get("available"):
+        why = block.get("unavailable") if isinstance(block, dict) else None
+        return unavailable(sweep, f"{path.name}: {why or 'no uncertainty'}")
+    out = {}
+    for name, entry in (block.get("parameters") or {}).items():
+        u = entry.get("expanded") if isinstance(entry, dict) else None
+        if not isinstance(u, list) or len(u) != sweep.points or name not in _PARAMS[:sweep.ports]:
+            continue
+        try:
+            expanded = np.asarray(u, np.float64)
+        except (TypeError, ValueError):
+            continue
+        if not np.all(np.isfinite(expanded) & (expanded >= 0)):
+            continue
+        g = np.abs(sweep.param(name))
+        near = np.asarray(entry.get("near_match") or [], bool)
+        near = near if near.shape == g.shape else np.zeros(g.shape, bool)
+        out[name] = ReflectionUncertainty(g, expanded / 2, expanded, near,
+                                          np.zeros((g.size, 2, 2)))
+    if not out:
+        return unavailable(sweep, f"{path.name}: its uncertainty does not fit this sweep")
+    return SweepUncertainty(np.asarray(sweep.freq_hz), out)
 
 
 def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
