@@ -71,3 +71,18 @@ def test_hold_rule_holds_at_once(sim, tmp_path: Path) -> None:
     (text,) = _shift(plan, sim, (GOOD[0], "serial> "))
     assert "HOLD: put PA-0001 in the hold area" in text and "retest>" not in text
     assert "##" in text  # the big banner
+
+
+def test_measure_command_reports_indeterminate(sim, tmp_path: Path,
+                                               capsys: pytest.CaptureFixture) -> None:
+    """`sweepd measure --json` (one unit for MES): exit code 3 and a schema-valid object."""
+    from acquire.cli import main
+    from tests.schema_support import validate
+
+    install_cal(tmp_path / "out")
+    plan = _plan(tmp_path, sim, "hold")
+    sim.bench.select_unit(GOOD[0])
+    code = main(["measure", str(plan), "--serial", GOOD[0], "--resource", sim.tcp_resource,
+                 "--json"])
+    data = validate(capsys.readouterr().out, "measure")
+    assert code == 3 and data["exit_code"] == 3 and data["verdict"] == "indeterminate"
