@@ -8,7 +8,7 @@ A plan's ``checks:`` list holds masks and derived checks::
       - resonance: {within: [2.43 GHz, 2.47 GHz]}
       - worst_swr: {band: [2.40 GHz, 2.50 GHz], at_most: 1.8}
 
-``parse_checks`` validates that list (errors name file and key path);
+``acquire.check_parse.parse_checks`` validates that list (errors name file and key path);
 ``evaluate_checks`` judges a sweep and returns a ``Verdict``. A check that cannot judge
 the sweep (non-finite data, a mask outside the sweep, a missing S-parameter) gives an
 ``error`` result instead of raising, so a verdict always exists and nothing already
@@ -21,22 +21,19 @@ else ``pass``; ``none`` when there were no checks. Exit codes: 0 pass/none, 1 fa
 from __future__ import annotations
 
 import json
+import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
-from acquire.errors import ConfigError
-from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask, load_mask
+from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
-from acquire.yamlfile import Node
 from drivers.errors import SweepdError
 
 VERDICT_FORMAT = "sweepd-verdict"
 VERDICT_VERSION = 1
 EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2, "indeterminate": 3}
-CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance")
 
 
 @dataclass(frozen=True)
@@ -164,7 +161,7 @@ class BandwidthCheck(Check):
                 self, f"the band reaches the sweep edge after {format_frequency(bw.width_hz)}; "
                 f"widen the sweep to measure {format_frequency(self.at_least_hz)}",
             )
-        verdict = "pass" if margin >= 0 else "fail"
+        verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
         return self._result(verdict, bw, band, more, details)
 
@@ -225,7 +222,7 @@ class ResonanceCheck(Check):
                                f"{self.name} fail: the reactance never crosses zero", details)
         margin = min(res.freq_hz - self.lo_hz, self.hi_hz - res.freq_hz)
         details["margin_hz"] = margin
-        verdict = "pass" if margin >= 0 and not res.at_edge else "fail"
+        verdict = _judged(self, margin, inside=not res.at_edge)
         where = " (minimum at the sweep edge: no resonance inside)" if res.at_edge else ""
         return CheckResult(
             self.kind, self.name, verdict,
@@ -304,6 +301,27 @@ def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
 
 class CheckError(SweepdError):
     """A check cannot judge this sweep."""
+
+
+def _judged(check: Check, margin: float, *, inside: bool = True) -> str:
+    """"pass" or "fail" from a margin; a non-finite margin is an error, never a verdict."""
+    if not math.isfinite(margin):
+        raise _check_error(check, f"margin is {margin}; a verdict needs finite numbers")
+    return "pass" if margin >= 0 and inside else "fail"
+
+
+def _unfinished_margin(details: Any) -> bool:
+    """True if any ``margin*`` value in ``details`` (at any depth) is not a finite number."""
+    if isinstance(details, dict):
+        for key, value in details.items():
+            if str(key).startswith("margin") and isinstance(value, float) \
+                    and not math.isfinite(value):
+                return True
+            if _unfinished_margin(value):
+                return True
+    elif isinstance(details, list):
+        return any(_unfinished_margin(item) for item in details)
+    return False
 
 
 def _check_error(check: Check, message: str) -> CheckError:
@@ -473,7 +491,10 @@ def evaluate_checks(
     results = []
     for check in checks:
         try:
-            results.append(_judge(check, sweep, decision, uncertainty))
+            result = _judge(check, sweep, decision, uncertainty)
+            if result.verdict != "error" and _unfinished_margin(result.details):
+                raise _check_error(check, "a margin is not a finite number; no verdict")
+            results.append(result)
         except SweepdError as exc:
             text = str(exc)
             rest = text.removeprefix(f"{check.name}: ")
@@ -511,117 +532,3 @@ def _finite_json(value: Any) -> Any:
     if isinstance(value, list):
         return [_finite_json(v) for v in value]
     return value
-
-
-# -- parsing plan entries ------------------------------------------------------------
-
-
-def parse_checks(node: Node) -> list[Check]:
-    """Validate a plan's ``checks:`` list; errors name the plan file and key path."""
-    checks: list[Check] = []
-    for item in node.elements():
-        item.mapping(CHECK_KINDS)
-        if len(item.value) != 1:
-            item.fail(f"must hold exactly one check ({', '.join(CHECK_KINDS)}), "
-                      f"got {len(item.value)} keys")
-        kind = next(iter(item.value))
-        checks.append(_PARSERS[kind](item[kind]))
-    return checks
-
-
-def mask_check(ref: str, base_dir: Path | None = None) -> MaskCheck:
-    """A mask check from a bare name (shipped library) or a path."""
-    from acquire.library import find_config
-
-    return MaskCheck(load_mask(find_config("masks", ref, base_dir)))
-
-
-def any_mask_check(ref: str, base_dir: Path | None = None) -> Check:
-    """Like ``mask_check``, but a mask file with ``domain: distance`` gives a distance check."""
-    from acquire.library import find_config
-
-    return _mask_file_check(find_config("masks", ref, base_dir))
-
-
-def _mask_file_check(path: Path) -> Check:
-    from acquire.errors import MaskError
-    from acquire.timedomain.checks import is_distance_mask, load_distance_mask
-    from acquire.yamlfile import load_yaml
-
-    if is_distance_mask(load_yaml(path, "mask", MaskError)):
-        return load_distance_mask(path)
-    return MaskCheck(load_mask(path))
-
-
-def _parse_mask(node: Node) -> Check:
-    ref = node.text()
-    try:
-        from acquire.library import find_config
-
-        path = find_config("masks", ref, node.base_dir)
-    except ConfigError as exc:
-        node.fail(str(exc))
-    return _mask_file_check(path)
-
-
-def _parse_bandwidth(node: Node) -> Check:
-    node.mapping(["below_swr", "below_return_loss", "at_least", "parameter"],
-                 required=["at_least"])
-    has_swr, has_rl = node["below_swr"].present, node["below_return_loss"].present
-    if has_swr == has_rl:
-        node.fail("needs exactly one of below_swr or below_return_loss")
-    swr_max = node["below_swr"].number(lo=1.0) if has_swr else None
-    if swr_max is not None and swr_max == 1.0:
-        node["below_swr"].fail("must be above 1 (SWR 1 is a perfect match, no bandwidth)")
-    rl = node["below_return_loss"].quantity("decibel") if has_rl else None
-    if rl is not None and rl <= 0:
-        node["below_return_loss"].fail("must be a positive return loss in dB, e.g. 10 dB")
-    at_least = node["at_least"].quantity("frequency", lo=0.0)
-    return BandwidthCheck(at_least, swr_max, rl, _reflection(node["parameter"]))
-
-
-def _parse_resonance(node: Node) -> Check:
-    node.mapping(["within", "method", "parameter"], required=["within"])
-    lo, hi = _freq_pair(node["within"])
-    method = node["method"].text("min_gamma", choices=("min_gamma", "reactance_zero"))
-    return ResonanceCheck(lo, hi, method, _reflection(node["parameter"]))
-
-
-def _parse_worst_swr(node: Node) -> Check:
-    node.mapping(["band", "at_most", "parameter"], required=["band", "at_most"])
-    lo, hi = _freq_pair(node["band"])
-    return WorstSwrCheck(lo, hi, node["at_most"].number(lo=1.0), _reflection(node["parameter"]))
-
-
-def _parse_distance(node: Node) -> Check:
-    from acquire.timedomain.checks import parse_distance_check
-
-    return parse_distance_check(node)
-
-
-def _freq_pair(node: Node) -> tuple[float, float]:
-    items = node.elements(min_len=2)
-    if len(items) != 2:
-        node.fail(f"must be a pair [low, high], got {len(items)} values")
-    lo = items[0].quantity("frequency", lo=0.0)
-    hi = items[1].quantity("frequency", lo=0.0)
-    if hi < lo:
-        node.fail(f"low end {format_frequency(lo)} lies above high end {format_frequency(hi)}")
-    return lo, hi
-
-
-def _reflection(node: Node) -> str:
-    text = node.text("S11").strip().upper()
-    if len(text) != 3 or text[0] != "S" or not text[1:].isdigit() or text[1] != text[2] \
-            or text[1] == "0":
-        node.fail(f"must be a reflection parameter such as S11 or S22, got {node.value!r}")
-    return text
-
-
-_PARSERS = {
-    "mask": _parse_mask,
-    "bandwidth": _parse_bandwidth,
-    "resonance": _parse_resonance,
-    "worst_swr": _parse_worst_swr,
-    "distance": _parse_distance,
-}

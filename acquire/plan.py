@@ -16,7 +16,7 @@ from typing import Any
 
 from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
-from acquire.yamlfile import Node, load_yaml
+from acquire.yamlfile import Node, load_yaml, show
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
@@ -29,10 +29,6 @@ _RESOURCE = re.compile(
 ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
-CAL_METHODS = (
-    "one-port", "response-open", "response-short", "response-open-short", "response-open-load",
-    "response-short-load", "thru-response", "enhanced-response", "none",
-)
 PROMPTS = ("terminal", "command", "switch", "scripted")
 
 
@@ -82,6 +78,7 @@ class CalibrationSpec:
     prompt: str = "terminal"
     switch_command: str | None = None
     required: bool = True
+    isolation: bool = False  # two-port methods: a step with loads on both ports
 
 
 @dataclass(frozen=True)
@@ -246,8 +243,8 @@ def _output(node: Node, plan_name: str) -> OutputSpec:
     elif precision_node.present:
         precision = 17
     version = ts["version"].value if ts["version"].present else "1.1"
-    if str(version) not in ("1.1", "2.0", "2"):
-        ts["version"].fail(f"must be 1.1 or 2.0, got {version!r}")
+    if isinstance(version, bool) or version not in ("1.1", "2.0", "2", 1.1, 2.0):
+        ts["version"].fail(f"must be 1.1 or 2.0, got {show(version)}")
     return OutputSpec(
         dir=out_dir,
         name=name,
@@ -281,11 +278,17 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         return None
     node.mapping(
         ("method", "kit", "max_age", "reference_plane", "dir", "power_mismatch",
-         "if_bandwidth_mismatch", "allow_interpolation", "prompt", "switch", "required"),
+         "if_bandwidth_mismatch", "allow_interpolation", "prompt", "switch", "required",
+         "isolation"),
     )
-    method = node["method"].text("one-port", choices=CAL_METHODS)
+    # the method registry brings numpy: only plans with a calibration section load it
+    from acquire.calibration.methods import ALIASES, METHODS, canonical_name
+
+    method = node["method"].text("one-port", choices=(*METHODS, "none", *ALIASES))
     if method == "none":
         return None
+    where = node["method"]
+    method = canonical_name(method, f"{where.source}: {where.path}")
     try:
         kit = find_config("calkits", node["kit"].text("ideal"), node.base_dir)
     except ConfigError as exc:
@@ -312,13 +315,22 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         prompt=prompt,
         switch_command=switch_command,
         required=node["required"].boolean(True),
+        isolation=_isolation(node["isolation"], METHODS[method]),
     )
+
+
+def _isolation(node: Node, method: Any) -> bool:
+    """``isolation: true`` adds a step with loads on both ports (two-port methods only)."""
+    wanted = node.boolean(False)
+    if wanted and not method.needs_thru:
+        node.fail(f"method {method.name} corrects no transmission: no isolation to measure")
+    return wanted
 
 
 def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
     checks: tuple[Any, ...] = ()
     if node.present and node.value is not None:
-        from acquire.checks import parse_checks
+        from acquire.check_parse import parse_checks
 
         checks = tuple(parse_checks(node))
     if dtf.present:  # distance-to-fault settings: defaults for the distance checks

@@ -11,14 +11,8 @@ import json
 import numpy as np
 import pytest
 
-from acquire.checks import (
-    BandwidthCheck,
-    ResonanceCheck,
-    WorstSwrCheck,
-    evaluate_checks,
-    mask_check,
-    parse_checks,
-)
+from acquire.check_parse import mask_check, parse_checks
+from acquire.checks import BandwidthCheck, ResonanceCheck, WorstSwrCheck, evaluate_checks
 from acquire.errors import MaskError, PlanError
 from acquire.sweep import Sweep
 from acquire.yamlfile import Node

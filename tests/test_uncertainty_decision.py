@@ -12,7 +12,8 @@ import json
 import numpy as np
 import pytest
 
-from acquire.checks import evaluate_checks, parse_checks
+from acquire.check_parse import parse_checks
+from acquire.checks import evaluate_checks
 from acquire.errors import PlanError
 from acquire.sweep import Sweep
 from acquire.uncertainty.budget import Budget
