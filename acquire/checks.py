@@ -164,6 +164,16 @@ class BandwidthCheck(Check):
             )
         verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
+        return self._result(verdict, bw, band, more, details)
+
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance on the band where |S| ± w is surely / possibly below."""
+        from acquire.uncertainty.guarded import guarded_bandwidth
+
+        return guarded_bandwidth(self, self.evaluate(sweep), sweep, rule, uncertainty)
+
+    def _result(self, verdict: str, bw: Any, band: Any, more: str, details: dict[str, Any]
+                ) -> CheckResult:
         return CheckResult(
             self.kind, self.name, verdict,
             f"{self.name} {verdict}: {format_frequency(bw.width_hz)}{more} "
