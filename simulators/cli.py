@@ -33,9 +33,13 @@ def device_params(pairs: list[str]) -> dict[str, Any]:
 
 def serve(args: argparse.Namespace, out: Any = None) -> int:
     """Start the simulator described by ``args``; block until a signal; exit code."""
+    out = out or sys.stdout
+    if getattr(args, "sim_command", None) == "truth":
+        from simulators.truth import write_truth
+
+        return write_truth(args, device_params(args.param), out)
     from simulators.server import SimServer
 
-    out = out or sys.stdout
     hislip_port = None if getattr(args, "no_hislip", False) else args.hislip_port
     sim = SimServer(personality=args.personality, tcp_port=None if args.no_tcp else args.port,
                     hislip_port=hislip_port, serial=args.serial, control_port=args.control_port,

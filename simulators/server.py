@@ -19,7 +19,7 @@ from pathlib import Path
 from types import ModuleType
 from typing import Any
 
-from simulators import generic, tabletop
+from simulators import generic, slotted, tabletop
 from simulators.bench import Bench
 from simulators.calkit import DEFAULT_KIT
 from simulators.clock import SimClock
@@ -28,7 +28,8 @@ from simulators.errors import SimError
 from simulators.faults import Fault, Faults
 from simulators.instrument import AnalyzerCore
 
-PERSONALITIES: dict[str, ModuleType] = {"generic": generic, "tabletop": tabletop}
+PERSONALITIES: dict[str, ModuleType] = {"generic": generic, "tabletop": tabletop,
+                                         "slotted": slotted}
 
 
 class SimServer:

@@ -13,13 +13,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from station_driver import StationProcess
 from test_soak_support import check_invariants, journal_rows, soak_plan, submit
 from test_station_support import BAD, GOOD, install_cal, rows, write_plan
 
 from acquire.cli import main
 from acquire.soak.spool import Spool
 from acquire.soak.worker import SoakWorker, StopSignal
-from acquire.station.driver import StationProcess
 from simulators.server import SimServer
 
 ROOT = Path(__file__).resolve().parents[1]
