@@ -347,7 +347,7 @@ class VisaLink:
         if status == status_code.error_timeout:
             raise LinkTimeout(partial + bytes(data))
         if status < 0:
-            raise LinkClosed(f"VISA status {status!r}")
+            raise LinkClosed(f"VISA status {getattr(status, 'name', status)}")
         if not data and deadline.expired():
             raise LinkTimeout(partial)
         return bytes(data)
@@ -386,7 +386,11 @@ class VisaLink:
 
 
 class HislipLink(VisaLink):
-    """HiSLIP through pyvisa-py's client; see the module docstring."""
+    """HiSLIP (and VXI-11) through pyvisa-py's clients; see the module docstring.
+
+    Both protocols frame messages (DataEnd; the END flag), so no termination character is
+    involved and a fresh session is the clean state after a fault.
+    """
 
     resync_by_reconnect = True
 

@@ -212,7 +212,7 @@ class Transport:
     def _make_link(self, resource: Any) -> Link:
         resource.read_termination = None
         resource.write_termination = ""
-        if self.kind == "hislip":
+        if self.kind in ("hislip", "vxi11"):
             return HislipLink(resource)
         if self.kind != "socket":
             return VisaLink(resource)
