@@ -77,6 +77,8 @@ def main(argv: list[str] | None = None) -> int:
         where = f" ({exc.filename})" if exc.filename else ""
         _error(f"{exc.strerror or exc}{where}")
     except Exception as exc:  # anything unforeseen: exit 2, never 1 (1 means "failed")
+        from acquire.errors import internal_error_text
+
         _error(internal_error_text(exc))
     return EXIT_ERROR
 
@@ -86,17 +88,6 @@ def _error(message: str) -> None:
     from drivers.yamlnode import one_line
 
     print(f"sweepd: error: {one_line(message)}", file=sys.stderr)
-
-
-def internal_error_text(exc: BaseException) -> str:
-    """One line for an unexpected exception; its traceback goes to the log at debug level."""
-    import logging
-
-    logging.getLogger("sweepd").debug("unexpected error", exc_info=exc)
-    detail = " ".join(str(exc).split())
-    detail = detail if len(detail) <= 160 else detail[:157] + "..."
-    return (f"internal error ({type(exc).__name__}{': ' + detail if detail else ''}); "
-            "run with -vv for the traceback")
 
 
 def _check_resource(args: argparse.Namespace) -> bool:

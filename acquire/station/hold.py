@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from acquire.station.loop import QUIT, Quit
+from acquire.station.interrupts import QUIT, Quit
 from acquire.station.unit import UnitResult
 
 

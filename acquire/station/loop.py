@@ -29,7 +29,8 @@ from acquire.station.config import StationConfig, check_station_id, station_conf
 from acquire.station.counters import run_yield
 from acquire.station.display import banner, unit_lines
 from acquire.station.errors import SerialRefused, StationError
-from acquire.station.interrupts import deferred_interrupt, terminate_as_interrupt
+from acquire.station.hold import handle_indeterminate
+from acquire.station.interrupts import QUIT, Quit, deferred_interrupt, terminate_as_interrupt
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
 from acquire.station.terminal import Terminal
@@ -48,13 +49,6 @@ HELP = (
     "  g  golden check now     c  calibrate now     s  counters     ?  this help",
     "  q  quit (end of input and Ctrl-C also end the shift; nothing saved is lost)",
 )
-QUIT = ("q", "quit", "exit")
-
-
-class Quit(Exception):
-    """The operator ended the shift at a prompt."""
-
-
 @dataclass(frozen=True)
 class StationOptions:
     resource: str | None = None
@@ -189,8 +183,6 @@ class Station:
         self.term.say(f"measuring {serial} ...")
         result = self._measure(serial)
         if result is not None and result.verdict == "indeterminate":
-            from acquire.station.hold import handle_indeterminate
-
             handle_indeterminate(self, serial, result)
         elif result is not None:
             self._show(result)

@@ -13,7 +13,8 @@ from typing import Any
 
 import numpy as np
 
-from acquire.errors import MaskError
+from acquire.errors import CheckError, MaskError
+from acquire.metrics import bandwidth
 from acquire.uncertainty.capture import SweepUncertainty
 from acquire.uncertainty.decision import (
     FAIL,
@@ -97,9 +98,6 @@ def guarded_bandwidth(check: Any, base: Any, sweep: Any, rule: DecisionRule,
     the threshold is surely there, the band where |S| − w does is possibly there; pass
     if the sure band is wide enough, fail if even the possible band is not, else
     indeterminate. Both are taken around the resonance the simple check found."""
-    from acquire.checks import CheckError
-    from acquire.metrics import bandwidth
-
     if base.verdict == "error" or "center_hz" not in base.details:
         return base
     interval = unc.interval(check.parameter, "magnitude_db", rule.guard) if unc else None
