@@ -19,7 +19,7 @@ import pytest
 from acquire.commands import check as check_cmd
 from acquire.commands import plot as plot_cmd
 from acquire.errors import ConfigError
-from acquire.plots import PlotError
+from acquire.plotting import PlotError
 from acquire.sweep import Sweep
 
 

@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from acquire.checks import mask_check
-from acquire.plots import PlotError, plot_file, render
+from acquire.plotting import PlotError, plot_file, render
 from acquire.sweep import Sweep
 
 
@@ -43,7 +43,7 @@ def texts(ax):
 
 
 def test_import_does_not_load_matplotlib():
-    code = "import sys, acquire.plots; assert 'matplotlib' not in sys.modules"
+    code = "import sys, acquire.plotting; assert 'matplotlib' not in sys.modules"
     subprocess.run([sys.executable, "-c", code], check=True)
 
 
@@ -175,3 +175,26 @@ def test_phase_panel_breaks_the_line_at_each_wrap(tmp_path):
     assert np.isnan(y).sum() >= 10  # 3 ns over 6 GHz: 18 turns
     finite = y[np.isfinite(y)]
     assert np.all(np.abs(np.diff(y)[np.isfinite(np.diff(y))]) < 180) and finite.size > 300
+
+
+def test_dollar_signs_in_user_text_stay_literal(tmp_path):
+    # Issue 10.11: a '$' in a title, file name or mask name was read as math markup;
+    # an odd formula crashed the drawing. Every text is drawn as written.
+    (tmp_path / "m.yaml").write_text(
+        "name: cost $\\frac{1\nparameter: S11\nquantity: swr\n"
+        "segments: [{from: 2.4 GHz, to: 2.5 GHz, upper: 2}]\n")
+    from acquire.masks import load_mask
+
+    title = r"unit $x^{ 7 and $\sqrt{$ price"
+    out = plot_file(Sweep(F, antenna(F)), tmp_path / "p.svg", title=title,
+                    masks=[load_mask(tmp_path / "m.yaml")])
+    svg = out.read_text()
+    assert "unit $x^{ 7 and $\\sqrt{$ price" in svg  # SVG text stays text, as written
+    assert "limit: cost $\\frac{1" in svg
+    plot_file(Sweep(F, antenna(F)), tmp_path / "p.png", title=title)  # PNG too
+
+
+def test_svg_text_is_text_not_outlines(tmp_path):
+    svg = plot_file(Sweep(F, antenna(F)), tmp_path / "p.svg", title="patch P-9").read_text()
+    assert "<text" in svg and "patch P-9" in svg
+    assert "Smith chart (normalised to 50 ohm)" in svg

@@ -37,7 +37,7 @@ def run(args: argparse.Namespace) -> int:
     from acquire.checks import mask_check
     from acquire.commands.check import read_sweep
     from acquire.masks import evaluate_mask
-    from acquire.plots import FORMATS, PlotError, plot_file
+    from acquire.plotting import FORMATS, PlotError, plot_file
 
     source = Path(args.file)
     out = Path(args.output) if args.output else source.with_suffix(".png")
