@@ -20,6 +20,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--plan", metavar="PLAN", help="also apply the checks of this plan (YAML)",
     )
     parser.add_argument("--json", action="store_true", help="print the verdict as JSON")
+    from acquire.commands.plot import add_marker_argument
+
+    add_marker_argument(parser)
     parser.epilog = "Exit codes: 0 pass, 1 fail, 2 error."
 
 
@@ -34,24 +37,42 @@ def _run(args: argparse.Namespace) -> int:
 
     from acquire.checks import Check, any_mask_check, evaluate_checks
     from acquire.errors import ConfigError
+    from acquire.metrics.markers import sweep_markers
 
     checks: list[Check] = [any_mask_check(ref, Path.cwd()) for ref in args.mask]
     if args.plan:
         from acquire.plan import load_plan
 
-        checks += list(load_plan(args.plan).checks)
+        plan_checks = list(load_plan(args.plan).checks)
+        if not plan_checks:
+            raise ConfigError(f"check: plan {args.plan} has no checks (its checks: section "
+                              "is missing or empty); add some, or give --mask MASK")
+        checks += plan_checks
     if not checks:
         raise ConfigError("check: nothing to judge against; give --mask MASK or --plan PLAN")
     sweep = read_sweep(args.file)
+    readouts = sweep_markers(sweep, args.marker)
     verdict = evaluate_checks(checks, sweep, source=str(args.file))
     if args.json:
-        print(verdict.to_json())
+        print(_with_markers(verdict.to_json(), readouts))
     else:
         lines = verdict.report_lines()
         lines[0] = f"{args.file}: {lines[0].removeprefix('verdict: ')}"
         lines.append(f"  {verdict.metrics_line()}")
+        lines.extend(f"  marker {r.line()}" for r in readouts)
         print("\n".join(lines))
     return verdict.exit_code
+
+
+def _with_markers(document: str, readouts: list) -> str:
+    """The verdict JSON with a ``markers`` list added when markers were asked for."""
+    if not readouts:
+        return document
+    import json
+
+    data = json.loads(document)
+    data["markers"] = [r.to_dict() for r in readouts]
+    return json.dumps(data, indent=2, allow_nan=False, ensure_ascii=True)
 
 
 def read_sweep(path: str):

@@ -9,6 +9,18 @@ from __future__ import annotations
 
 import argparse
 
+MARKER_HELP = ("marker at a frequency (2.45GHz) or a feature: min, max, edges (SWR 2 band "
+               "of a reflection, -3 dB band of a transmission), swr=LEVEL or db=LEVEL (each "
+               "crossing); put a parameter first for another trace (S21:max); repeat for "
+               "several. Each marker's value is printed in every quantity.")
+
+
+def add_marker_argument(parser: argparse.ArgumentParser) -> None:
+    """``--marker SPEC`` (repeatable), shared by plot and check."""
+    parser.add_argument("--marker", action="append", default=[], metavar="SPEC",
+                        help=MARKER_HELP)
+
+
 _SCALES = {"swr": "swr", "return-loss": "return_loss", "db": "s_db"}
 
 
@@ -28,6 +40,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
              "default: the first mask's quantity, else swr",
     )
     parser.add_argument("--title", help="page title (default: the file name)")
+    add_marker_argument(parser)
     parser.epilog = "Exit codes: 0 written (masks pass), 1 a mask fails, 2 error."
 
 
@@ -37,6 +50,7 @@ def run(args: argparse.Namespace) -> int:
     from acquire.checks import mask_check
     from acquire.commands.check import read_sweep
     from acquire.masks import evaluate_mask
+    from acquire.metrics.markers import sweep_markers
     from acquire.plotting import FORMATS, PlotError, plot_file
 
     source = Path(args.file)
@@ -45,8 +59,11 @@ def run(args: argparse.Namespace) -> int:
         raise PlotError(f"plot output {out}: the name must end in .png or .svg")
     masks = [mask_check(ref, Path.cwd()).mask for ref in args.mask]
     sweep = read_sweep(args.file)
+    readouts = sweep_markers(sweep, args.marker)
     written = plot_file(sweep, out, masks=masks, scale=_SCALES.get(args.scale),
-                        title=args.title or source.name)
+                        title=args.title or source.name, markers=readouts)
     print(written)
+    for readout in readouts:
+        print(f"  marker {readout.line()}")
     failed = any(evaluate_mask(mask, sweep).verdict == "fail" for mask in masks)
     return 1 if failed else 0

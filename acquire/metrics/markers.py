@@ -222,7 +222,10 @@ def _resolve(f: np.ndarray, s: np.ndarray, spec: MarkerSpec, param: str) -> list
     if not np.all(np.isfinite(s)):
         raise MetricError(f"marker {spec.text!r}: {param} has non-finite values")
     if spec.kind == "frequency":
-        interpolate_at(f, s.real, spec.freq_hz)  # raises when outside the sweep
+        try:
+            interpolate_at(f, s.real, spec.freq_hz)
+        except MetricError as exc:
+            raise MetricError(f"marker {spec.text!r}: {exc}") from None
         return [(f"at {format_frequency(spec.freq_hz)}", spec.freq_hz)]
     if spec.kind == "min":
         return [(f"minimum |{param}|", ft.resonance_min_gamma(f, s).freq_hz)]
@@ -267,3 +270,12 @@ def _edges(f: np.ndarray, s: np.ndarray, param: str) -> list[tuple[str, float]]:
         return []
     edges = [] if band.lo_open else [(f"{name} low edge", band.lo_hz)]
     return edges + ([] if band.hi_open else [(f"{name} high edge", band.hi_hz)])
+
+
+def sweep_markers(sweep, texts: list[str]) -> list[Readout]:
+    """Markers ``texts`` (command-line specs) placed on every parameter of ``sweep``."""
+    specs = [parse_marker_spec(t) for t in texts]
+    names = [f"S{i + 1}{j + 1}" for i in range(sweep.ports) for j in range(sweep.ports)]
+    params = {n: sweep.param(n) for n in names}
+    z0 = {n: float(sweep.z0[int(n[1]) - 1]) for n in names}
+    return place_markers(sweep.freq_hz, params, specs, z0)
