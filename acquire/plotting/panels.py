@@ -80,6 +80,7 @@ def _rises_with_gamma(name: str) -> bool:
 def draw_limits(ax: Any, segs: Group, convert, flip: bool, span_hz: float) -> None:
     """Limit lines (dashed), forbidden side hatched, failing positions as crosses."""
     seen_masks: set[str] = set()
+    drawn: set[tuple[str, int, str]] = set()  # an overlay passes each segment once per file
     low, high = ax.get_ylim()
     for mask_name, seg_res in segs:
         seg = seg_res.segment
@@ -87,8 +88,9 @@ def draw_limits(ax: Any, segs: Group, convert, flip: bool, span_hz: float) -> No
             continue
         fs = np.linspace(seg.from_hz, seg.to_hz, 64)
         for bound, limit in (("upper", seg.upper), ("lower", seg.lower)):
-            if limit is None:
+            if limit is None or (mask_name, seg.index, bound) in drawn:
                 continue
+            drawn.add((mask_name, seg.index, bound))
             line = convert(seg.quantity, limit.at(fs, seg.from_hz, seg.to_hz))
             upper_side = (bound == "upper") != flip
             label = None if mask_name in seen_masks else f"limit: {mask_name}"

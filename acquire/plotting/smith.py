@@ -61,7 +61,7 @@ def smith_panel(ax: Any, traces: Sequence[Trace], marks: list[Mark]) -> None:
             if ok[k]:
                 ax.plot([g[k].real], [g[k].imag], linestyle="none", marker=shape, markersize=6,
                         markerfacecolor=INK, markeredgecolor=INK, zorder=5,
-                        label=None if i else label)
+                        label=label if i == len(traces) - 1 else None)
     shown = {t.param for t in traces}
     mine = [mk for mk in marks if mk.parameter in shown]
     for mark in mine:
