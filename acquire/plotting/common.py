@@ -79,4 +79,4 @@ def value_range(values: np.ndarray, extra: list[float], pad: float = 0.08) -> tu
 
 def line_width(points: int) -> float:
     """Trace width: thinner as the sweep gets longer, so thousands of points stay a line."""
-    return 1.6 if points <= 801 else 1.0 if points <= 4001 else 0.7
+    return 1.6 if points <= 801 else 0.9 if points <= 4001 else 0.5

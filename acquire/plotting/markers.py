@@ -40,11 +40,17 @@ class Mark:
         return [self.readout.head(), "    " + self.readout.values_text()]
 
 def default_marks(sweep: Sweep, scale: str) -> list[Mark]:
-    """Resonance and band edges of S11; the band follows the axis: SWR 2 or RL 10 dB."""
+    """Resonance and band edges of S11; the band follows the axis: SWR 2 or RL 10 dB.
+    A two-port that passes signal (a thru, a cable) has no resonance: its worst match."""
+    from acquire.metrics.summary import transmits
+
     f, g = sweep.freq_hz, sweep.param(REFLECTION)
     z0 = sweep.z0[0]
     if not np.all(np.isfinite(g)):
         return []
+    if transmits(sweep):
+        k = int(np.argmax(np.abs(g)))
+        return [Mark("W", "worst match |S11|", m.marker(f, g, float(f[k]), z0), "o")]
     res = m.resonance_min_gamma(f, g)
     if scale == "swr":
         bw, name = m.bandwidth(f, g, swr_max=2.0, around_hz=res.freq_hz), "SWR 2"

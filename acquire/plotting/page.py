@@ -12,6 +12,7 @@ from typing import Any
 
 from acquire.masks import Mask, MaskResult, evaluate_mask
 from acquire.metrics.markers import Readout
+from acquire.metrics.summary import transmits
 from acquire.plotting.common import REFLECTION, PlotError, frequency_axis, no_markup
 from acquire.plotting.markers import Mark, default_marks, user_marks
 from acquire.plotting.panels import (
@@ -51,7 +52,7 @@ def render(
     check_scale(scale)
     results = [evaluate_mask(mask, sweep) for mask in masks]
     groups = panel_groups(sweep, results)
-    main_scale = scale or group_scale(groups[(REFLECTION, "match")])
+    main_scale = scale or group_scale(next(iter(groups.values())))
     marks = user_marks(list(markers)) if markers else default_marks(sweep, main_scale)
 
     fig = Figure(figsize=(13.0, 8.5), layout="constrained")
@@ -62,12 +63,13 @@ def render(
     for row, ((param, kind), segs) in enumerate(rows):
         ax = fig.add_subplot(grid[row, 0], sharex=axes[0] if axes else None)
         panel_scale = (scale or group_scale(segs)) if kind == "match" else main_scale
-        draw_panel(ax, [Trace(sweep, param, param)], kind, panel_scale, segs, marks)
+        draw_panel(ax, panel_traces(sweep, param), kind, panel_scale, segs, marks)
         axes.append(ax)
     for ax in axes[:-1]:
         ax.tick_params(labelbottom=False)
     frequency_axis(axes[-1], sweep.freq_hz)
-    smith_panel(fig.add_subplot(grid[:, 1]), [Trace(sweep, REFLECTION, REFLECTION)], marks)
+    smith_panel(fig.add_subplot(grid[:, 1]),
+                panel_traces(sweep, "Sii" if sweep.ports >= 2 else REFLECTION), marks)
     fig.suptitle(page_title(sweep, results, title), fontsize=12, fontweight="bold")
     no_markup(fig)
     return fig
@@ -90,24 +92,39 @@ def draw_panel(ax: Any, traces: list[Trace], kind: str, scale: str, segs: Group,
 
 
 def panel_groups(sweep: Sweep, results: list[MaskResult]) -> dict[tuple[str, str], Group]:
-    """Panels keyed (parameter, kind), in page order: match, others, impedance."""
-    match: dict[tuple[str, str], Group] = {(REFLECTION, "match"): []}
-    other: dict[tuple[str, str], Group] = {}
+    """Panels keyed (parameter, kind), in page order: match, others, impedance.
+
+    A two-port page shows all four parameters: S11 and S22 share the match panel (key
+    "Sii"), S21 and S12 the transmission panel (key "Sij"). R and X are shown for a
+    one-port, a two-port that does not transmit, or where a mask judges them.
+    """
+    two = sweep.ports >= 2
+    match: dict[tuple[str, str], Group] = {("Sii" if two else REFLECTION, "match"): []}
+    other: dict[tuple[str, str], Group] = {("Sij", "magnitude_db"): []} if two else {}
     imped: dict[tuple[str, str], Group] = {}
     for res in results:
         for seg_res in res.segments:
             seg = seg_res.segment
-            if seg.quantity in MATCH_QUANTITIES and seg.parameter[1] == seg.parameter[2]:
-                match.setdefault((seg.parameter, "match"), []).append((res.mask.name, seg_res))
+            item = (res.mask.name, seg_res)
+            reflection = seg.parameter[1] == seg.parameter[2]
+            if seg.quantity in MATCH_QUANTITIES and reflection:
+                match.setdefault(("Sii" if two else seg.parameter, "match"), []).append(item)
             elif seg.quantity in ("resistance", "reactance"):
-                imped.setdefault((seg.parameter, "impedance"), []).append((res.mask.name, seg_res))
+                imped.setdefault((seg.parameter, "impedance"), []).append(item)
+            elif two and seg.quantity == "magnitude_db" and seg.parameter in ("S21", "S12"):
+                other[("Sij", "magnitude_db")].append(item)
             else:
-                key = (seg.parameter, seg.quantity)
-                other.setdefault(key, []).append((res.mask.name, seg_res))
-    if sweep.ports >= 2 and not any(p == "S21" for p, _ in other):
-        other[("S21", "magnitude_db")] = []
-    main_z = imped.pop((REFLECTION, "impedance"), [])
-    return {**match, **other, **imped, (REFLECTION, "impedance"): main_z}
+                other.setdefault((seg.parameter, seg.quantity), []).append(item)
+    main_z = imped.pop((REFLECTION, "impedance"), None)
+    if main_z is not None or not transmits(sweep):
+        imped[(REFLECTION, "impedance")] = main_z or []
+    return {**match, **other, **imped}
+
+
+def panel_traces(sweep: Sweep, key: str) -> list[Trace]:
+    """The traces of a panel key: both reflections, both transmissions, or one."""
+    names = {"Sii": ("S11", "S22"), "Sij": ("S21", "S12")}.get(key, (key,))
+    return [Trace(sweep, name, name) for name in names]
 
 
 def group_scale(segs: Group) -> str:
