@@ -15,12 +15,12 @@ from pathlib import Path
 from acquire.masks import Mask
 from acquire.metrics.markers import Readout
 from acquire.plotting.common import PlotError, plain_text
-from acquire.plotting.export import FORMATS, check_output, save_figure
+from acquire.plotting.export import FORMATS, check_output, figure_bytes, save_figure
 from acquire.plotting.page import SCALES, render
 from acquire.sweep import Sweep
 
-__all__ = ["FORMATS", "SCALES", "PlotError", "check_output", "plain_text", "plot_file",
-           "render", "save_figure"]
+__all__ = ["FORMATS", "SCALES", "PlotError", "check_output", "figure_bytes", "plain_text",
+           "plot_file", "render", "save_figure"]
 
 
 def plot_file(

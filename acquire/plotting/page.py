@@ -75,6 +75,31 @@ def render(
     return fig
 
 
+def render_compact(sweep: Sweep, *, masks: Sequence[Mask] = (), title: str | None = None,
+                   note: str | None = None) -> Any:
+    """A small page: only the panels that carry a mask (always the match), no Smith
+    chart; ``note`` (the worst violation in words) under the title."""
+    from matplotlib.figure import Figure
+
+    if sweep.points < 2:
+        raise PlotError("a plot needs at least 2 sweep points")
+    results = [evaluate_mask(mask, sweep) for mask in masks]
+    groups = panel_groups(sweep, results)
+    rows = [(key, segs) for i, (key, segs) in enumerate(groups.items()) if segs or i == 0]
+    fig = Figure(figsize=(8.0, 1.2 + 2.6 * len(rows)), layout="constrained")
+    axes = fig.subplots(len(rows), 1, sharex=True, squeeze=False)[:, 0]
+    for ax, ((param, kind), segs) in zip(axes, rows, strict=True):
+        draw_panel(ax, panel_traces(sweep, param), kind, group_scale(segs), segs, [])
+    frequency_axis(axes[-1], sweep.freq_hz)
+    head = page_title(sweep, results, title)
+    import textwrap
+
+    text = head + ("\n" + textwrap.fill(note, 100) if note else "")
+    fig.suptitle(text, fontsize=10, fontweight="bold")
+    no_markup(fig)
+    return fig
+
+
 def check_scale(scale: str | None) -> None:
     if scale is not None and scale not in SCALES:
         raise PlotError(f"unknown scale {scale!r}; use one of {', '.join(SCALES)}")

@@ -16,6 +16,8 @@
         every: 4 h                    # ... or this much time since the last good check
         band: [2.40 GHz, 2.50 GHz]    # compare only here (default: the whole sweep)
         tolerance: {magnitude: 0.5 dB, phase: 5 deg, vector: 0.05, min_level: -40 dB}
+      hooks:                          # commands on pass, fail, line_stopped, line_resumed
+        fail: [/opt/line/stacklight, red, "{serial}"]      # (acquire.station.hooks)
 
 Everything is optional; a plan without the section gets the default serial rule
 (letters, digits and ``. _ + -``, starting with a letter or digit, at most 40 long).
@@ -29,6 +31,7 @@ from pathlib import Path
 from typing import Any
 
 from acquire.plan import Plan
+from acquire.station.hooks import Hooks, parse_hooks
 from acquire.yamlfile import Node
 
 DEFAULT_PATTERN = r"[A-Za-z0-9][A-Za-z0-9._+-]*"
@@ -105,6 +108,7 @@ class StationConfig:
     serial: SerialRule = field(default_factory=SerialRule)
     band_hz: tuple[float, float] | None = None
     golden: GoldenSpec | None = None
+    hooks: Hooks = field(default_factory=Hooks)
 
 
 def station_config(plan: Plan) -> StationConfig:
@@ -116,7 +120,7 @@ def station_config(plan: Plan) -> StationConfig:
 
 
 def parse_station(node: Node, plan: Plan) -> StationConfig:
-    node.mapping(("id", "serial", "band", "golden"))
+    node.mapping(("id", "serial", "band", "golden", "hooks"))
     station_id = node["id"].text(None)
     if station_id is not None:
         check_station_id(station_id, node["id"])
@@ -125,6 +129,7 @@ def parse_station(node: Node, plan: Plan) -> StationConfig:
         serial=_serial(node["serial"]),
         band_hz=_band(node["band"], plan) if node["band"].present else None,
         golden=_golden(node["golden"], plan) if node["golden"].present else None,
+        hooks=parse_hooks(node["hooks"]),
     )
 
 
