@@ -108,8 +108,9 @@ def test_a_unit_not_swapped_is_caught_and_not_stored(sim, tmp_path):
 def hook_script(tmp_path: Path, name: str, status: int = 0) -> Path:
     """A hook program that appends its arguments to a log (and exits with ``status``)."""
     script = tmp_path / name
+    log = str(tmp_path / "hooks.log")
     script.write_text(f"#!{sys.executable}\nimport sys\n"
-                      f"open({str(tmp_path / 'hooks.log')!r}, 'a').write(repr(sys.argv[1:]) + '\\n')\n"
+                      f"open({log!r}, 'a').write(repr(sys.argv[1:]) + '\\n')\n"
                       f"sys.stderr.write('lamp driver says no\\n') if {status} else None\n"
                       f"sys.exit({status})\n")
     script.chmod(0o755)
