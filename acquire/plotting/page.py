@@ -94,7 +94,7 @@ def render_compact(sweep: Sweep, *, masks: Sequence[Mask] = (), title: str | Non
     head = page_title(sweep, results, title)
     import textwrap
 
-    text = head + ("\n" + textwrap.fill(note, 100) if note else "")
+    text = head + ("\n" + textwrap.fill(note, 78) if note else "")
     fig.suptitle(text, fontsize=10, fontweight="bold")
     no_markup(fig)
     return fig
