@@ -12,7 +12,7 @@ import argparse
 import numpy as np
 import pytest
 
-from acquire.checks import mask_check
+from acquire.check_parse import mask_check
 from acquire.commands import plot as plot_cmd
 from acquire.plotting import PlotError
 from acquire.plotting.overlay import Source, render_overlay

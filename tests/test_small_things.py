@@ -39,7 +39,8 @@ def test_fixture_restore_and_trigger_say_what_they_did(capsys):
 
 
 def test_demo_starts_clean_and_never_removes_other_files(tmp_path, capsys):
-    from acquire.demo import MARKER, DemoError, prepare_folder
+    from acquire.demo.context import DemoError
+    from acquire.demo.run import MARKER, prepare_folder
 
     root = tmp_path / "demo-output"
     prepare_folder(root)
@@ -68,7 +69,7 @@ def test_shipped_plans_match_the_first_session():
     assert line.output.name == "{plan}-{serial}-{time}"
     cable = load_plan(library_dir("plans") / "cable-line.yaml")
     assert [c.name for c in cable.checks] == ["mask cable-6g"]
-    assert cable.calibration is not None and cable.calibration.method == "enhanced-response"
+    assert cable.calibration is not None and cable.calibration.method == "two-port"
 
 
 def test_default_file_name_has_the_serial_and_run_says_when_none_was_given(tmp_path, capsys):

@@ -60,17 +60,19 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from acquire.checks import mask_check
+    from acquire.check_parse import mask_check
     from acquire.commands.check import read_sweep
     from acquire.masks import evaluate_mask
     from acquire.plotting import check_output
+    from acquire.uncertainty.plot import attach_from_summary
 
     sources = [Path(name) for name in args.file]
     overlay = len(sources) > 1 or args.param or args.quantity or args.difference
     out = Path(args.output) if args.output else _default_output(sources[0], bool(overlay))
     check_output(out)
     masks = [mask_check(ref, Path.cwd()).mask for ref in args.mask]
-    sweeps = [read_sweep(str(path)) for path in sources]
+    # the uncertainty band, when a capture JSON beside the file holds one
+    sweeps = [attach_from_summary(read_sweep(str(path)), path) for path in sources]
     if overlay:
         _overlay(args, sources, sweeps, masks, out)
     else:

@@ -49,12 +49,11 @@ from acquire.guided.keys import (
 )
 from acquire.guided.partial import Partial, utc_text
 from acquire.guided.progress import DONE, PENDING, REPEAT, progress_line
-from acquire.guided.steps import PORT, REFLECTION, Step
+from acquire.guided.steps import ISOLATION, PORT, REFLECTION, Step, flat_readings
 from acquire.guided.verify import VerifySpec
 from acquire.units import format_frequency
 from drivers.errors import SweepdError
 
-FULL_ONE_PORT = ("one-port", "enhanced-response")
 EXAMPLE_RETURN_LOSS_DB = (10.0, 20.0)  # shown with the residual directivity
 
 
@@ -167,8 +166,7 @@ class Procedure:
             return
         lines = []
         if self.s.connector.manual:
-            lines.append(f"Connect the {step.label} standard ({self.s.kit.name}) at the "
-                         "reference plane, then press Enter.")
+            lines.append(_connect_line(step, self.s.kit.name))
         else:
             lines.append(f"Enter connects the {step.label} standard and measures it.")
         if step.kind == "thru":
@@ -313,17 +311,21 @@ class Procedure:
                 return None
 
     def _solve(self) -> tuple[Any, Judgement | None] | None:
-        flat = {f"{s}.{p}": arr for s, params in self.partial.readings.items()
-                for p, arr in params.items()}
+        flat = flat_readings(self.s.steps, self.partial.readings)
         try:
+            iso = next((f"{s.standard}.{s.params[0]}" for s in self.s.steps
+                        if s.name == ISOLATION), None)
             solution = solve(self.method.name, self._freq(), flat, self.s.kit, port=PORT,
-                             standards=self.names)
+                             standards=tuple(s.standard for s in self.s.steps
+                                             if s.name != ISOLATION), isolation=iso)
         except CalError as exc:
             self._failed(Judgement((_finding("solve", str(exc), self.names),)))
             self._save_partial()
             return None
         terms = solution.model.reflection.get(REFLECTION)
         judgement = self._judge().terms(terms) if terms is not None else None
+        if judgement is not None and judgement.passed and "S22" in solution.model.reflection:
+            judgement = self._judge().terms(solution.model.reflection["S22"], port=2)
         if judgement is not None and not judgement.passed:
             self._failed(judgement)
             self._save_partial()
@@ -339,11 +341,11 @@ class Procedure:
 
     def _residual(self) -> ResidualEstimate | None:
         c = self.s.console
-        if self.method.name not in FULL_ONE_PORT:
+        if not self.method.full_reflection:
             c.say(f"Residual errors: {self.method.name} leaves directivity and source match "
                   "uncorrected; only a full one-port calibration removes them.")
             return None
-        by_kind = {s.kind: s.name for s in self.s.steps if s.is_reflect}
+        by_kind = {s.kind: s.standard for s in self.s.steps if s.is_reflect}
         models = {k: self.s.kit.reflection(by_kind[k], self._freq())
                   for k in ("open", "short", "load")}
         estimate = estimate_residuals(self._freq(), models)
@@ -361,10 +363,13 @@ class Procedure:
                       ) -> Verification | None:
         spec = self.s.verify
         assert spec is not None
-        load = next((s.name for s in self.s.steps if s.kind == "load"), None)
-        ref = verifying.reference(spec, self._freq(), self.s.kit.reflection(load, self._freq())
-                                  if load else None)
-        allowed = verifying.tolerance(spec, ref, residual)
+        two_port = self.method.two_port and not spec.uses_load
+        load = next((s.standard for s in self.s.steps if s.kind == "load"), None)
+        ref = None if two_port else verifying.reference(
+            spec, self._freq(), self.s.kit.reflection(load, self._freq()) if load else None)
+        allowed = 0.0 if ref is None else verifying.tolerance(spec, ref, residual)
+        if two_port:  # an unusable reference file is reported before anything is measured
+            verifying.reference(spec, self._freq(), None, "S21")
         attempts = 0
         last: Verification | None = None
         self.verify_state = PENDING
@@ -396,9 +401,13 @@ class Procedure:
                 continue
             sweep = self.s.session.measure(calibration_step="verify")
             self._grid(sweep.freq_hz)
-            corrected = model.correct(sweep).param(REFLECTION)
-            last = verify_check_standard(self._freq(), corrected, ref, allowed,
-                                         name=spec.name)
+            if ref is None:
+                fixed = model.correct(sweep)
+                last = verifying.verify_two_port(spec, self._freq(), {
+                    p: fixed.param(p) for p in ("S11", "S21", "S12", "S22")}, residual)
+            else:
+                last = verify_check_standard(self._freq(), model.correct(sweep).param(
+                    REFLECTION), ref, allowed, name=spec.name)
             c = self.s.console
             c.say(f"  {c.mark(last.passed)} verification "
                   f"{'passed' if last.passed else 'FAILED'}: {last.message}")
@@ -410,8 +419,7 @@ class Procedure:
 
     def _save(self, model: Any, figures: dict[str, Any], residual: ResidualEstimate | None,
               verification: Verification | None) -> Outcome:
-        flat = {f"{s}.{p}": arr for s, params in self.partial.readings.items()
-                for p, arr in params.items()}
+        flat = flat_readings(self.s.steps, self.partial.readings)
         calset = CalSet(
             plan=self.s.plan.name, model=model, stimulus=self.s.session.applied,
             instrument=self.s.session.identity_text, kit_name=self.s.kit.name,
@@ -521,3 +529,13 @@ def _finding(check: str, message: str, steps: tuple[str, ...]) -> Any:
     from acquire.calibration.checks import FAIL
 
     return Finding(check, FAIL, steps, message)
+
+
+def _connect_line(step: Step, kit: str) -> str:
+    """What the technician connects for ``step`` (by hand)."""
+    if step.name == ISOLATION:
+        return (f"Connect a LOAD ({kit}) at the reference plane of each port, then press "
+                "Enter.")
+    where = f"port {step.port} reference plane" if step.port == 2 else "reference plane"
+    return (f"Connect the {step.standard.upper()} standard ({kit}) at the {where}, then "
+            "press Enter.")

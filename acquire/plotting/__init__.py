@@ -14,13 +14,13 @@ from pathlib import Path
 
 from acquire.masks import Mask
 from acquire.metrics.markers import Readout
-from acquire.plotting.common import PlotError, plain_text
+from acquire.plotting.common import PlotError
 from acquire.plotting.export import FORMATS, check_output, figure_bytes, save_figure
 from acquire.plotting.page import SCALES, render
 from acquire.sweep import Sweep
 
-__all__ = ["FORMATS", "SCALES", "PlotError", "check_output", "figure_bytes", "plain_text",
-           "plot_file", "render", "save_figure"]
+__all__ = ["FORMATS", "SCALES", "PlotError", "check_output", "figure_bytes", "plot_file",
+           "render", "save_figure"]
 
 
 def plot_file(

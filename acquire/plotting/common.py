@@ -30,15 +30,11 @@ class PlotError(SweepdError):
     """A plot cannot be made as asked (unknown format or scale, too few points)."""
 
 
-def plain_text(text: str) -> str:
-    """User text (a title, a file or mask name) as literal text: a ``$`` is never read as
-    the start of a formula."""
-    return text.replace("$", r"\$")
-
-
 def no_markup(fig: Any) -> None:
     """Turn math-text parsing off for every text of ``fig`` (our own labels use none), so
-    no text a user wrote can break or change the drawing."""
+    no text a user wrote can break or change the drawing: a ``$`` or a backslash is drawn
+    as typed (the figure-wide form of ``acquire.plaintext.plain_text``, which must not be
+    applied on top of it)."""
     from matplotlib.text import Text
 
     for artist in fig.findobj(Text):

@@ -31,6 +31,7 @@ from acquire.plotting.common import (
 )
 from acquire.plotting.markers import Mark, draw_mark_lines, draw_marks
 from acquire.sweep import Sweep
+from acquire.uncertainty.plot import draw_band
 from acquire.units import format_frequency
 
 MATCH_QUANTITIES = ("swr", "return_loss", "magnitude_db")
@@ -194,6 +195,8 @@ def match_panel(ax: Any, traces: Sequence[Trace], scale: str, segs: Group,
     for i, (t, ys) in enumerate(zip(traces, curves, strict=True)):
         ax.plot(t.sweep.freq_hz, ys, color=INK, linewidth=line_width(ys.size),
                 linestyle=STYLES[i % len(STYLES)], label=f"{t.name} {suffix}", zorder=4)
+        # |S| +/- U, when the capture's uncertainty is known
+        draw_band(ax, t.sweep, t.param, lambda g: display(scale, g))
     flip_for = {q: _rises_with_gamma(q) != _rises_with_gamma(scale) for q in MATCH_QUANTITIES}
     # Limits of any match quantity share the axis; the bound flips with the direction.
     by_flip: dict[bool, Group] = {}

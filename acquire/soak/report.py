@@ -10,20 +10,19 @@ the sweeps the journal holds.
 from __future__ import annotations
 
 import contextlib
-import html
-import os
 from collections import Counter
 from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
 from acquire.soak.alarms import LABELS
 from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import read_deviation
+from acquire.soak.report_pages import report_html, report_text
 from acquire.soak.report_plots import Events, Panel, allan_plot, deviation_plot, drift_plot
 from acquire.soak.sentences import FAULT_WORDS, fault_sentence
 from acquire.soak.spec import SoakSpec, parse_soak
@@ -31,6 +30,7 @@ from acquire.soak.spool import Job, SpoolError
 from acquire.soak.statistics import allan_points, trend_per_hour
 from acquire.storage import replace_atomic
 from acquire.units import format_duration, format_frequency
+from acquire.utc import parse_utc
 
 
 @dataclass
@@ -41,8 +41,24 @@ class Report:
     pictures: dict[str, Path]
 
 
-def write_report(job: Job, folder: Path) -> Report:
-    """Build every part of the report for ``job`` into ``folder``."""
+REPORT_FORMAT = "sweepd-report"
+REPORT_VERSION = 1
+
+
+def report_document(job: Job, report: Report) -> dict[str, Any]:
+    """The report as the JSON document ``sweepd report --json`` prints."""
+    return {
+        "format": REPORT_FORMAT, "version": REPORT_VERSION, "job": job.id,
+        "folder": str(report.folder), "html": str(report.html),
+        "text_file": str(report.folder / "summary.txt"),
+        "pictures": {name: str(path) for name, path in report.pictures.items()},
+        "summary": report.text.splitlines(),
+    }
+
+
+def _gather(job: Job) -> tuple[Any, SoakSpec, dict[str, Any], dict[str, Any], history.Series,
+                               list[dict[str, Any]], list[dict[str, Any]]]:
+    """Plan, soak spec, job state, journal run, series, faults and alarms of ``job``."""
     plan = job.load_plan()
     spec = parse_soak(plan)
     state = job.read_state()
@@ -50,19 +66,32 @@ def write_report(job: Job, folder: Path) -> Report:
     if run_id is None:
         raise SpoolError(f"job {job.id}: never ran (state {state.get('state')}); "
                          "nothing to report yet")
-    query, close = history.open_for_job(job.output_dir)
-    try:
-        rows = query("SELECT * FROM runs WHERE id = ?", (int(run_id),))
-        if not rows:
-            raise SpoolError(f"job {job.id}: run {run_id} is not in "
-                             f"{job.output_dir / 'journal.sqlite'}")
-        run = dict(rows[0])
+    with history.open_for_job(job.output_dir) as journal:
+        run = journal.run(int(run_id))
+        if run is None:
+            raise SpoolError(f"job {job.id}: run {run_id} is not in {journal.where}")
         run_id = int(run["id"])
-        ser = history.series(query, run_id)
-        faults = history.faults(query, run_id)
-        alarms = history.alarms(query, run_id)
-    finally:
-        close()
+        ser = history.series(journal, run_id)
+        faults = history.faults(journal, run_id)
+        alarms = history.alarms(journal, run_id)
+    return plan, spec, state, run, ser, faults, alarms
+
+
+def drift_png(job: Job) -> bytes:
+    """Only the drift picture of ``job``, as PNG bytes (for the live status page)."""
+    import tempfile
+
+    _, spec, state, _, ser, faults, alarms = _gather(job)
+    t_s = _times(ser, spec)
+    with tempfile.TemporaryDirectory(prefix="sweepd-drift-") as tmp:
+        path = _drift(Path(tmp), ser, spec, t_s, alarms, faults, f"soak {job.id}",
+                      float(state.get("start_epoch") or 0.0))
+        return path.read_bytes()
+
+
+def write_report(job: Job, folder: Path) -> Report:
+    """Build every part of the report for ``job`` into ``folder``."""
+    plan, spec, state, run, ser, faults, alarms = _gather(job)
     folder.mkdir(parents=True, exist_ok=True)
     done = ser.done_mask()
     deviation = read_deviation(job.data_dir, set(ser.seq[done].tolist()))
@@ -76,9 +105,9 @@ def write_report(job: Job, folder: Path) -> Report:
     if deviation is not None and deviation[1].size:
         pictures["deviation"] = _deviation(folder, deviation, spec, title)
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
-    text = _text(facts)
+    text = report_text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
-    page = replace_atomic(folder / "summary.html", _html(facts, pictures, folder))
+    page = replace_atomic(folder / "summary.html", report_html(facts, pictures, folder))
     return Report(folder, text, page, pictures)
 
 
@@ -209,7 +238,7 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
               else "until cancelled")
     facts: dict[str, Any] = {
         "job": job.id, "plan": plan.name, "resource": job.resource,
-        "run": f"run {run['id']} in {job.output_dir / 'journal.sqlite'}",
+        "run": f"run {run['id']} in {job.output_dir / JOURNAL_NAME}",
         "started": run.get("started_utc"), "ended": run.get("ended_utc"),
         "state": job.read_state().get("state"), "run_state": run.get("state"),
         "schedule": f"{every}, {extent}" + (f" ({sched.total()} planned)" if sched.total()
@@ -320,79 +349,8 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
 
 
 def _epoch(utc: str) -> float:
-    return datetime.fromisoformat(utc.replace("Z", "+00:00")).timestamp()
+    return parse_utc(utc).timestamp()
 
 
 def _signed(hz: float) -> str:
     return f"{'+' if hz >= 0 else '-'}{format_frequency(abs(hz))}"
-
-
-def _text(f: dict[str, Any]) -> str:
-    kept = f["kept"]
-    lines = [
-        f"Soak report {f['job']}: plan {f['plan']}",
-        "",
-        "Instrument:", *(f"  {line}" for line in f["instrument"]),
-        "Calibration:", *(f"  {line}" for line in f["calibration"]),
-        f"State: {f['state']} (journal {f['run']}: {f['run_state']})",
-        f"Started {f['started']}, ended {f['ended'] or 'not yet'}",
-        f"Schedule: {f['schedule']}",
-        f"Sweeps: {f['sweeps']}",
-        f"Verdicts: {f['verdicts']}",
-        "",
-        "Drift from the reference:",
-        *(f"  {line}" for line in f["drift"]),
-        f"Alarms: {len(f['alarms'])}",
-        *(f"  {line}" for line in f["alarms"][-20:]),
-        f"Faults: {len(f['faults'])}" + (f" ({f['faults_by_kind']})" if f["faults"] else ""),
-        *(f"  {line}" for line in f["faults"][-20:]),
-        f"Files kept: {len(kept)} Touchstone file(s) in {f['data_dir']}",
-        *(f"  sweep {seq}: {path.name}" for seq, path in kept[:5]),
-        *(["  ..."] if len(kept) > 10 else []),
-        *(f"  sweep {seq}: {path.name}" for seq, path in kept[max(5, len(kept) - 5):]),
-    ]
-    return "\n".join(lines)
-
-
-def _link(path: Path, folder: Path) -> str:
-    """A link to a kept file that works from the report folder when both are moved
-    together (relative), else an absolute file URL."""
-    try:
-        return Path(os.path.relpath(path, folder)).as_posix()
-    except ValueError:
-        return path.resolve().as_uri()
-
-
-def _html(f: dict[str, Any], pictures: dict[str, Path], folder: Path) -> str:
-    e = html.escape
-    rows = "".join(f"<tr><th>{e(k)}</th><td>{e(str(v))}</td></tr>" for k, v in (
-        ("Plan", f["plan"]), ("Instrument", "; ".join(f["instrument"])),
-        ("Calibration", "; ".join(f["calibration"])), ("State", f["state"]),
-        ("Started", f["started"]), ("Ended", f["ended"] or "not yet"),
-        ("Schedule", f["schedule"]), ("Sweeps", f["sweeps"]), ("Verdicts", f["verdicts"]),
-        ("Journal", f["run"]), ("Data folder", f["data_dir"])))
-
-    def items(lines: list[str]) -> str:
-        return "<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>" if lines \
-            else "<p>none</p>"
-
-    kept = "".join(f'<li>sweep {seq}: <a href="{e(_link(path, folder))}">{e(path.name)}</a>'
-                   "</li>" for seq, path in f["kept"])
-    headings = {"drift": "Drift against time", "allan": "Stability of the resonance "
-                "(Allan deviation)", "deviation": "Change from the reference by frequency"}
-    images = "".join(f'<h2>{e(headings.get(name, name))}</h2>'
-                     f'<img src="{e(path.name)}" alt="{e(headings.get(name, name))}">'
-                     for name, path in pictures.items())
-    return (
-        "<!DOCTYPE html>\n<html><head><meta charset=\"utf-8\">"
-        f"<title>Soak report {e(f['job'])}</title><style>body{{font-family:sans-serif;"
-        "max-width:1100px;margin:1em auto}th{text-align:left;padding-right:1em;"
-        "vertical-align:top}img{max-width:100%}</style></head><body>"
-        f"<h1>Soak report {e(f['job'])}</h1><table>{rows}</table>"
-        f"<h2>Drift from the reference</h2>{items(f['drift'])}"
-        f"<h2>Alarms ({len(f['alarms'])})</h2>{items(f['alarms'])}"
-        f"<h2>Faults ({len(f['faults'])})</h2>{items(f['faults'][-200:])}"
-        f"{images}"
-        f"<h2>Touchstone files kept ({len(f['kept'])})</h2>"
-        f"{'<ul>' + kept + '</ul>' if kept else '<p>none</p>'}</body></html>\n"
-    )

@@ -34,10 +34,11 @@ from pathlib import Path
 from acquire.errors import PlanError
 from acquire.plan import Plan
 from acquire.soak.statistics import Minimums
-from acquire.yamlfile import Node
+from acquire.yamlfile import Node, show
 
 REFLECTIONS = ("S11", "S22")
 _SIZE = re.compile(r"^\s*(\d+(?:\.\d*)?|\.\d+)\s*([kMGT]i?B|B)?\s*$")
+_SIZE_LIMIT = 2**50  # 1 PiB: a byte count beyond it is a typing slip
 _SIZE_FACTORS = {
     None: 1, "B": 1, "kB": 10**3, "MB": 10**6, "GB": 10**9, "TB": 10**12,
     "KiB": 2**10, "MiB": 2**20, "GiB": 2**30, "TiB": 2**40,
@@ -176,7 +177,7 @@ def _reference(node: Node) -> Path | None:
         return None
     path = node.file_path()
     if not path.is_file():
-        node.fail(f"must be 'first' or an existing Touchstone file, got {node.value!r} "
+        node.fail(f"must be 'first' or an existing Touchstone file, got {show(node.value)} "
                   f"({path} not found)")
     return path
 
@@ -255,10 +256,11 @@ def _size(node: Node, default: int) -> int:
     if not node.present:
         return default
     value = node.value
-    if isinstance(value, int) and not isinstance(value, bool) and value >= 0:
+    if isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= _SIZE_LIMIT:
         return value
-    match = _SIZE.match(value) if isinstance(value, str) else None
-    if match is None:
+    match = _SIZE.match(value) if isinstance(value, str) and len(value) <= 40 else None
+    size = float(match.group(1)) * _SIZE_FACTORS[match.group(2)] if match else math.inf
+    if not size <= _SIZE_LIMIT:
         node.fail(f"must be a size such as 200 MB or 2 GiB (units B, kB, MB, GB, TB, KiB, "
-                  f"MiB, GiB, TiB), got {value!r}")
-    return int(float(match.group(1)) * _SIZE_FACTORS[match.group(2)])
+                  f"MiB, GiB, TiB) up to 1 PiB, got {show(value)}")
+    return int(size)

@@ -162,8 +162,11 @@ class LineHooks:
         self.stopped = False
 
     def unit(self, **values: Any) -> None:
-        event = "pass" if values.get("verdict") == "pass" else "fail"
-        self._fire(event, values)
+        """A unit's verdict: pass fires ``pass``; fail and error fire ``fail``; a unit
+        neither passed nor failed (indeterminate, on hold) fires nothing."""
+        event = {"pass": "pass", "fail": "fail", "error": "fail"}.get(values.get("verdict"))
+        if event is not None:
+            self._fire(event, values)
 
     def line_stopped(self, reason: str) -> None:
         if not self.stopped:

@@ -11,17 +11,17 @@ leaves half a record; a crash leaves at worst a pending row that ``reconcile`` s
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
-from acquire.journal import Journal, Planned
+from acquire.journal import JournalStore, Planned
 from acquire.measure import CalChoice, Capture, Stored, capture, journal_stored, plan_path, store
 from acquire.plan import Plan
 from acquire.runner import Session
 from acquire.station.config import StationConfig
 from acquire.station.errors import GoldenError
 from acquire.station.figures import KeyFigures, key_figures, with_figures
-from acquire.station.golden import GoldenResult, compare
+from acquire.station.golden import GoldenResult, compare, golden_verdict
 from acquire.station.interrupts import deferred_interrupt
 from acquire.sweep import Sweep
 from drivers.errors import SweepdError
@@ -34,7 +34,7 @@ class Line:
     plan: Plan
     config: StationConfig
     out_dir: Path
-    journal: Journal
+    journal: JournalStore
     run_id: int
     station_id: str = ""
     session: Session | None = None
@@ -89,12 +89,11 @@ def measure_unit(line: Line, serial: str, *, golden: bool = False,
     result = None
     if golden:
         result = _golden_result(line, cap, serial)
-        cap.verdict = replace(cap.verdict,
-                              metrics={**cap.verdict.metrics, "golden_check": result.to_dict()})
+        cap.verdict = golden_verdict(cap.verdict, result)
     refused = confirm(cap) if confirm is not None else None
     if refused is not None:
         with deferred_interrupt():
-            line.journal.record_missed(line.run_id, seq, f"not stored: {refused}",
+            line.journal.record_missed(line.run_id, [seq], f"not stored: {refused}",
                                        serial=serial)
         return None
     with deferred_interrupt():
@@ -120,7 +119,7 @@ def _golden_result(line: Line, cap: Capture, serial: str) -> GoldenResult:
     try:
         return compare(cap.sweep, line.reference, spec, line.plan.measure)
     except GoldenError as exc:
-        return GoldenResult(False, str(exc), 0)
+        return GoldenResult(False, str(exc), 0, reference=spec.reference.name, serial=serial)
 
 
 def _store(line: Line, planned: Planned, cap: Capture) -> Stored:
