@@ -50,7 +50,7 @@ class Conversation:
     def query(self, command: str, timeout_s: float | None = None) -> str:
         """Send ``command`` and return its one-line reply (padding and quotes removed)."""
         if self._plain:
-            self.transport.write(command)
+            self.write(command)
             return self.transport.read_line(command, timeout_s)
         self.ask(command)
         return self.clean(self.transport.read_line(command, timeout_s))
