@@ -17,6 +17,7 @@ from drivers.dialect_model import (
 )
 from drivers.dialect_node import Node
 from drivers.templates import Template, TemplateProblem
+from drivers.yamlnode import show
 
 MAX_DELAY_S = 30.0
 MAX_POLL_INTERVAL_S = 5.0
@@ -80,7 +81,7 @@ def trace_query(node: Node, traces: dict[str, str], spec: MeasurementSpec | None
         return template
     node.fail(
         "template must use {trace} (or a measurement token) when data.traces lists "
-        f"{len(traces)} traces and no measurement.select is given, got {template.text!r}"
+        f"{len(traces)} traces and no measurement.select is given, got {show(template.text)}"
     )
 
 
@@ -167,7 +168,7 @@ def identity_reply(node: Node) -> IdentitySpec:
     node.mapping(("separator", "fields"), required=("fields",))
     separator = node["separator"].text(",")
     if len(separator) > 4 or not separator.isprintable():  # only splits replies, never sent
-        node["separator"].fail(f"must be 1 to 4 printable characters, got {separator!r}")
+        node["separator"].fail(f"must be 1 to 4 printable characters, got {show(separator)}")
     fields = tuple(entry.text(choices=IDENTITY_FIELDS) for entry in node["fields"].elements())
     named = [f for f in fields if f != "skip"]
     if len(set(named)) != len(named):
