@@ -83,7 +83,9 @@ class Conversation:
 
     def wait_opc(self, after: str, timeout_s: float | None = None) -> None:
         """Ask ``*OPC?`` (the dialect's form) and require ``1``."""
-        command = self.dialect.opc_query.render()
+        opc = self.dialect.opc_query
+        assert opc is not None  # the parser requires it wherever it is used
+        command = opc.render()
         reply = self.query(command, timeout_s)
         if reply.strip().lstrip("+") != "1":
             raise ReplyError(

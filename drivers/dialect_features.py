@@ -87,16 +87,20 @@ def trace_query(node: Node, traces: dict[str, str], spec: MeasurementSpec | None
 
 def poll(node: Node) -> PollSpec:
     """``trigger.poll``: the query and what says done."""
-    node.mapping(("query", "arm", "done_bit", "done_reply", "interval"), required=("query",))
+    node.mapping(("query", "arm", "done_bit", "done_when", "done_reply", "interval"),
+                 required=("query",))
     has_bit, has_reply = node["done_bit"].present, node["done_reply"].present
     if has_bit == has_reply:
         node.fail("give exactly one of done_bit (a status bit number) or done_reply")
+    if node["done_when"].present and not has_bit:
+        node["done_when"].fail("applies to done_bit only")
     return PollSpec(
         query=node["query"].template(query=True),
         arm=node["arm"].optional_template(query=False),
         done_bit=node["done_bit"].integer(lo=0, hi=15) if has_bit else None,
         done_reply=token(node["done_reply"]) if has_reply else None,
         interval_s=_bounded(node["interval"], 0.02, 0.001, MAX_POLL_INTERVAL_S),
+        done_when_set=node["done_when"].text("set", choices=("set", "clear")) == "set",
     )
 
 

@@ -112,6 +112,7 @@ class PollSpec:
     done_bit: int | None
     done_reply: str | None
     interval_s: float
+    done_when_set: bool = True  # done_bit: done when the bit is set (False: when clear)
 
 
 @dataclass(frozen=True)
@@ -164,7 +165,7 @@ class Dialect:
     identity: Template
     clear: Template | None
     opening: tuple[Template, ...]
-    opc_query: Template
+    opc_query: Template | None  # required by the parser where it is used
     opc_after_setting: bool
     settings: Mapping[str, SettingSpec]
     formats: tuple[DataFormat, ...]

@@ -275,4 +275,4 @@ def poll_done(spec: PollSpec, reply: str, where: str) -> bool:
     register = parse_number(reply, where, integer=True)
     if not 0 <= register <= 0xFFFF:
         raise ReplyError(f"{where} status register {register} is outside 0..65535")
-    return bool((int(register) >> spec.done_bit) & 1)
+    return bool((int(register) >> spec.done_bit) & 1) == spec.done_when_set

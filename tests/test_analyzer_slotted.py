@@ -93,8 +93,10 @@ def test_polling_waits_for_the_sweep(tmp_path: Path) -> None:
     stim = Stimulus(2.3e9, 2.6e9, 201, -10.0, 1e3, 1)  # 207 ms by the simulator's model
     esr = variant(tmp_path, SLOTTED,
                   trigger__poll={"query": "*ESR?", "arm": "*OPC", "done_bit": 0})
+    busy_bit = variant(tmp_path, SLOTTED, session__opc_query=None, trigger__poll={
+        "query": "ACQuire:BUSY?", "done_bit": 0, "done_when": "clear"})
     with SimServer(personality="slotted", time_scale=1.0, noise=False) as sim:
-        for dialect in (load_dialect("slotted-blocks"), esr):
+        for dialect in (load_dialect("slotted-blocks"), esr, busy_bit):
             with Analyzer(sim.tcp_resource, dialect) as an:
                 an.configure(stim)
                 started = time.monotonic()
