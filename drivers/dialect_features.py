@@ -16,6 +16,7 @@ from drivers.dialect_model import (
     Quirks,
 )
 from drivers.dialect_node import Node
+from drivers.layouts import FREQ_PREFIX
 from drivers.templates import Template, TemplateProblem
 from drivers.yamlnode import show
 
@@ -104,14 +105,21 @@ def poll(node: Node) -> PollSpec:
     )
 
 
-def frequency(node: Node) -> FrequencyAxis | None:
-    """``data.frequency``: a list query (ASCII or binary) or start/stop/points queries."""
+def frequency(node: Node, layout: str) -> FrequencyAxis | None:
+    """``data.frequency``: a list query (ASCII or binary), start/stop/points queries, or
+    (with a ``freq_`` layout) the frequencies sent inside each trace."""
+    in_trace = layout.startswith(FREQ_PREFIX)
     if not node.present:
-        return None
+        return FrequencyAxis("trace", 1.0) if in_trace else None
     keys = ("query", "encoding", "byte_order", "start", "stop", "points", "unit_scale")
     node.mapping(keys)
     scale = node["unit_scale"].number(1.0, positive=True, lo=0.0)
     edges = [node[k].present for k in ("start", "stop", "points")]
+    if in_trace:
+        if node["query"].present or any(edges):
+            node.fail(f"layout {layout} sends the frequencies with each trace: give only "
+                      "unit_scale here")
+        return FrequencyAxis("trace", scale)
     if node["query"].present:
         if any(edges):
             node.fail("give either 'query' (a list) or 'start', 'stop' and 'points', not both")

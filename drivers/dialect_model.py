@@ -120,11 +120,12 @@ class FrequencyAxis:
     """Where the frequency axis comes from when not from the settings read back.
 
     ``list``: ``query`` answers every frequency (ASCII or a binary block of ``encoding``);
-    ``edges``: ``start``, ``stop`` and ``points`` queries give a linear axis.
+    ``edges``: ``start``, ``stop`` and ``points`` queries give a linear axis;
+    ``trace``: each trace carries its frequencies (a ``freq_`` layout).
     ``scale`` is Hz per instrument unit.
     """
 
-    kind: str  # list | edges
+    kind: str  # list | edges | trace
     scale: float
     query: Template | None = None
     encoding: str = "ascii"
