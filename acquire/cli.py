@@ -63,6 +63,8 @@ def main(argv: list[str] | None = None) -> int:
     from drivers.errors import SweepdError
 
     try:
+        if getattr(args, "resource", None) is not None and _check_resource(args):
+            return EXIT_ERROR
         return int(_module(args._module).run(args))
     except SweepdError as exc:
         _error(str(exc))
@@ -95,6 +97,18 @@ def internal_error_text(exc: BaseException) -> str:
     detail = detail if len(detail) <= 160 else detail[:157] + "..."
     return (f"internal error ({type(exc).__name__}{': ' + detail if detail else ''}); "
             "run with -vv for the traceback")
+
+
+def _check_resource(args: argparse.Namespace) -> bool:
+    """``--resource`` follows the rules plans follow; True when refused (with --json)."""
+    from acquire.commands.jsonout import run_with_json_errors
+    from drivers.resources import parse_resource
+
+    def check() -> int:
+        parse_resource(args.resource, where="--resource")
+        return EXIT_OK
+
+    return run_with_json_errors(args, args.command, check) != EXIT_OK
 
 
 def _module(name: str):

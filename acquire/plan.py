@@ -18,15 +18,11 @@ from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
 from acquire.yamlfile import Node, load_yaml, show
 from drivers.dialect_model import STANDARDS
+from drivers.resources import resource_problem
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
-_RESOURCE = re.compile(
-    r"^(TCPIP\d*::[A-Za-z0-9.\-]+::(\d{1,5}::SOCKET|INSTR|hislip\d+::INSTR|inst\d+::INSTR)"
-    r"|ASRL[^\s:;]+::INSTR)$",
-    re.IGNORECASE,
-)
 ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
@@ -167,11 +163,9 @@ def _instrument(node: Node) -> InstrumentSpec:
         required=("resource",),
     )
     resource = node["resource"].text()
-    if not _RESOURCE.match(resource):
-        node["resource"].fail(
-            f"not a supported VISA resource string: {resource!r} (use "
-            "TCPIP::<host>::<port>::SOCKET or ASRL<device>::INSTR)"
-        )
+    problem = resource_problem(resource)
+    if problem is not None:
+        node["resource"].fail(f"not a supported VISA resource string: {resource!r} ({problem})")
     dialect_ref = node["dialect"].text("scpi-generic")
     try:
         dialect = find_config("dialects", dialect_ref, node.base_dir)

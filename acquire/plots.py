@@ -28,6 +28,7 @@ from acquire.metrics.quantities import QUANTITIES, finish, trace
 from acquire.plaintext import plain_text
 from acquire.storage import replace_atomic
 from acquire.sweep import Sweep
+from acquire.uncertainty.plot import draw_band
 from acquire.units import format_frequency
 from drivers.errors import SweepdError
 
@@ -349,6 +350,7 @@ def _match_panel(ax: Any, sweep: Sweep, param: str, scale: str, segs: Group,
     label = {"swr": f"{param} SWR", "return_loss": f"{param} return loss",
              "s_db": f"{param} (dB)"}[scale]
     ax.plot(f, ys, color=INK, linewidth=1.6, label=label, zorder=4)
+    draw_band(ax, sweep, param, lambda g: _display(scale, g))  # |S| +/- U, if known
     flip_for = {q: _rises_with_gamma(q) != _rises_with_gamma(scale) for q in MATCH_QUANTITIES}
     # Limits of any match quantity share the axis; the bound flips with the direction.
     by_flip: dict[bool, Group] = {}

@@ -276,3 +276,106 @@ def test_old_names_still_solve_with_one_warning(old: str, new: str,
     lines = [r.getMessage() for r in caplog.records]
     assert lines == [f"calibration method '{old}' is now called '{new}'; the old name still "
                      "works but is deprecated"]
+
+
+# -- guided checks of a two-port calibration ---------------------------------------------
+
+
+def _held(freq: np.ndarray, placement: dict[str, tuple[str, str]]) -> dict:
+    """Readings of the simulator's error box: step -> (standard at port 1, at port 2)."""
+    from simulators.errorbox import measure, reference_plane_terms
+
+    terms = reference_plane_terms(freq)
+    held = {}
+    for step, (p1, p2) in placement.items():
+        s = np.zeros((freq.size, 2, 2), complex)
+        s[:, 0, 0] = KIT.reflection(p1, freq)
+        s[:, 1, 1] = KIT.reflection(p2, freq)
+        m = measure(terms, s)
+        held[step] = {"S11": m[:, 0, 0], "S22": m[:, 1, 1]}
+    return held
+
+
+def test_standards_put_on_the_wrong_port_are_called_swapped_ports() -> None:
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+
+    f = np.linspace(10e6, 6e9, 101)
+    steps = build_steps("two-port", KIT, ports=2)
+    judge = Judge(f, KIT, steps)
+    right = _held(f, {"open": ("open", "open"), "short": ("short", "open"),
+                      "load": ("load", "open")})
+    assert judge.readings(right).passed
+    wrong = _held(f, {"open": ("open", "open"), "short": ("open", "short"),
+                      "load": ("open", "load")})  # port 1 left open, standards at port 2
+    (finding,) = judge.readings(wrong).failures
+    assert finding.check == "ports-swapped" and set(finding.steps) == {"open", "short", "load"}
+    assert "they went to port 2" in finding.message
+    # the port-2 steps the same way round
+    held = {**right, **{f"{k}-2": v for k, v in _held(f, {
+        "open": ("open", "open"), "short": ("short", "open"), "load": ("load", "open")}).items()}}
+    (finding,) = judge.readings(held).failures
+    assert finding.check == "ports-swapped" and "they went to port 1" in finding.message
+    # a standard simply measured twice (nothing changes at either port) is not a swap
+    twice = _held(f, {"open": ("open", "open"), "short": ("open", "open")})
+    (finding,) = judge.readings(twice).failures
+    assert finding.check == "same-reading"
+
+
+def test_two_port_thru_is_checked_at_port_two_too() -> None:
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+    from simulators.errorbox import measure, reference_plane_terms
+
+    f = np.linspace(10e6, 6e9, 101)
+    steps = build_steps("two-port", KIT, ports=2)
+    held = _held(f, {n: (n, n) for n in ("open", "short", "load")})
+    held.update({f"{n}-2": v for n, v in _held(f, {n: (n, n) for n in
+                                                   ("open", "short", "load")}).items()})
+    terms = reference_plane_terms(f)
+    thru = np.zeros((f.size, 2, 2), complex)
+    thru[:, 1, 0] = thru[:, 0, 1] = 1.0
+    m = measure(terms, thru)
+    held["thru"] = {f"S{i + 1}{j + 1}": m[:, i, j] for i in range(2) for j in range(2)}
+    assert Judge(f, KIT, steps).readings(held).passed
+    loose = np.array(thru)
+    loose[:, 1, 1] = 0.95  # port 2's end reflects: the thru is not seated there
+    m = measure(terms, loose)
+    held["thru"] = {f"S{i + 1}{j + 1}": m[:, i, j] for i in range(2) for j in range(2)}
+    (finding,) = Judge(f, KIT, steps).readings(held).failures
+    assert finding.check == "thru-match" and "port 2 sees |S22|" in finding.message
+
+
+def test_old_names_in_plans_and_cal_sets_still_load(tmp_path, caplog, monkeypatch) -> None:
+    from acquire.calibration import CalSet
+    from acquire.plan import load_plan
+    from drivers.stimulus import Stimulus
+
+    monkeypatch.setattr(methods_module, "_warned", set())
+    plan = tmp_path / "old.yaml"
+    plan.write_text("plan: old\ninstrument: {resource: 'TCPIP::127.0.0.1::5025::SOCKET', "
+                    "dialect: scpi-generic}\nstimulus: {start: 1 GHz, stop: 2 GHz, points: 11, "
+                    "power: 0 dBm, if_bandwidth: 1 kHz}\nmeasure: two-port\n"
+                    "calibration: {method: enhanced-response, kit: generic-sma-50}\n")
+    with caplog.at_level(logging.WARNING):
+        assert load_plan(plan).calibration.method == "one-path-two-port"
+    (line,) = [r.getMessage() for r in caplog.records]
+    assert line == (f"plan {plan}: calibration.method: calibration method 'enhanced-response' "
+                    "is now called 'one-path-two-port'; the old name still works but is "
+                    "deprecated")
+    f = np.linspace(1e9, 2e9, 11)
+    raw = {"thru.S21": np.full(f.size, 0.5 + 0j)}
+    model = solve("thru-response", f, raw, KIT).model
+    assert model.method == "transmission-normalisation"
+    old = type(model)("thru-response", f, model.reflection, model.transmission)
+    cal = CalSet("old", old, Stimulus(1e9, 2e9, 11, 0.0, 1e3), "x,y,z,1", KIT.name,
+                 KIT.sha256, "plane", raw=raw)
+    path = cal.save(tmp_path)
+    caplog.clear()
+    monkeypatch.setattr(methods_module, "_warned", set())
+    with caplog.at_level(logging.WARNING):
+        back = CalSet.load(path)
+    assert back.method == "thru-response" and back.id == cal.id  # the id covers the name
+    assert method(back.method).name == "transmission-normalisation"
+    (line,) = [r.getMessage() for r in caplog.records]
+    assert line.startswith(f"cal set {path}: calibration method 'thru-response' is now called")

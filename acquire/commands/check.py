@@ -1,8 +1,10 @@
 """``sweepd check FILE.sNp --mask MASK``: judge a Touchstone file offline.
 
 Any Touchstone file (ours or another tool's) is read, turned into a sweep and judged by
-the same code a capture uses, so the verdict is the one given at capture time. Exit
-code 0 pass, 1 fail, 2 error.
+the same code a capture uses, so the verdict is the one given at capture time. With
+``--plan``, the plan's decision rule applies; guarded acceptance takes the uncertainty
+from the capture JSON beside the file. Exit code 0 pass, 1 fail, 2 error,
+3 indeterminate.
 """
 
 from __future__ import annotations
@@ -20,7 +22,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--plan", metavar="PLAN", help="also apply the checks of this plan (YAML)",
     )
     parser.add_argument("--json", action="store_true", help="print the verdict as JSON")
-    parser.epilog = "Exit codes: 0 pass, 1 fail, 2 error."
+    parser.epilog = "Exit codes: 0 pass, 1 fail, 2 error, 3 indeterminate (guarded plans)."
 
 
 def run(args: argparse.Namespace) -> int:
@@ -37,14 +39,20 @@ def _run(args: argparse.Namespace) -> int:
     from acquire.errors import ConfigError
 
     checks: list[Check] = [any_mask_check(ref, Path.cwd()) for ref in args.mask]
+    decision = None
     if args.plan:
         from acquire.plan import load_plan
 
-        checks += list(load_plan(args.plan).checks)
+        plan = load_plan(args.plan)
+        checks += list(plan.checks)
+        decision = plan.decision
     if not checks:
         raise ConfigError("check: nothing to judge against; give --mask MASK or --plan PLAN")
     sweep = read_sweep(args.file)
-    verdict = evaluate_checks(checks, sweep, source=str(args.file))
+    from acquire.uncertainty.capture import from_summary
+
+    verdict = evaluate_checks(checks, sweep, source=str(args.file), decision=decision,
+                              uncertainty=from_summary(sweep, Path(args.file)))
     if args.json:
         print(verdict.to_json())
     else:

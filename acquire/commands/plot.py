@@ -38,13 +38,14 @@ def run(args: argparse.Namespace) -> int:
     from acquire.commands.check import read_sweep
     from acquire.masks import evaluate_mask
     from acquire.plots import FORMATS, PlotError, plot_file
+    from acquire.uncertainty.plot import attach_from_summary
 
     source = Path(args.file)
     out = Path(args.output) if args.output else source.with_suffix(".png")
     if out.suffix.lower() not in FORMATS:
         raise PlotError(f"plot output {out}: the name must end in .png or .svg")
     masks = [mask_check(ref, Path.cwd()).mask for ref in args.mask]
-    sweep = read_sweep(args.file)
+    sweep = attach_from_summary(read_sweep(args.file), source)  # band from the capture JSON
     written = plot_file(sweep, out, masks=masks, scale=_SCALES.get(args.scale),
                         title=args.title or source.name)
     print(written)

@@ -363,10 +363,13 @@ class Procedure:
                       ) -> Verification | None:
         spec = self.s.verify
         assert spec is not None
+        two_port = self.method.two_port and not spec.uses_load
         load = next((s.standard for s in self.s.steps if s.kind == "load"), None)
-        ref = verifying.reference(spec, self._freq(), self.s.kit.reflection(load, self._freq())
-                                  if load else None)
-        allowed = verifying.tolerance(spec, ref, residual)
+        ref = None if two_port else verifying.reference(
+            spec, self._freq(), self.s.kit.reflection(load, self._freq()) if load else None)
+        allowed = 0.0 if ref is None else verifying.tolerance(spec, ref, residual)
+        if two_port:  # an unusable reference file is reported before anything is measured
+            verifying.reference(spec, self._freq(), None, "S21")
         attempts = 0
         last: Verification | None = None
         self.verify_state = PENDING
@@ -398,9 +401,13 @@ class Procedure:
                 continue
             sweep = self.s.session.measure(calibration_step="verify")
             self._grid(sweep.freq_hz)
-            corrected = model.correct(sweep).param(REFLECTION)
-            last = verify_check_standard(self._freq(), corrected, ref, allowed,
-                                         name=spec.name)
+            if ref is None:
+                fixed = model.correct(sweep)
+                last = verifying.verify_two_port(spec, self._freq(), {
+                    p: fixed.param(p) for p in ("S11", "S21", "S12", "S22")}, residual)
+            else:
+                last = verify_check_standard(self._freq(), model.correct(sweep).param(
+                    REFLECTION), ref, allowed, name=spec.name)
             c = self.s.console
             c.say(f"  {c.mark(last.passed)} verification "
                   f"{'passed' if last.passed else 'FAILED'}: {last.message}")

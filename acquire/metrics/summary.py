@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.jsonsafe import finite_or_none
 from acquire.metrics import conversions as cv
 from acquire.metrics.errors import MetricError
 from acquire.metrics.features import Bandwidth, Resonance, bandwidth, q_factor, resonance_min_gamma
@@ -38,9 +39,9 @@ class ReflectionSummary:
             "resonance_hz": self.resonance.freq_hz,
             "resonance_at_sweep_edge": self.resonance.at_edge,
             "gamma_min": self.resonance.gamma_abs,
-            "swr_min": _json_float(cv.swr(self.resonance.gamma_abs)),
-            "return_loss_max_db": _json_float(cv.return_loss_db(self.resonance.gamma_abs)),
-            "impedance_at_resonance_ohm": [_json_float(z.real), _json_float(z.imag)],
+            "swr_min": finite_or_none(cv.swr(self.resonance.gamma_abs)),
+            "return_loss_max_db": finite_or_none(cv.return_loss_db(self.resonance.gamma_abs)),
+            "impedance_at_resonance_ohm": [finite_or_none(z.real), finite_or_none(z.imag)],
             f"bandwidth_rl{SUMMARY_RETURN_LOSS_DB:g}db": _band_dict(self.bandwidth_rl),
             f"bandwidth_swr{SUMMARY_SWR:g}": _band_dict(self.bandwidth_swr),
             "q_unloaded": self.q_unloaded,
@@ -102,6 +103,3 @@ def _band_dict(bw: Bandwidth) -> dict[str, Any]:
     }
 
 
-def _json_float(x: float | np.ndarray) -> float | None:
-    value = float(x)
-    return value if np.isfinite(value) else None

@@ -14,7 +14,9 @@ from acquire.station.counters import Yield
 FONT = {
     "A": (" ### ", "#   #", "#####", "#   #", "#   #"),
     "E": ("#####", "#    ", "#### ", "#    ", "#####"),
+    "D": ("#### ", "#   #", "#   #", "#   #", "#### "),
     "F": ("#####", "#    ", "#### ", "#    ", "#    "),
+    "H": ("#   #", "#   #", "#####", "#   #", "#   #"),
     "I": ("#####", "  #  ", "  #  ", "  #  ", "#####"),
     "K": ("#   #", "#  # ", "###  ", "#  # ", "#   #"),
     "L": ("#    ", "#    ", "#    ", "#    ", "#####"),
@@ -27,7 +29,8 @@ FONT = {
 }
 WORDS = {"pass": ("PASS", "green+bold"), "fail": ("FAIL", "red+bold"),
          "error": ("ERROR", "yellow+bold"), "stop": ("STOP", "red+bold"),
-         "ok": ("OK", "green+bold")}
+         "ok": ("OK", "green+bold"), "retest": ("RETEST", "yellow+bold"),
+         "hold": ("HOLD", "yellow+bold")}
 RULE = "=" * 64
 
 

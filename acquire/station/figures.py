@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 
 from acquire.checks import MaskCheck, Verdict, WorstSwrCheck
+from acquire.jsonsafe import finite_or_none
 from acquire.plan import Plan
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
@@ -95,7 +96,7 @@ def worst_swr_in_band(sweep: Sweep, band_hz: tuple[float, float]
     values = swr(gamma)
     k = int(np.argmax(values))
     value = float(values[k])
-    return (value if np.isfinite(value) else None), float(f[inside][k])
+    return finite_or_none(value), float(f[inside][k])
 
 
 def key_figures(sweep: Sweep, verdict: Verdict, plan: Plan,

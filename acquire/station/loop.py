@@ -188,7 +188,11 @@ class Station:
                           f"attempt {before + 1}, kept beside the earlier file(s)")
         self.term.say(f"measuring {serial} ...")
         result = self._measure(serial)
-        if result is not None:
+        if result is not None and result.verdict == "indeterminate":
+            from acquire.station.hold import handle_indeterminate
+
+            handle_indeterminate(self, serial, result)
+        elif result is not None:
             self._show(result)
 
     def _measure(self, serial: str, *, golden: bool = False) -> UnitResult | None:
@@ -216,9 +220,9 @@ class Station:
             self._connect()
             return None
 
-    def _show(self, result: UnitResult) -> None:
+    def _show(self, result: UnitResult, key: str | None = None) -> None:
         verdict = result.capture.verdict
-        key = result.verdict if result.verdict in ("pass", "fail") else "error"
+        key = key or (result.verdict if result.verdict in ("pass", "fail") else "error")
         failing = [r.summary for r in verdict.results if r.verdict != "pass"]
         stored = result.stored
         files = [str(p) for p in (stored.touchstone, stored.summary) if p is not None]
