@@ -23,7 +23,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
     "measure": ("measure", "measure one unit for MES calls: checks, files, journal (0/1/2)"),
-    "summary": ("summary", "yield and per-metric statistics with Cpk from a journal; CSV"),
+    "summary": ("summary", "yield and per-metric statistics (Ppk, Cpk) from a journal; CSV"),
     "serve": ("serve", "run queued soak jobs in the foreground (for systemd); Ctrl-C stops"),
     "submit": ("submit", "queue a soak job from a plan with schedule: and soak: sections"),
     "status": ("status", "show every soak job: state, sweeps, faults, next sweep, drift"),
@@ -38,7 +38,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="sweepd",
         description="Unattended, vendor-neutral acquisition of network analyzer sweeps.",
-        epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error.",
+        epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error (also any unexpected "
+               "one), 130 interrupted.",
     )
     parser.add_argument("--version", action=_VersionAction, help="print the version and exit")
     parser.add_argument(
@@ -64,8 +65,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(_module(args._module).run(args))
     except SweepdError as exc:
-        print(f"sweepd: error: {exc}", file=sys.stderr)
-        return EXIT_ERROR
+        _error(str(exc))
     except KeyboardInterrupt:
         print("sweepd: interrupted", file=sys.stderr)
         return 130
@@ -73,8 +73,28 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_ERROR
     except OSError as exc:  # disk full, permissions: one line, no traceback
         where = f" ({exc.filename})" if exc.filename else ""
-        print(f"sweepd: error: {exc.strerror or exc}{where}", file=sys.stderr)
-        return EXIT_ERROR
+        _error(f"{exc.strerror or exc}{where}")
+    except Exception as exc:  # anything unforeseen: exit 2, never 1 (1 means "failed")
+        _error(internal_error_text(exc))
+    return EXIT_ERROR
+
+
+def _error(message: str) -> None:
+    """``sweepd: error: <message>`` on stderr, always one line."""
+    from drivers.yamlnode import one_line
+
+    print(f"sweepd: error: {one_line(message)}", file=sys.stderr)
+
+
+def internal_error_text(exc: BaseException) -> str:
+    """One line for an unexpected exception; its traceback goes to the log at debug level."""
+    import logging
+
+    logging.getLogger("sweepd").debug("unexpected error", exc_info=exc)
+    detail = " ".join(str(exc).split())
+    detail = detail if len(detail) <= 160 else detail[:157] + "..."
+    return (f"internal error ({type(exc).__name__}{': ' + detail if detail else ''}); "
+            "run with -vv for the traceback")
 
 
 def _module(name: str):
@@ -90,6 +110,21 @@ def _configure_logging(verbosity: int) -> None:
         stream=sys.stderr,
         format="%(asctime)s %(levelname)s %(name)s: %(message)s",
     )
+    _warnings_to_debug_log()
+
+
+def _warnings_to_debug_log() -> None:
+    """Python warnings (numpy's RuntimeWarnings among them) go to the log at debug level,
+    never straight to stderr: a user sees one line per problem, or nothing."""
+    import logging
+    import warnings
+
+    log = logging.getLogger("sweepd.warnings")
+
+    def show(message, category, filename, lineno, file=None, line=None) -> None:
+        log.debug("%s: %s (%s:%s)", category.__name__, message, filename, lineno)
+
+    warnings.showwarning = show
 
 
 class _VersionAction(argparse.Action):

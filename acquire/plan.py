@@ -16,7 +16,7 @@ from typing import Any
 
 from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
-from acquire.yamlfile import Node, load_yaml
+from acquire.yamlfile import Node, load_yaml, show
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
@@ -100,6 +100,7 @@ class Plan:
     checks: tuple[Any, ...] = ()
     description: str = ""
     sections: dict[str, Any] = field(default_factory=dict)  # raw later sections (station, soak)
+    decision: Any = None  # acquire.uncertainty.DecisionRule (None: simple acceptance)
 
     @property
     def ports(self) -> int:
@@ -108,7 +109,7 @@ class Plan:
 
 SECTIONS = (
     "plan", "description", "instrument", "stimulus", "measure", "calibration", "checks",
-    "output", "schedule", "station", "soak", "dtf",
+    "output", "schedule", "station", "soak", "dtf", "decision",
 )
 
 
@@ -144,7 +145,15 @@ def parse_plan(root: Node, source: Path) -> Plan:
         checks=_checks(root["checks"], root["dtf"]),
         sections={key: root[key] for key in ("schedule", "station", "soak", "dtf")
                   if root[key].present},
+        decision=_decision(root["decision"]),
     )
+
+
+def _decision(node: Node) -> Any:
+    """The ``decision:`` section (acquire/uncertainty/decision.py documents it)."""
+    from acquire.uncertainty.decision import parse_decision
+
+    return parse_decision(node)
 
 
 def _instrument(node: Node) -> InstrumentSpec:
@@ -234,8 +243,8 @@ def _output(node: Node, plan_name: str) -> OutputSpec:
     elif precision_node.present:
         precision = 17
     version = ts["version"].value if ts["version"].present else "1.1"
-    if str(version) not in ("1.1", "2.0", "2"):
-        ts["version"].fail(f"must be 1.1 or 2.0, got {version!r}")
+    if isinstance(version, bool) or version not in ("1.1", "2.0", "2", 1.1, 2.0):
+        ts["version"].fail(f"must be 1.1 or 2.0, got {show(version)}")
     return OutputSpec(
         dir=out_dir,
         name=name,
@@ -321,7 +330,7 @@ def _isolation(node: Node, method: Any) -> bool:
 def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
     checks: tuple[Any, ...] = ()
     if node.present and node.value is not None:
-        from acquire.checks import parse_checks
+        from acquire.check_parse import parse_checks
 
         checks = tuple(parse_checks(node))
     if dtf.present:  # distance-to-fault settings: defaults for the distance checks

@@ -25,6 +25,7 @@ import numpy as np
 from acquire import metrics as m
 from acquire.masks import Mask, MaskResult, SegmentResult, evaluate_mask
 from acquire.metrics.quantities import QUANTITIES, finish, trace
+from acquire.plaintext import plain_text
 from acquire.storage import replace_atomic
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
@@ -127,7 +128,7 @@ def render(
         ax.tick_params(labelbottom=False)
     _frequency_axis(axes[-1], sweep.freq_hz)
     _smith_panel(fig.add_subplot(grid[:, 1]), sweep, marks)
-    fig.suptitle(_title(sweep, results, title), fontsize=12, fontweight="bold")
+    fig.suptitle(plain_text(_title(sweep, results, title)), fontsize=12, fontweight="bold")
     return fig
 
 
@@ -245,7 +246,7 @@ def _draw_limits(ax: Any, segs: Group, convert, flip: bool, span_hz: float) -> N
                 continue
             line = convert(seg.quantity, limit.at(fs, seg.from_hz, seg.to_hz))
             upper_side = (bound == "upper") != flip
-            label = None if mask_name in seen_masks else f"limit: {mask_name}"
+            label = None if mask_name in seen_masks else plain_text(f"limit: {mask_name}")
             seen_masks.add(mask_name)
             ax.plot(fs, line, color=LIMIT, linestyle="--", linewidth=2.0, label=label, zorder=3)
             edge = high if upper_side else low
@@ -294,7 +295,7 @@ def _verdict_note(ax: Any, segs: Group) -> None:
                      f"{format_value(q, w.value)} at {format_frequency(w.freq_hz)}, "
                      f"margin {format_value(q, w.margin)}")
     if lines:
-        ax.set_title("\n".join(lines), loc="left", fontsize=8.5, family="monospace")
+        ax.set_title(plain_text("\n".join(lines)), loc="left", fontsize=8.5, family="monospace")
 
 
 def _span(sweep: Sweep) -> float:

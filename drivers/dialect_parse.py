@@ -12,7 +12,7 @@ from pathlib import Path
 from typing import Any, NoReturn
 
 from drivers.blocks import BYTE_ORDERS, ENCODINGS
-from drivers.dialect import (
+from drivers.dialect_model import (
     REQUIRED_SETTINGS,
     SETTING_NAMES,
     STANDARDS,
@@ -23,6 +23,7 @@ from drivers.dialect import (
     Dialect,
     SettingSpec,
     SwitchSpec,
+    shown_path,
 )
 from drivers.errors import DialectError
 from drivers.layouts import LAYOUTS
@@ -385,14 +386,6 @@ def _switch(node: _Node) -> SwitchSpec:
         reply=reply,
         tokens=tokens,
     )
-
-
-def shown_path(path: Path) -> Path:
-    """``path`` relative to the working folder when it lies inside it (shorter messages)."""
-    try:
-        return path.resolve().relative_to(Path.cwd())
-    except (ValueError, OSError):
-        return path
 
 
 def _show(value: Any) -> str:

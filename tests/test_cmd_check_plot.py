@@ -183,7 +183,8 @@ def test_plot_command_default_output_and_exit_codes(tmp_path, touchstone, capsys
 
 def test_offline_check_repeats_the_capture_time_verdict(tmp_path, touchstone, capsys):
     # Capture time: judge the sweep, write the verdict into the Touchstone comments.
-    from acquire.checks import evaluate_checks, mask_check
+    from acquire.check_parse import mask_check
+    from acquire.checks import evaluate_checks
 
     sweep = Sweep(F, antenna(F, f0=2.48e9), meta={"serial": "P-0007"})
     at_capture = evaluate_checks([mask_check("patch-2g45")], sweep)

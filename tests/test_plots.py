@@ -13,7 +13,7 @@ import sys
 import numpy as np
 import pytest
 
-from acquire.checks import mask_check
+from acquire.check_parse import mask_check
 from acquire.plots import PlotError, plot_file, render
 from acquire.sweep import Sweep
 

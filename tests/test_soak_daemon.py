@@ -75,7 +75,8 @@ def test_submit_serve_status_report_from_other_shells(tmp_path: Path,
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out",
                          every="0.03 s", count=60,
                          soak={"alarms": {"resonance_shift": "1 MHz", "command":
-                                          f"{sys.executable} -c pass"}})
+                                          f"{sys.executable} -c pass"},
+                               "statistics": {"min_sweeps": 20, "min_span": "0.5 s"}})
         code, out, err = cli(capsys, "submit", str(plan), "--spool", str(spool))
         assert code == 0 and out.startswith("submitted soak-test-001: soak-test on TCPIP::")
         assert "no sweepd serve runs on spool" in err
@@ -261,7 +262,7 @@ def test_spool_is_private_and_bad_input_is_one_line(tmp_path: Path,
             assert not path.stat().st_mode & (stat.S_IWGRP | stat.S_IWOTH), path
     os.chmod(spool, 0o777)
     code, _, err = cli(capsys, "submit", str(plan), "--spool", str(spool))
-    assert code == 2 and "is writable by others; chmod 700 it" in err
+    assert code == 2 and "writable by group or others (mode 0777)" in err
     os.chmod(spool, 0o700)
     bad = tmp_path / "bad.yaml"
     bad.write_text(plan.read_text().replace("every: 0 s", "every: soon"))

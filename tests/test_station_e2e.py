@@ -15,10 +15,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from station_driver import StationProcess
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
-from acquire.journal import Journal
-from acquire.station.driver import StationProcess
+from acquire.journal import journal_in
 from acquire.storage import sweep_stale_temps
 from simulators.server import SimServer
 
@@ -79,7 +79,8 @@ def test_a_batch_over_tcp_gets_the_right_verdicts_files_and_journal(sim, tmp_pat
         text = unit(st, sim, BAD[0])
         assert f"RETEST: {BAD[0]} was measured 1 time(s) before" in text
         assert f"{BAD[0]}: FAIL   RETEST (attempt 2)" in text
-        assert "tested 4 | passed 2 | failed 2 | retests 1 | first-pass yield 50.0 %" in text
+        assert ("tested 4 | passed 2 | failed 2 | yield 50.0 % (4 judged) | retests 1 | "
+                "first-pass yield 50.0 %") in text
         st.send("s")
         assert "retests 1" in st.expect("serial> ")
         st.send("q")
@@ -339,7 +340,7 @@ def test_sigkill_between_units_and_mid_sweep(sim, tmp_path) -> None:
         time.sleep(0.3)
         st.signal(signal.SIGKILL)
         assert st.wait() == -signal.SIGKILL
-    with Journal.in_folder(out) as journal:
+    with journal_in(out) as journal:
         assert journal.reconcile() == []  # nothing was left half-recorded
     stored = agree(out)
     assert len(stored) == 5  # 2 golden checks, 3 units; the unit in flight has no file
@@ -365,7 +366,7 @@ def test_sigkill_at_random_moments_never_tears_a_record(sim, tmp_path) -> None:
             time.sleep(float(rng.uniform(0.05, 1.5)))
             st.signal(signal.SIGKILL)
             st.wait()
-        with Journal.in_folder(out) as journal:
+        with journal_in(out) as journal:
             journal.reconcile()
         # what the next start does: temp files of the killed writer go (never a live one's)
         sweep_stale_temps(out)

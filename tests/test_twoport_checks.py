@@ -15,7 +15,8 @@ import numpy as np
 import pytest
 import skrf as rf
 
-from acquire.checks import evaluate_checks, parse_checks
+from acquire.check_parse import parse_checks
+from acquire.checks import evaluate_checks
 from acquire.errors import PlanError
 from acquire.plan import load_plan
 from acquire.sweep import Sweep

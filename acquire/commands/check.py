@@ -32,7 +32,8 @@ def run(args: argparse.Namespace) -> int:
 def _run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from acquire.checks import Check, any_mask_check, evaluate_checks
+    from acquire.check_parse import any_mask_check
+    from acquire.checks import Check, evaluate_checks
     from acquire.errors import ConfigError
 
     checks: list[Check] = [any_mask_check(ref, Path.cwd()) for ref in args.mask]

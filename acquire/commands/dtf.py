@@ -83,7 +83,7 @@ def _sources(args: argparse.Namespace):
     """Distance checks from --mask and --plan, and the plan's ``dtf:`` settings."""
     from pathlib import Path
 
-    from acquire.checks import any_mask_check
+    from acquire.check_parse import any_mask_check
     from acquire.errors import ConfigError
     from acquire.timedomain.checks import DistanceCheck
     from acquire.timedomain.spec import DtfSpec, parse_spec

@@ -34,7 +34,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from acquire.checks import mask_check
+    from acquire.check_parse import mask_check
     from acquire.commands.check import read_sweep
     from acquire.masks import evaluate_mask
     from acquire.plots import FORMATS, PlotError, plot_file

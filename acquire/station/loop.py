@@ -22,7 +22,7 @@ from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
 
-from acquire.journal import JOURNAL_NAME, Journal
+from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
 from acquire.measure import CalChoice, choose_calibration
 from acquire.plan import Plan
 from acquire.station.config import StationConfig, check_station_id, station_config
@@ -97,7 +97,7 @@ class Station:
         if station_id is None:
             return 0
         code, state, note = 0, "finished", None
-        with Journal.in_folder(self.out_dir) as journal, terminate_as_interrupt():
+        with journal_in(self.out_dir) as journal, terminate_as_interrupt():
             self._recover(journal)
             run_id = journal.start_run(
                 "station", self.plan.name, plan_path=str(self.plan.source), station=station_id,
@@ -198,17 +198,15 @@ class Station:
             return measure_unit(line, serial, golden=golden)
         except KeyboardInterrupt:
             with deferred_interrupt():
-                if line.journal.query_one("SELECT 1 FROM measurements WHERE run_id = ? AND "
-                                          "seq = ?", (line.run_id, seq)) is None:
-                    line.journal.record_missed(line.run_id, seq, "interrupted during the sweep; "
-                                               "nothing stored", serial=serial)
+                if line.journal.record_missed(line.run_id, [seq], "interrupted during the "
+                                              "sweep; nothing stored", serial=serial):
                     self.term.say("", f"{serial} was NOT measured (interrupted during the "
                                   "sweep); nothing was saved for it")
             raise
         except InstrumentError as exc:
             line.journal.record_fault(line.run_id, type(exc).__name__, str(exc), seq=seq,
                                       action="unit not measured; reconnecting")
-            line.journal.record_missed(line.run_id, seq, f"instrument fault: {exc}",
+            line.journal.record_missed(line.run_id, [seq], f"instrument fault: {exc}",
                                        serial=serial)
             self.term.say(*banner("error", self.term.paint),
                           f"INSTRUMENT FAULT: {exc}",
@@ -419,24 +417,23 @@ class Station:
             except StationError as exc:
                 self.term.say(f"REFUSED: {exc}")
 
-    def _recover(self, journal: Journal) -> None:
+    def _recover(self, journal: JournalStore) -> None:
         """Close earlier shifts of this plan that never ended (killed, power cut): settle
         their pending rows and mark them crashed. One station per plan and folder."""
-        stale = journal.query("SELECT id FROM runs WHERE kind = 'station' AND plan = ? AND "
-                              "state = 'running'", (self.plan.name,))
+        stale = journal.open_runs(("station",), self.plan.name)
         changed = []
-        for row in stale:
-            changed += journal.reconcile(run_id=int(row["id"]))
-            journal.end_run(int(row["id"]), "crashed",
+        for run_id in stale:
+            changed += journal.reconcile(run_id=run_id)
+            journal.end_run(run_id, "crashed",
                             note="ended without closing; settled at the next station start")
         if stale:
             adopted = sum(1 for _, state in changed if state == "stored")
             self.term.say(f"journal: {len(stale)} earlier shift(s) ended without closing; "
                           f"{len(changed)} pending measurement(s) settled ({adopted} adopted, "
-                          f"{len(changed) - adopted} missed)")
+                          f"{len(changed) - adopted} interrupted)")
         sweep_stale_temps(self.out_dir)  # temp files of writers that died mid-write
 
-    def _goodbye(self, journal: Journal, run_id: int) -> None:
+    def _goodbye(self, journal: JournalStore, run_id: int) -> None:
         self.term.say(f"shift ended: {run_yield(journal, run_id).line()}",
-                      f"files in {self.out_dir}; journal {journal.path}",
+                      f"files in {self.out_dir}; journal {journal.where}",
                       f"statistics: {shlex.join(['sweepd', 'summary', str(self.out_dir)])}")

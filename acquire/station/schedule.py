@@ -13,8 +13,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import datetime, timezone
 
-from acquire.journal import Journal, utc_text
-from acquire.station.config import GoldenSpec
+from acquire.journal import JournalStore, utc_text
+from acquire.station.golden import GoldenSpec
 from acquire.units import format_duration
 
 
@@ -33,18 +33,11 @@ def parse_utc(text: str) -> datetime:
     return datetime.fromisoformat(text.replace("Z", "+00:00")).astimezone(timezone.utc)
 
 
-def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
+def line_state(journal: JournalStore, plan: str, spec: GoldenSpec, *,
                cal_created: datetime | None = None, now: datetime | None = None) -> LineState:
     """The line's golden-check state for ``plan`` (see the module docstring)."""
-    last = journal.query_one(
-        "SELECT g.time_utc, g.passed, g.message FROM golden_checks g JOIN runs r "
-        "ON r.id = g.run_id WHERE r.plan = ? ORDER BY g.time_utc DESC, g.id DESC LIMIT 1",
-        (plan,),
-    )
-    last_pass = journal.query_one(
-        "SELECT MAX(g.time_utc) FROM golden_checks g JOIN runs r ON r.id = g.run_id "
-        "WHERE r.plan = ? AND g.passed = 1", (plan,),
-    )[0]
+    last = journal.last_golden(plan)
+    last_pass = journal.last_good_golden_utc(plan)
     cal_text = utc_text(cal_created) if cal_created is not None else None
     anchor = last_pass
     if last is not None and not last["passed"]:
@@ -54,12 +47,7 @@ def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
         anchor = cal_text  # released by a calibration made after the failed check
     if anchor is None:
         return LineState(due=True, due_reason=f"no golden check on record for plan {plan}")
-    # ">=": journal times have millisecond resolution, and a unit journalled in the same
-    # millisecond as the check (or the releasing cal) came after it.
-    units = int(journal.query_one(
-        "SELECT COUNT(*) FROM measurements m JOIN runs r ON r.id = m.run_id WHERE r.plan = ? "
-        "AND m.golden = 0 AND m.state = 'stored' AND m.time_utc >= ?", (plan, anchor),
-    )[0])
+    units = journal.units_since(plan, anchor)
     if spec.every_units and units >= spec.every_units:
         return LineState(due=True, due_reason=f"{units} units since the last good golden "
                          f"check (every {spec.every_units})", units_since=units,

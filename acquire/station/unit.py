@@ -10,17 +10,17 @@ leaves half a record; a crash leaves at worst a pending row that ``reconcile`` s
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
-from acquire.journal import Journal, Planned
+from acquire.journal import JournalStore, Planned
 from acquire.measure import CalChoice, Capture, Stored, capture, journal_stored, plan_path, store
 from acquire.plan import Plan
 from acquire.runner import Session
 from acquire.station.config import StationConfig
 from acquire.station.errors import GoldenError
 from acquire.station.figures import KeyFigures, key_figures, with_figures
-from acquire.station.golden import GoldenResult, compare
+from acquire.station.golden import GoldenResult, compare, golden_verdict
 from acquire.station.interrupts import deferred_interrupt
 from acquire.sweep import Sweep
 from drivers.errors import SweepdError
@@ -33,7 +33,7 @@ class Line:
     plan: Plan
     config: StationConfig
     out_dir: Path
-    journal: Journal
+    journal: JournalStore
     run_id: int
     station_id: str = ""
     session: Session | None = None
@@ -80,8 +80,7 @@ def measure_unit(line: Line, serial: str, *, golden: bool = False) -> UnitResult
     result = None
     if golden:
         result = _golden_result(line, cap, serial)
-        cap.verdict = replace(cap.verdict,
-                              metrics={**cap.verdict.metrics, "golden_check": result.to_dict()})
+        cap.verdict = golden_verdict(cap.verdict, result)
     with deferred_interrupt():
         path = plan_path(cap, plan, line.out_dir, serial=serial, index=seq,
                          station=line.station_id)
@@ -105,7 +104,7 @@ def _golden_result(line: Line, cap: Capture, serial: str) -> GoldenResult:
     try:
         return compare(cap.sweep, line.reference, spec, line.plan.measure)
     except GoldenError as exc:
-        return GoldenResult(False, str(exc), 0)
+        return GoldenResult(False, str(exc), 0, reference=spec.reference.name, serial=serial)
 
 
 def _store(line: Line, planned: Planned, cap: Capture) -> Stored:
