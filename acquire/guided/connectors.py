@@ -3,7 +3,9 @@ the analyzer's own standard switch.
 
 The external command comes from the plan (``calibration.switch.command``), is split once
 with ``shlex`` and run without a shell; ``{standard}`` is replaced by one of the fixed
-fixture names (open, short, load, thru, device) and nothing else. A non-zero exit status,
+fixture names (open, short, load, thru, device) and nothing else, and an optional
+``{port}`` by the port the standard goes to: ``1``, ``2`` or ``both`` (a thru, loads for
+isolation, a two-port device). A non-zero exit status,
 a missing program or a hang is a ``FixtureError`` (one line) and the step can be retried.
 """
 
@@ -18,6 +20,7 @@ from drivers.dialect import STANDARDS
 
 COMMAND_TIMEOUT_S = 60.0
 PLACEHOLDER = "{standard}"
+PORT_PLACEHOLDER = "{port}"
 
 
 class FixtureError(CalError):
@@ -28,7 +31,7 @@ class Connector(Protocol):
     manual: bool  # True: the technician connects standards by hand
     description: str
 
-    def connect(self, standard: str) -> None: ...
+    def connect(self, standard: str, port: int = 0) -> None: ...
 
 
 class ManualConnector:
@@ -37,7 +40,7 @@ class ManualConnector:
     manual = True
     description = "by hand"
 
-    def connect(self, standard: str) -> None:
+    def connect(self, standard: str, port: int = 0) -> None:
         _check_name(standard)
 
 
@@ -59,12 +62,14 @@ class CommandConnector:
         self.timeout_s = timeout_s
         self.description = f"by the switch command '{template}'"
 
-    def command(self, standard: str) -> list[str]:
+    def command(self, standard: str, port: int = 0) -> list[str]:
         _check_name(standard)
-        return [arg.replace(PLACEHOLDER, standard) for arg in self.argv]
+        where = str(port) if port in (1, 2) else "both"
+        return [arg.replace(PLACEHOLDER, standard).replace(PORT_PLACEHOLDER, where)
+                for arg in self.argv]
 
-    def connect(self, standard: str) -> None:
-        argv = self.command(standard)
+    def connect(self, standard: str, port: int = 0) -> None:
+        argv = self.command(standard, port)
         shown = shlex.join(argv)
         try:
             done = subprocess.run(argv, capture_output=True, text=True, errors="replace",
@@ -97,7 +102,7 @@ class SwitchConnector:
                            "section): use --prompt terminal or a switch command")
         self.description = f"by the analyzer's standard switch ({analyzer.dialect.name})"
 
-    def connect(self, standard: str) -> None:
+    def connect(self, standard: str, port: int = 0) -> None:
         from drivers.errors import DialectError, ScpiErrorQueue, SettingMismatch
 
         _check_name(standard)

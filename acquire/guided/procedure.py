@@ -183,8 +183,11 @@ class Procedure(Finishing):
     def _connect(self, position: str, step: str) -> bool:
         if position == KEEP:
             return True
+        port = next((s.port for s in self.s.steps if s.name == step), 0)
+        if not self.method.two_port:
+            port = 1 if port == 0 and position != "thru" else port
         try:
-            self.s.connector.connect(position)
+            self.s.connector.connect(position, port)
         except FixtureError as exc:
             self.failures[step] = self.failures.get(step, 0) + 1
             self.problem = str(exc)
