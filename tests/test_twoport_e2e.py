@@ -188,3 +188,26 @@ def test_command_backend_is_told_the_port(sim: SimServer, tmp_path: Path) -> Non
     with Session(load_plan(plan), sim.tcp_resource) as session:
         raw = session.measure()
     assert np.abs(outcome.calset.correct(raw).s - truth.s).max() < 1e-9
+
+
+def test_two_port_through_the_tabletop_personality_over_serial(tmp_path: Path) -> None:
+    """The other personality measures through the same bench, so it shows the same
+    two-port error box. Its ASCII transfer rounds to 1e-6 dB and 1e-6 degree (about
+    1.2e-7 relative per raw value), which bounds the agreement with the truth: < 1e-6."""
+    plan = _plan_copy(tmp_path, 51)
+    plan.write_text(plan.read_text().replace("dialect: scpi-generic", "dialect: tabletop-ascii"))
+    with SimServer(personality="tabletop", tcp_port=None, serial=True, time_scale=0.0,
+                   noise=False) as table:
+        table.bench.set_device("attenuator-10db")
+        outcome = calibrate(load_plan(plan), Options(resource=table.serial_resource,
+                                                     prompt="switch"), stdout=io.StringIO())
+        assert outcome.exit_code == 0
+        table.bench.connect("device")
+        from acquire.runner import Session
+
+        with Session(load_plan(plan), table.serial_resource) as session:
+            raw = session.measure()
+        truth = table.bench.truth(raw.freq_hz)
+    err = np.abs(outcome.calset.correct(raw).s - truth).max()
+    assert err < 1e-6
+    assert np.abs(raw.s - truth).max() > 0.1
