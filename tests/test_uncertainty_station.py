@@ -11,9 +11,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from station_driver import StationProcess
 from test_station_support import GOOD, install_cal, rows, write_plan
 
-from acquire.station.driver import StationProcess
 from simulators.server import SimServer
 
 BAND = ["2.40 GHz", "2.50 GHz"]

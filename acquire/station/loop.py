@@ -191,7 +191,8 @@ class Station:
         if result is not None and result.verdict == "indeterminate":
             from acquire.station.hold import handle_indeterminate
 
-            handle_indeterminate(self, serial, result)
+            if not handle_indeterminate(self, serial, result, QUIT):
+                raise Quit
         elif result is not None:
             self._show(result)
 
