@@ -99,7 +99,7 @@ def test_s21_uncertainty_agrees_with_monte_carlo(budget: str, device: str) -> No
     assert np.all(np.abs(q - unc.expanded) <= 0.10 * unc.expanded), (q, unc.expanded)
 
 
-def test_enhanced_response_capture_covers_the_simulator_truth(tmp_path: Path) -> None:
+def test_one_path_two_port_capture_covers_the_simulator_truth(tmp_path: Path) -> None:
     """A real one-path-two-port calibration on the simulator (noise off, standards as
     modelled): the corrected |S21| and |S11| of a 1 m cable lie within ± U of the
     simulator's truth at every point. The load match the method leaves uncorrected is

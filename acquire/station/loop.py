@@ -195,7 +195,8 @@ class Station:
         if result is not None:
             self.swap.remember(serial, result.capture.sweep)
         if result is not None and result.verdict == "indeterminate":
-            handle_indeterminate(self, serial, result)
+            if not handle_indeterminate(self, serial, result, QUIT):
+                raise Quit
         elif result is not None:
             self._show(result)
 

@@ -1,4 +1,5 @@
-"""Uncertainty of |S21| after a one-path-two-port calibration (one-port + thru).
+"""Uncertainty of |S21| after a one-path-two-port calibration (one-port + thru; the
+method was called enhanced-response).
 
 Measurement model (the exact two-port error model of ``acquire.calibration.model``):
 the port-1 one-port is solved from the open, short and load as read (deviations,
