@@ -1,11 +1,12 @@
 """The uncertainty of one capture: built from its cal set, kit and plan; JSON and comments.
 
 ``sweep_uncertainty`` needs a full one-port correction of the reflection (``one-port``
-or ``enhanced-response``): the other methods leave directivity or source match
-uncorrected, and an uncorrected sweep has no budget at all; then the result says why
-(``unavailable``) and carries no points. Trace noise comes from the cal set's raw load
-reading (``budget.noise_from_load``) scaled to the sweep's IF bandwidth, power and
-averaging, unless the plan states a level; drift grows with the cal set's age.
+or ``one-path-two-port``, formerly ``enhanced-response``): the other methods leave
+directivity or source match uncorrected, and an uncorrected sweep has no budget at all;
+then the result says why (``unavailable``) and carries no points. Trace noise comes from
+the cal set's raw load reading (``budget.noise_from_load``) scaled to the sweep's IF
+bandwidth, power and averaging, unless the plan states a level; drift grows with the cal
+set's age.
 """
 
 from __future__ import annotations
@@ -21,7 +22,7 @@ from acquire.uncertainty.decision import SIMPLE, DecisionRule
 from acquire.uncertainty.propagate import STANDARDS, ReflectionUncertainty, reflection_uncertainty
 from acquire.units import format_frequency
 
-FULL_REFLECTION = ("one-port", "enhanced-response")
+FULL_REFLECTION = ("one-port", "one-path-two-port", "enhanced-response")  # last: older name
 FORMAT = "sweepd-uncertainty"
 VERSION = 1
 
