@@ -20,6 +20,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from acquire.check_nodes import freq_pair as _freq_pair
 from acquire.checks import BandwidthCheck, Check, MaskCheck, ResonanceCheck, WorstSwrCheck
 from acquire.errors import ConfigError, MaskError
 from acquire.library import find_config
@@ -32,7 +33,6 @@ from acquire.twoport_checks import (
     InsertionLossCheck,
     ReturnLossCheck,
 )
-from acquire.units import format_frequency
 from acquire.yamlfile import Node, load_yaml, show
 
 CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance", "insertion_loss",
@@ -104,17 +104,6 @@ def _parse_worst_swr(node: Node) -> Check:
     node.mapping(["band", "at_most", "parameter"], required=["band", "at_most"])
     lo, hi = _freq_pair(node["band"])
     return WorstSwrCheck(lo, hi, node["at_most"].number(lo=1.0), _reflection(node["parameter"]))
-
-
-def _freq_pair(node: Node) -> tuple[float, float]:
-    items = node.elements(min_len=2)
-    if len(items) != 2:
-        node.fail(f"must be a pair [low, high], got {len(items)} values")
-    lo = items[0].quantity("frequency", lo=0.0)
-    hi = items[1].quantity("frequency", lo=0.0)
-    if hi < lo:
-        node.fail(f"low end {format_frequency(lo)} lies above high end {format_frequency(hi)}")
-    return lo, hi
 
 
 def _reflection(node: Node) -> str:

@@ -26,7 +26,9 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any
 
-from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask
+from acquire.errors import CheckError
+from acquire.jsonsafe import json_safe
+from acquire.masks import EDGE_RTOL, Limit, Mask, MaskResult, Segment, evaluate_mask
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
 from drivers.errors import SweepdError
@@ -163,6 +165,16 @@ class BandwidthCheck(Check):
             )
         verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
+        return self._result(verdict, bw, band, more, details)
+
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance on the band where |S| ± w is surely / possibly below."""
+        from acquire.uncertainty.guarded import guarded_bandwidth
+
+        return guarded_bandwidth(self, self.evaluate(sweep), sweep, rule, uncertainty)
+
+    def _result(self, verdict: str, bw: Any, band: Any, more: str, details: dict[str, Any]
+                ) -> CheckResult:
         return CheckResult(
             self.kind, self.name, verdict,
             f"{self.name} {verdict}: {format_frequency(bw.width_hz)}{more} "
@@ -278,8 +290,6 @@ def _param(check: Check, sweep: Sweep):
 
 
 def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
-    from acquire.masks import EDGE_RTOL
-
     f = sweep.freq_hz
     tol = EDGE_RTOL * max(abs(float(f[-1])), 1.0)
     if lo < f[0] - tol or hi > f[-1] + tol:
@@ -287,10 +297,6 @@ def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
             check, f"{format_frequency(lo)}..{format_frequency(hi)} is not inside the sweep "
             f"{format_frequency(f[0])}..{format_frequency(f[-1])}",
         )
-
-
-class CheckError(SweepdError):
-    """A check cannot judge this sweep."""
 
 
 def _judged(check: Check, margin: float, *, inside: bool = True) -> str:
@@ -361,7 +367,7 @@ class Verdict:
 
     def to_json(self, indent: int | None = 2) -> str:
         """Stable JSON (keys in a fixed order, no NaN or infinity)."""
-        return json.dumps(_finite_json(self.to_dict()), indent=indent, allow_nan=False,
+        return json.dumps(json_safe(self.to_dict()), indent=indent, allow_nan=False,
                           ensure_ascii=True)
 
     def summary_line(self) -> str:
@@ -508,17 +514,4 @@ def evaluate_checks(
 
         key = key_metrics(sweep)
     rule = decision.to_dict() if decision is not None else {}
-    return Verdict(tuple(results), info, _finite_json(key), rule)
-
-
-def _finite_json(value: Any) -> Any:
-    """Plain JSON values: numpy scalars unwrapped, NaN and infinity as ``None``."""
-    if hasattr(value, "item") and not isinstance(value, (list, dict, str)):
-        value = value.item()
-    if isinstance(value, float):
-        return value if value == value and abs(value) != float("inf") else None
-    if isinstance(value, dict):
-        return {k: _finite_json(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_finite_json(v) for v in value]
-    return value
+    return Verdict(tuple(results), info, json_safe(key), rule)

@@ -19,9 +19,10 @@ from acquire.checks import Verdict, evaluate_checks
 from acquire.journal import JournalStore, Planned, StoredFields, journal_in
 from acquire.journal import worst_margin as journal_worst_margin
 from acquire.plan import Plan
-from acquire.runner import Session, capture_path, save_capture, utc_now
+from acquire.runner import Session, capture_path, save_capture
 from acquire.storage import free_path, sweep_stale_temps, write_new
 from acquire.sweep import Sweep
+from acquire.utc import utc_now
 from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)

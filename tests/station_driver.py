@@ -11,21 +11,56 @@ import contextlib
 import os
 import signal
 import subprocess
+import sys
 import time
 from collections.abc import Sequence
+from pathlib import Path
 from typing import TextIO
 
 from acquire.demo.operator import Operator
 from acquire.station.errors import StationError
 
+# The station with its clock injected: ``acquire.utc`` reads the machine's clock plus the
+# number of seconds written in a file the test owns, so a test moves time forward by
+# writing that file instead of sleeping past a validity window.
+SHIFTED_CLOCK_MAIN = """
+import sys
+from datetime import timedelta
+from pathlib import Path
+
+import acquire.utc as utc
+
+shift = Path(sys.argv.pop(1))
+utc.set_clock(lambda: utc.system_now() + timedelta(seconds=float(shift.read_text() or 0)))
+from acquire.cli import main
+
+sys.exit(main(sys.argv[1:]))
+"""
+
 
 class StationProcess(Operator):
-    """A station subprocess with a pipe or pseudo-terminal for its terminal."""
+    """A station subprocess with a pipe or pseudo-terminal for its terminal; with
+    ``clock_shift_file`` its clock runs that many seconds ahead (see ``shift_clock``)."""
 
     def __init__(self, args: Sequence[str], *, pty: bool = False, echo: TextIO | None = None,
-                 env: dict[str, str] | None = None, cwd: str | None = None) -> None:
+                 env: dict[str, str] | None = None, cwd: str | None = None,
+                 clock_shift_file: Path | None = None) -> None:
         super().__init__(args, echo=echo, env=env, cwd=cwd)
         self.use_pty = pty
+        self.clock_shift_file = clock_shift_file
+        if clock_shift_file is not None and not clock_shift_file.exists():
+            clock_shift_file.write_text("0")
+
+    @property
+    def argv(self) -> list[str]:
+        if self.clock_shift_file is None:
+            return super().argv
+        return [sys.executable, "-c", SHIFTED_CLOCK_MAIN, str(self.clock_shift_file),
+                "station", *self.args]
+
+    def shift_clock(self, seconds: float) -> None:
+        """From now on the station's clock runs ``seconds`` ahead of the machine's."""
+        self.clock_shift_file.write_text(repr(float(seconds)))
 
     def start(self) -> StationProcess:
         if not self.use_pty:

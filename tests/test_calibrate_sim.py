@@ -9,12 +9,13 @@ from __future__ import annotations
 
 import io
 import sys
-import time
+from datetime import timedelta
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+import acquire.utc
 from acquire.calibration import CalSet, load_kit
 from acquire.cli import main
 from acquire.errors import CalError
@@ -171,8 +172,14 @@ def test_run_refuses_a_stale_or_mismatched_cal_set(sim: SimServer, tmp_path: Pat
     out = tmp_path / "out"
     stale = _plan(tmp_path, "aging", calibration="method: one-port\nmax_age: 1 s")
     _cal(stale, sim, out)
-    time.sleep(1.2)
-    assert main(["run", str(stale), "--resource", sim.tcp_resource, "--output", str(out)]) == 2
+    # two seconds later, by an injected clock rather than by sleeping past the window
+    later = acquire.utc.utc_now() + timedelta(seconds=2)
+    previous = acquire.utc.set_clock(lambda: later)
+    try:
+        assert main(["run", str(stale), "--resource", sim.tcp_resource,
+                     "--output", str(out)]) == 2
+    finally:
+        acquire.utc.set_clock(previous)
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1
     assert "old (max 1 s)" in err and "sweepd calibrate" in err

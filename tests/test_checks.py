@@ -168,7 +168,11 @@ def test_verdict_json_is_stable_and_documented():
         assert {"kind", "name", "verdict", "summary", "message"} <= set(c)
     seg = d["checks"][0]["segments"][0]
     assert {"worst", "failing_ranges_hz", "from_hz", "to_hz", "quantity", "parameter"} <= set(seg)
-    assert verdict.to_json() == verdict.to_json()
+    # stable: a verdict judged again from the same data writes the same text, and that
+    # text is already in the canonical form (key order kept, no NaN or infinity)
+    again = evaluate_checks(parse_checks(plan_node(PLAN)), Sweep(F, antenna(F)))
+    assert again.to_json() == verdict.to_json()
+    assert json.dumps(d, indent=2, allow_nan=False, ensure_ascii=True) == verdict.to_json()
     # Every key named in the README's verdict section exists.
     from acquire.library import library_dir
 

@@ -63,8 +63,7 @@ def test_package_data_globs_ship_every_file_in_configs():
 
 # Cycles that are being broken elsewhere, each with the issue point that removes it. The
 # list only shrinks: an entry that is no longer a cycle fails the test until removed.
-KNOWN_CYCLES: dict[frozenset[str], str] = {
-}
+KNOWN_CYCLES: dict[frozenset[str], str] = {}
 
 # Which top-level rooms each may import (DEVELOPERS.md, "Map of the house").
 # The longest matching prefix rules: only the front doors to the simulator (the demo and

@@ -30,11 +30,10 @@ from __future__ import annotations
 import hashlib
 import io
 import json
-import math
 import zipfile
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field, replace
-from datetime import datetime, timezone
+from datetime import datetime
 from functools import cached_property
 from pathlib import Path
 from types import MappingProxyType
@@ -45,8 +44,11 @@ import numpy as np
 from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
 from acquire.calibration.methods import ErrorModel, canonical_name
 from acquire.errors import CalError
+from acquire.jsonsafe import json_safe
 from acquire.storage import safe_component, write_new
 from acquire.sweep import Sweep
+from acquire.utc import compact_utc, minute_text, parse_utc, utc_text
+from acquire.utc import utc_now as utc_clock
 from drivers.stimulus import Stimulus
 from drivers.yamlnode import one_line, show
 
@@ -55,12 +57,11 @@ VERSION = 1
 SUFFIX = ".calset"
 HEADER = "header.json"
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)
-_TIME_FORMAT = "%Y-%m-%dT%H:%M:%S.%fZ"
 
 
 def utc_now() -> str:
-    """The current UTC time in the cal set's timestamp format."""
-    return datetime.now(timezone.utc).strftime(_TIME_FORMAT)
+    """The current UTC time in the cal set's timestamp format (microseconds, ``Z``)."""
+    return utc_text(digits=6)
 
 
 @dataclass(frozen=True, eq=False)
@@ -88,10 +89,10 @@ class CalSet:
             a.flags.writeable = False
             raw[str(name)] = a
         object.__setattr__(self, "raw", MappingProxyType(raw))
-        object.__setattr__(self, "figures", MappingProxyType(_jsonable(dict(self.figures))))
+        object.__setattr__(self, "figures", MappingProxyType(json_safe(dict(self.figures))))
         if self.interpolation is not None:
             object.__setattr__(self, "interpolation",
-                               MappingProxyType(_jsonable(dict(self.interpolation))))
+                               MappingProxyType(json_safe(dict(self.interpolation))))
         _parse_time(self.created_utc)  # fail early on a malformed timestamp
 
     # -- identity and age ----------------------------------------------------------------
@@ -110,7 +111,7 @@ class CalSet:
     @property
     def when(self) -> str:
         """Creation time for messages: ``2026-12-02T06:10Z``."""
-        return self.created.strftime("%Y-%m-%dT%H:%MZ")
+        return minute_text(self.created)
 
     @property
     def interpolated(self) -> bool:
@@ -127,11 +128,11 @@ class CalSet:
 
     @property
     def id(self) -> str:
-        stamp = self.created.strftime("%Y%m%dT%H%M%SZ")
+        stamp = compact_utc(self.created)
         return f"{stamp}-{safe_component(self.plan, max_len=40)}-{self.content_sha256[:10]}"
 
     def age_s(self, now: datetime | None = None) -> float:
-        now = now or datetime.now(timezone.utc)
+        now = now or utc_clock()
         return (now - self.created).total_seconds()
 
     # -- applying --------------------------------------------------------------------------
@@ -369,26 +370,9 @@ def _dump_json(obj: Any) -> bytes:
 
 def _parse_time(text: str) -> datetime:
     try:
-        return datetime.strptime(text, _TIME_FORMAT).replace(tzinfo=timezone.utc)
-    except (TypeError, ValueError):
+        return parse_utc(text)
+    except (AttributeError, TypeError, ValueError):
         raise ValueError(f"created_utc must look like 2026-12-02T06:10:00.000000Z, "
                          f"got {text!r}") from None
 
 
-def _jsonable(value: Any) -> Any:
-    """Plain JSON values: numpy scalars to Python, tuples to lists, non-finite to None."""
-    if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _jsonable(value.tolist())
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return float(value) if math.isfinite(value) else None
-    if value is None or isinstance(value, str):
-        return value
-    raise ValueError(f"figure value {value!r} is not a JSON value")

@@ -167,7 +167,7 @@ def _plot(args, profile, peaks, checks, verdict) -> None:
 def _json(args, spec, profile, peaks, verdict) -> str:
     import json
 
-    from acquire.checks import _finite_json
+    from acquire.jsonsafe import json_safe
 
     body = {
         "format": DTF_FORMAT,
@@ -187,7 +187,7 @@ def _json(args, spec, profile, peaks, verdict) -> str:
             "level_db": profile.level_db.tolist(),
             "impedance_ohm": None if z is None else z.tolist(),
         }
-    return json.dumps(_finite_json(body), indent=2, allow_nan=False, ensure_ascii=True)
+    return json.dumps(json_safe(body), indent=2, allow_nan=False, ensure_ascii=True)
 
 
 def _text(source: str, profile, peaks, verdict) -> list[str]:

@@ -11,7 +11,6 @@ from pathlib import Path
 from typing import Any
 
 from acquire.errors import JournalError
-from acquire.journal.clock import utc_text
 from acquire.journal.sqlite_file import SqliteFile, text_or_none
 from acquire.journal.store import (
     FILL_FIELDS,
@@ -22,6 +21,7 @@ from acquire.journal.store import (
     Row,
     StoredFields,
 )
+from acquire.utc import utc_text
 
 _MEASUREMENT_COLUMNS = (
     "id, run_id, seq, serial, attempt, golden, time_utc, state, touchstone, raw_touchstone, "

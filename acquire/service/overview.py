@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import contextlib
 import logging
-from datetime import datetime, timezone
 from typing import Any
 
+from acquire.utc import utc_now, utc_text
 from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)
@@ -20,8 +20,6 @@ LAST_UNITS = 8
 
 
 def overview(service: Any) -> dict[str, Any]:
-    from acquire.journal import utc_text
-
     return {"format": "sweepd-overview", "version": 1, "time_utc": utc_text(),
             "stations": _stations(service), "jobs": _jobs(service)}
 
@@ -70,7 +68,7 @@ def _line(plan: Any) -> dict[str, Any]:
     if golden is None:
         return {"golden": False, "stopped": False, "reason": "", "due": False}
     with journal_in(plan.output.dir, read_only=True) as journal:
-        state = line_state(journal, plan.name, golden, now=datetime.now(timezone.utc))
+        state = line_state(journal, plan.name, golden, now=utc_now())
     return {"golden": True, "stopped": state.stopped, "reason": state.stop_reason,
             "due": state.due, "due_reason": state.due_reason,
             "last_good_utc": state.anchor_utc}

@@ -1,4 +1,5 @@
-"""Which HTTP status answers which error (see ``acquire.service.app``)."""
+"""The HTTP status the service answers for each kind of failure (one table, used by the
+app and by the measurement route)."""
 
 from __future__ import annotations
 
@@ -7,7 +8,7 @@ from drivers.errors import InstrumentError
 
 
 def status_for(exc: BaseException) -> int:
-    """The HTTP status for a ``SweepdError`` (the table in ``acquire.service.app``)."""
+    """The HTTP status for a ``SweepdError`` (table in ``acquire.service.app``)."""
     from acquire.errors import CalError, ConfigError
     from acquire.soak.spool import SpoolError
     from acquire.station.errors import LineStopped, StationError

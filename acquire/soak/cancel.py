@@ -5,8 +5,9 @@ from __future__ import annotations
 import getpass
 import os
 
-from acquire.journal import JOURNAL_NAME, journal_in, utc_text
+from acquire.journal import JOURNAL_NAME, journal_in
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool
+from acquire.utc import utc_text
 
 
 def who() -> str:

@@ -12,7 +12,6 @@ from __future__ import annotations
 import contextlib
 from collections import Counter
 from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 from typing import Any
 
@@ -31,6 +30,7 @@ from acquire.soak.spool import Job, SpoolError
 from acquire.soak.statistics import allan_points, trend_per_hour
 from acquire.storage import replace_atomic
 from acquire.units import format_duration, format_frequency
+from acquire.utc import parse_utc
 
 
 @dataclass
@@ -349,7 +349,7 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
 
 
 def _epoch(utc: str) -> float:
-    return datetime.fromisoformat(utc.replace("Z", "+00:00")).timestamp()
+    return parse_utc(utc).timestamp()
 
 
 def _signed(hz: float) -> str:

@@ -37,10 +37,10 @@ from pathlib import Path
 from typing import Any
 
 from acquire.errors import PlanError
-from acquire.journal import utc_text
 from acquire.safejson import loads_bounded
 from acquire.soak.ownership import OwnershipError, check_private
 from acquire.storage import replace_atomic, write_new
+from acquire.utc import utc_text
 from drivers.errors import SweepdError
 from drivers.yamlnode import one_line
 
