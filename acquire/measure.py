@@ -18,6 +18,7 @@ from typing import Any
 from acquire.checks import Verdict, evaluate_checks
 from acquire.journal import JournalStore, Planned, StoredFields, journal_in
 from acquire.journal import worst_margin as journal_worst_margin
+from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
 from acquire.runner import Session, capture_path, save_capture, utc_now
 from acquire.storage import free_path, sweep_stale_temps, write_new
@@ -273,9 +274,11 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
     stored after; faults are journalled with the run marked failed.
     """
     sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
-    with journal_in(out_dir) as journal:
+    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
+        settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
         run_id = journal.start_run(kind, plan.name, plan_path=str(plan.source),
-                                   resource=resource or plan.instrument.resource)
+                                   resource=resource or plan.instrument.resource,
+                                   **owner.fields())
         try:
             with Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)

@@ -68,14 +68,14 @@ class SqliteJournal(SqliteFile, JournalStore):
         return self._one("SELECT * FROM runs WHERE job_uid = ? AND kind = 'soak'",
                          (job_uid,))
 
-    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[int]:
-        sql = (f"SELECT id FROM runs WHERE state = 'running' AND kind IN "
+    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[Row]:
+        sql = (f"SELECT * FROM runs WHERE state = 'running' AND kind IN "
                f"({', '.join('?' * len(kinds))})")
         params: list[Any] = list(kinds)
         if plan is not None:
             sql += " AND plan = ?"
             params.append(plan)
-        return [int(r["id"]) for r in self._rows(sql + " ORDER BY id", params)]
+        return self._rows(sql + " ORDER BY id", params)
 
     # -- measurements: writing ---------------------------------------------------------------
     def next_seq(self, run_id: int) -> int:

@@ -23,7 +23,7 @@ from typing import Any
 Row = dict[str, Any]
 
 RUN_FIELDS = ("plan_path", "station", "operator", "instrument", "resource", "job_id",
-              "job_uid", "note")
+              "job_uid", "owner", "pid", "host", "note")
 RUN_UPDATES = ("instrument", "resource", "state", "note", "ended_utc", "station", "operator")
 FILL_FIELDS = ("metrics_json", "verdict", "exit_code", "worst_margin", "summary",
                "raw_touchstone", "verdict_json", "cal_id", "cal_age_s", "instrument", "note")
@@ -100,7 +100,7 @@ class JournalStore(ABC):
         """The run of the soak job with this unique id, if it ever started."""
 
     @abstractmethod
-    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[int]:
+    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[Row]:
         """Runs still ``running`` of these kinds (of ``plan`` if given), oldest first."""
 
     # -- measurements: writing ------------------------------------------------------------------

@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from acquire.journal import journal_in
+from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
@@ -81,9 +82,11 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         reference = load_reference(golden, plan)
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with journal_in(out_dir) as journal:
+    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
+        settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
-                                   station=station_id or None, resource=resource)
+                                   station=station_id or None, resource=resource,
+                                   **owner.fields())
         try:
             with Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
