@@ -30,6 +30,7 @@ from acquire.station.config import StationConfig, check_station_id, station_conf
 from acquire.station.counters import run_yield
 from acquire.station.display import banner, unit_lines
 from acquire.station.errors import SerialRefused, StationError
+from acquire.station.folder_lock import StationLock
 from acquire.station.interrupts import deferred_interrupt, terminate_as_interrupt
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
@@ -93,6 +94,13 @@ class Station:
 
     # -- the shift -------------------------------------------------------------------------
     def run(self) -> int:
+        """The shift, holding the output folder for its whole life (one station per
+        folder; a second one is refused with one line naming the holder)."""
+        given = self.options.station_id or self.config.station_id or ""
+        with StationLock(self.out_dir).acquire(given):
+            return self._run()
+
+    def _run(self) -> int:
         self._intro()
         station_id = self._station_id()
         if station_id is None:
