@@ -8,6 +8,7 @@ is the whole of ``sweepd run``; station and soak modes call the parts.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import logging
 import shlex
@@ -19,6 +20,7 @@ from acquire.checks import Verdict, evaluate_checks
 from acquire.journal import JournalStore, Planned, StoredFields, journal_in
 from acquire.journal import worst_margin as journal_worst_margin
 from acquire.journal.owner import RunOwner, settle_dead_runs
+from acquire.journal.settle import remove_orphans
 from acquire.plan import Plan
 from acquire.runner import Session, capture_path, save_capture, utc_now
 from acquire.storage import free_path, sweep_stale_temps, write_new
@@ -150,14 +152,19 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
     """
     raw_path = raw_path_for(path) if plan.output.keep_raw and cap.corrected else None
     summary = summary_dict(cap, path, raw_path)
-    summary_path = write_new(path.with_suffix(".json"),
-                             json.dumps(summary, indent=2, allow_nan=False) + "\n",
-                             unique=False)
-    if raw_path is not None:
-        save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
     judged = plan.checks or cap.verdict.results  # a golden capture is judged without them
     comments = tuple(cap.verdict.comment_lines()) if judged else ()
-    final = save_capture(cap.sweep, plan, path, comments, unique=False)
+    try:
+        summary_path = write_new(path.with_suffix(".json"),
+                                 json.dumps(summary, indent=2, allow_nan=False) + "\n",
+                                 unique=False)
+        if raw_path is not None:
+            save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
+        final = save_capture(cap.sweep, plan, path, comments, unique=False)
+    except BaseException:
+        if not path.exists():  # no summary saying PASS for a capture that never landed
+            remove_orphans(path)
+        raise
     return Stored(final, summary_path, raw_path)
 
 
@@ -203,6 +210,34 @@ def stored_fields(cap: Capture, *, note: str | None = None,
         instrument=meta.get("instrument"),
         note=note,
     )
+
+
+def store_journalled(journal: JournalStore, planned: Planned, cap: Capture,
+                     plan: Plan) -> Stored:
+    """Write a planned capture and mark it stored; when its files cannot be written
+    (disk full, permissions) nothing of it is left and the row is marked failed."""
+    from acquire.errors import StorageError
+
+    try:
+        stored = store(cap, plan, planned.touchstone)
+    except (OSError, SweepdError) as exc:
+        reason = getattr(exc, "strerror", None) or str(exc)
+        with contextlib.suppress(SweepdError):  # a full disk may refuse this too
+            journal.fail_measurement(planned, f"not stored: {reason}")
+        if isinstance(exc, SweepdError):
+            raise
+        raise StorageError(f"cannot store {planned.touchstone}: {reason}") from None
+    journal_stored(journal, planned, cap, stored)
+    return stored
+
+
+def record_failure(journal: JournalStore, run_id: int, exc: BaseException,
+                   action: str) -> None:
+    """Journal the error that ended a run, as far as the journal still can (on a full
+    disk it may not: the next start settles the run then)."""
+    with contextlib.suppress(SweepdError):
+        journal.end_run(run_id, "failed", note=str(exc))
+        journal.record_fault(run_id, type(exc).__name__, str(exc), action=action)
 
 
 def worst_margin(verdict: Verdict) -> float | None:
@@ -287,11 +322,9 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
             planned = journal.plan_measurement(
                 run_id, 0, plan_path(cap, plan, out_dir, serial=serial), serial=serial
             )
-            stored = store(cap, plan, planned.touchstone)
-            journal_stored(journal, planned, cap, stored)
+            stored = store_journalled(journal, planned, cap, plan)
         except SweepdError as exc:
-            journal.record_fault(run_id, type(exc).__name__, str(exc), action="run stopped")
-            journal.end_run(run_id, "failed", note=str(exc))
+            record_failure(journal, run_id, exc, "run stopped")
             raise
         journal.end_run(run_id)
     return RunResult(cap, stored)

@@ -19,6 +19,8 @@ import socket
 from pathlib import Path
 from typing import TYPE_CHECKING
 
+from acquire.errors import JournalError
+
 if TYPE_CHECKING:
     from acquire.journal.store import JournalStore
 
@@ -36,9 +38,14 @@ class RunOwner:
         self.pid = os.getpid()
         self.host = socket.gethostname()
         self.path = lock_path(folder, self.token)
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._fd: int | None = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o600)
-        fcntl.flock(self._fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            self._fd: int | None = os.open(self.path, os.O_RDWR | os.O_CREAT | os.O_EXCL,
+                                           0o600)
+            fcntl.flock(self._fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError as exc:
+            raise JournalError(f"run lock {self.path}: cannot create "
+                               f"({exc.strerror or exc})") from None
 
     def fields(self) -> dict[str, object]:
         """The run columns that name this owner."""

@@ -9,6 +9,8 @@ upgraded by a short writable open first.
 
 from __future__ import annotations
 
+import contextlib
+import shutil
 import sqlite3
 import threading
 import time
@@ -38,7 +40,7 @@ class SqliteFile:
         try:
             self._db = self._connect(timeout_s)
         except sqlite3.Error as exc:
-            raise JournalError(f"journal {self.path}: {exc}") from None
+            raise _journal_error(self.path, exc) from None
 
     def _connect(self, timeout_s: float) -> sqlite3.Connection:
         if self.read_only:
@@ -155,10 +157,21 @@ def _file_version(path: Path) -> int:
         raise JournalError(f"journal {path}: {exc}") from None
 
 
+FULL_BELOW = 1 << 20  # an I/O error with less free space than this is a full disk
+
+
 def _journal_error(path: Path, exc: sqlite3.Error) -> JournalError:
+    """One line naming the journal; a full disk is called so (SQLite reports it as
+    'database or disk is full', or as an I/O error when its WAL index cannot grow)."""
     text = str(exc)
-    if "full" in text.lower():
-        text += " (free some space; nothing half-written was kept)"
+    full = "full" in text.lower()
+    if not full and "i/o error" in text.lower():
+        with contextlib.suppress(OSError):
+            full = shutil.disk_usage(path.parent).free < FULL_BELOW
+    if full:
+        return JournalError(f"journal {path}: the disk is full ({text}); free some space: "
+                            "captures already written are recorded at the next start, "
+                            "nothing half-written is kept")
     return JournalError(f"journal {path}: {text}")
 
 

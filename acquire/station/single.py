@@ -8,6 +8,7 @@ every outcome, errors included (``RESULT_KEYS``; see README "sweepd measure").
 
 from __future__ import annotations
 
+import contextlib
 import shlex
 from dataclasses import dataclass
 from pathlib import Path
@@ -57,7 +58,7 @@ class Outcome:
 
 def measure_one(plan: Plan, request: Request) -> Outcome:
     """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure."""
-    from acquire.measure import choose_calibration
+    from acquire.measure import choose_calibration, record_failure
     from acquire.runner import Session
 
     config = station_config(plan)
@@ -105,11 +106,11 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
                                           f"`{golden_run}` first")
                 result = measure_unit(line, serial, golden=request.golden)
         except SweepdError as exc:
-            journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
-            journal.end_run(run_id, "failed", note=str(exc))
+            record_failure(journal, run_id, exc, "not measured")
             raise
         except KeyboardInterrupt:
-            journal.end_run(run_id, "stopped", note="interrupted")
+            with contextlib.suppress(SweepdError):
+                journal.end_run(run_id, "stopped", note="interrupted")
             raise
         journal.end_run(run_id)
         return Outcome(result, Path(journal.where), run_id, resource)
