@@ -255,6 +255,21 @@ class SqliteJournal(SqliteFile, JournalStore):
             rows = self._rows(sql + " ORDER BY id DESC LIMIT ?", (run_id, int(last)))[::-1]
         return [{k: v for k, v in r.items() if k != "id"} for r in rows]
 
+    def start_hold(self, run_id: int, first_seq: int, reason: str) -> int:
+        with self._tx() as db:
+            cur = db.execute("INSERT INTO holds(run_id, first_seq, started_utc, reason) "
+                             "VALUES (?, ?, ?, ?)", (run_id, first_seq, utc_text(), reason))
+            return int(cur.lastrowid)
+
+    def end_hold(self, hold_id: int, last_seq: int) -> None:
+        with self._tx() as db:
+            db.execute("UPDATE holds SET last_seq = ?, ended_utc = ? WHERE id = ?",
+                       (last_seq, utc_text(), hold_id))
+
+    def holds(self, run_id: int) -> list[Row]:
+        return self._rows("SELECT id, first_seq, last_seq, started_utc, ended_utc, reason "
+                          "FROM holds WHERE run_id = ? ORDER BY id", (run_id,))
+
     def record_alarm(self, run_id: int, metric: str, message: str, *, seq: int | None = None,
                      value: float | None = None, threshold: float | None = None) -> None:
         with self._tx() as db:

@@ -202,6 +202,20 @@ class JournalStore(ABC):
         only the ``last`` ones when given."""
 
     @abstractmethod
+    def start_hold(self, run_id: int, first_seq: int, reason: str) -> int:
+        """A soak stops taking sweeps from ``first_seq`` on (disk space): one row."""
+
+    @abstractmethod
+    def end_hold(self, hold_id: int, last_seq: int) -> None:
+        """The hold ends; sweeps ``first_seq .. last_seq`` were not taken (none when
+        ``last_seq < first_seq``)."""
+
+    @abstractmethod
+    def holds(self, run_id: int) -> list[Row]:
+        """Holds of a run (``id, first_seq, last_seq, started_utc, ended_utc, reason``;
+        ``last_seq`` None while open), oldest first."""
+
+    @abstractmethod
     def record_alarm(self, run_id: int, metric: str, message: str, *, seq: int | None = None,
                      value: float | None = None, threshold: float | None = None) -> None: ...
 

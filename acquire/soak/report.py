@@ -53,6 +53,7 @@ def write_report(job: Job, folder: Path) -> Report:
         ser = history.series(journal, run_id)
         faults = history.faults(journal, run_id)
         alarms = history.alarms(journal, run_id)
+        holds = journal.holds(run_id)
     folder.mkdir(parents=True, exist_ok=True)
     done = ser.done_mask()
     deviation = read_deviation(job.data_dir, set(ser.seq[done].tolist()))
@@ -65,6 +66,7 @@ def write_report(job: Job, folder: Path) -> Report:
     if deviation is not None and deviation[1].size:
         pictures["deviation"] = _deviation(folder, deviation, spec, title)
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
+    facts["sweeps"] += _held_text(holds)
     text = _text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
     page = replace_atomic(folder / "summary.html", _html(facts, pictures))
@@ -186,6 +188,17 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
         "data_dir": str(job.data_dir),
     }
     return facts
+
+
+def _held_text(holds: list[dict[str, Any]]) -> str:
+    """The sweeps not taken while held for disk space (one journal row per hold)."""
+    spans = [(int(h["first_seq"]), h["last_seq"]) for h in holds]
+    held = sum(max(0, int(last) - first + 1) for first, last in spans if last is not None)
+    still = any(last is None for _, last in spans)
+    if not spans:
+        return ""
+    return (f", {held} not taken while held for disk space ({len(spans)} hold(s)"
+            + (", one still on" if still else "") + ")")
 
 
 def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.ndarray,

@@ -56,7 +56,8 @@ def drift_plot(path: Path, panels: list[tuple[str, np.ndarray, float | None]],
     from matplotlib.figure import Figure
 
     x, xlabel = time_axis(t_s)
-    scale = (t_s / x)[np.isfinite(x) & (x != 0)]
+    ok = np.isfinite(x) & (x != 0)  # divide only there: 0/0 at t = 0 would warn
+    scale = t_s[ok] / x[ok]
     factor = float(scale[0]) if scale.size else 1.0
     fig = Figure(figsize=(11.0, 2.2 + 2.0 * len(panels)), layout="constrained")
     axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
