@@ -33,6 +33,7 @@ class SqliteFile:
         self.where = str(self.path)
         self.read_only = read_only
         self._lock = threading.RLock()
+        refuse_links(self.path)
         if read_only and not self.path.is_file():
             raise JournalError(f"journal {self.path}: not found")
         if read_only and _file_version(self.path) < SCHEMA_VERSION:
@@ -155,6 +156,16 @@ def _file_version(path: Path) -> int:
             db.close()
     except sqlite3.Error as exc:
         raise JournalError(f"journal {path}: {exc}") from None
+
+
+def refuse_links(path: Path) -> None:
+    """The journal (and SQLite's files beside it) must be real files: a symbolic link is
+    refused, never followed (it would turn its target into a database)."""
+    for candidate in (path, path.with_name(path.name + "-wal"),
+                      path.with_name(path.name + "-shm")):
+        if candidate.is_symlink():
+            raise JournalError(f"journal {path}: {candidate.name} is a symbolic link; the "
+                               "journal must be a real file (remove the link)")
 
 
 FULL_BELOW = 1 << 20  # an I/O error with less free space than this is a full disk
