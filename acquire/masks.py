@@ -20,6 +20,7 @@ The file format is documented in ``configs/masks/README.md``. Rules of evaluatio
 
 from __future__ import annotations
 
+import math
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -31,7 +32,7 @@ from acquire.errors import MaskError
 from acquire.metrics.quantities import QUANTITIES, finish, format_value, trace
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
-from acquire.yamlfile import Node, load_yaml
+from acquire.yamlfile import Node, load_yaml, show
 
 OUTSIDE_RULES = ("error", "clip")
 _PARAM = re.compile(r"^[Ss]([1-9])([1-9])$")
@@ -48,6 +49,10 @@ class Limit:
 
     start: float
     stop: float
+
+    def __post_init__(self) -> None:
+        if not (math.isfinite(self.start) and math.isfinite(self.stop)):
+            raise MaskError(f"a limit must be a finite number, got {self.start}..{self.stop}")
 
     @property
     def sloped(self) -> bool:
@@ -185,7 +190,7 @@ def _parameter(node: Node, default: str) -> str:
         return default
     text = node.text()
     if not _PARAM.match(text.strip()):
-        node.fail(f"must be an S-parameter name such as S11 or S21, got {text!r}")
+        node.fail(f"must be an S-parameter name such as S11 or S21, got {show(text)}")
     return text.strip().upper()
 
 
@@ -420,6 +425,8 @@ def _evaluate_segment(mask: Mask, seg: Segment, sweep: Sweep, values: np.ndarray
     order = np.argsort(freq, kind="stable")
     freq, vals = freq[order], vals[order]
     margins, worst = _margins(seg, freq, vals)
+    if not np.isfinite(margins).all():  # never a verdict from NaN (it passes every "< 0")
+        raise MaskError(f"{_where(mask, seg)}: a margin is not a finite number; no verdict")
     verdict = "fail" if bool((margins < 0).any()) else "pass"
     return SegmentResult(seg, verdict, jlo, jhi, int(inside.size), worst, freq, vals, margins)
 

@@ -22,9 +22,10 @@ from acquire.journal import worst_margin as journal_worst_margin
 from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.journal.settle import remove_orphans
 from acquire.plan import Plan
-from acquire.runner import Session, capture_path, save_capture, utc_now
+from acquire.runner import Session, capture_path, save_capture
 from acquire.storage import free_path, sweep_stale_temps, write_new
 from acquire.sweep import Sweep
+from acquire.utc import utc_now
 from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)
@@ -119,6 +120,7 @@ class Capture:
     verdict: Verdict
     corrected: bool = False
     cal_warnings: list[str] = field(default_factory=list)
+    uncertainty: Any = None  # acquire.uncertainty.SweepUncertainty
 
 
 def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> Capture:
@@ -129,8 +131,23 @@ def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> 
         sweep = cal.calset.correct(raw).with_meta(corrected=True, **notes)
     else:
         sweep = raw.with_meta(corrected=False, **notes)
-    verdict = evaluate_checks(list(session.plan.checks), sweep)
-    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings))
+    unc = capture_uncertainty(session.plan, cal.calset, sweep)
+    verdict = evaluate_checks(list(session.plan.checks), sweep, decision=session.plan.decision,
+                              uncertainty=unc)
+    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings), unc)
+
+
+def capture_uncertainty(plan: Plan, calset: Any | None, sweep: Sweep) -> Any:
+    """The per-point uncertainty of a capture (acquire/uncertainty/capture.py)."""
+    from acquire.uncertainty.capture import sweep_uncertainty, unavailable
+    from acquire.uncertainty.decision import SIMPLE
+
+    if calset is None or plan.calibration is None:
+        return unavailable(sweep, "the sweep is uncorrected")
+    from acquire.calibration import load_kit
+
+    return sweep_uncertainty(sweep, calset, load_kit(plan.calibration.kit),
+                             plan.decision or SIMPLE)
 
 
 @dataclass
@@ -154,6 +171,8 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
     summary = summary_dict(cap, path, raw_path)
     judged = plan.checks or cap.verdict.results  # a golden capture is judged without them
     comments = tuple(cap.verdict.comment_lines()) if judged else ()
+    if cap.uncertainty is not None:
+        comments += tuple(cap.uncertainty.comment_lines())
     try:
         summary_path = write_new(path.with_suffix(".json"),
                                  json.dumps(summary, indent=2, allow_nan=False) + "\n",
@@ -270,6 +289,8 @@ def summary_dict(cap: Capture, touchstone: Path | None = None,
         } if cap.corrected else None,
         "warnings": list(cap.cal_warnings),
     }
+    if cap.uncertainty is not None:
+        data["uncertainty"] = json.loads(json.dumps(cap.uncertainty.to_dict(), allow_nan=False))
     return data
 
 

@@ -224,3 +224,21 @@ def test_run_refuses_a_journal_link_with_one_line(tmp_path: Path, capsys) -> Non
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "journal.sqlite is a symbolic link" in err
     assert (tmp_path / "elsewhere").read_bytes() == b""
+
+
+def test_settling_covers_pending_rows_of_runs_that_ended(tmp_path: Path) -> None:
+    """A run that ended (say failed on a full disk after its files were written) with a
+    row still pending: the next start settles that row too; a live run keeps its own."""
+    from acquire.journal.owner import RunOwner, settle_dead_runs
+
+    with journal_in(tmp_path) as j:
+        ended = j.start_run("run", "p")
+        done = j.plan_measurement(ended, 0, tmp_path / "a.s1p")
+        (tmp_path / "a.s1p").write_text("complete")
+        j.end_run(ended, "failed", note="journal: the disk is full")
+        with RunOwner(tmp_path) as owner:
+            live = j.start_run("measure", "p", **owner.fields())
+            busy = j.plan_measurement(live, 0, tmp_path / "b.s1p")
+            assert settle_dead_runs(j, tmp_path) == (0, [(done.id, "stored")])
+            assert j.run_measurements(live)[0]["state"] == "pending"
+        assert settle_dead_runs(j, tmp_path) == (1, [(busy.id, "interrupted")])

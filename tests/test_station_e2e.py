@@ -15,10 +15,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from station_driver import StationProcess
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
 from acquire.journal import journal_in
-from acquire.station.driver import StationProcess
 from acquire.storage import sweep_stale_temps
 from simulators.server import SimServer
 
@@ -203,12 +203,13 @@ def test_an_expired_cal_set_blocks_measuring_until_the_procedure_runs(sim, tmp_p
 
 def test_a_cal_set_expiring_mid_shift_blocks_the_next_unit(sim, tmp_path) -> None:
     out = tmp_path / "out"
-    install_cal(out, age_s=8 * 3600 - 2.0)  # valid for two more seconds
+    install_cal(out, age_s=8 * 3600 - 600.0)  # valid for ten more minutes
     plan = write_plan(tmp_path, sim.tcp_resource, station={"golden": None})
-    with start(plan) as st:
+    with StationProcess([str(plan), "--station", "bench-7"],
+                        clock_shift_file=tmp_path / "clock-shift") as st:
         st.expect("serial> ")
         assert f"{GOOD[0]}: PASS" in unit(st, sim, GOOD[0])
-        time.sleep(2.5)
+        st.shift_clock(1200.0)  # twenty minutes later, by the station's injected clock
         text = unit(st, sim, GOOD[1], "cal> ")
         assert "CANNOT MEASURE: calibration" in text and "old (max 8 h)" in text
         assert "measuring" not in text

@@ -13,9 +13,9 @@ import sys
 from pathlib import Path
 
 import pytest
+from station_driver import StationProcess
 from test_station_support import install_cal, rows, write_plan
 
-from acquire.station.driver import StationProcess
 from simulators.server import SimServer
 
 

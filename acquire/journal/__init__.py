@@ -12,7 +12,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from acquire.journal.clock import utc_text
 from acquire.journal.settle import worst_margin
 from acquire.journal.states import (
     DONE_STATES,
@@ -21,6 +20,7 @@ from acquire.journal.states import (
     RUN_STATES,
 )
 from acquire.journal.store import JournalStore, Planned, Row, StoredFields
+from acquire.utc import utc_text
 
 JOURNAL_NAME = "journal.sqlite"
 

@@ -94,7 +94,8 @@ def settle_dead_runs(journal: JournalStore, folder: Path,
                      kinds: tuple[str, ...] = SETTLED_KINDS, plan: str | None = None
                      ) -> tuple[int, list[tuple[int, str]]]:
     """End the ``running`` runs of these kinds whose process is gone: their pending rows
-    are reconciled, the run is marked ``crashed``. Returns (runs settled, rows changed)."""
+    are reconciled, the run is marked ``crashed``; pending rows of runs that ended are
+    reconciled too. Returns (runs settled, rows changed)."""
     runs, changed = 0, []
     for run in journal.open_runs(kinds, plan):
         if owner_alive(folder, run.get("owner")):
@@ -107,4 +108,10 @@ def settle_dead_runs(journal: JournalStore, folder: Path,
         with contextlib.suppress(OSError):
             if run.get("owner"):
                 lock_path(folder, str(run["owner"])).unlink()
+    # a run that ended (failed on a full disk, say) with a row still pending: nobody
+    # writes it any more
+    for run_id in sorted({int(row["run_id"]) for row in journal.pending()}):
+        run = journal.run(run_id)
+        if run is not None and run["kind"] in kinds and run["state"] != "running":
+            changed += journal.reconcile(run_id=run_id)
     return runs, changed

@@ -11,7 +11,6 @@ from pathlib import Path
 from typing import Any
 
 from acquire.errors import JournalError
-from acquire.journal.clock import utc_text
 from acquire.journal.sqlite_file import SqliteFile, text_or_none
 from acquire.journal.store import (
     FILL_FIELDS,
@@ -22,6 +21,7 @@ from acquire.journal.store import (
     Row,
     StoredFields,
 )
+from acquire.utc import utc_text
 
 _MEASUREMENT_COLUMNS = (
     "id, run_id, seq, serial, attempt, golden, time_utc, state, touchstone, raw_touchstone, "
@@ -159,7 +159,7 @@ class SqliteJournal(SqliteFile, JournalStore):
                        (*fields.values(), measurement_id))
 
     def pending(self, run_id: int | None = None) -> list[Row]:
-        sql = "SELECT id, touchstone FROM measurements WHERE state = 'pending'"
+        sql = "SELECT id, run_id, touchstone FROM measurements WHERE state = 'pending'"
         if run_id is None:
             return self._rows(sql + " ORDER BY id")
         return self._rows(sql + " AND run_id = ? ORDER BY id", (run_id,))

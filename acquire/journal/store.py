@@ -20,6 +20,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from acquire.utc import utc_text
+
 Row = dict[str, Any]
 
 RUN_FIELDS = ("plan_path", "station", "operator", "instrument", "resource", "job_id",
@@ -85,8 +87,6 @@ class JournalStore(ABC):
         """Change ``RUN_UPDATES`` fields of a run."""
 
     def end_run(self, run_id: int, state: str = "finished", note: str | None = None) -> None:
-        from acquire.journal.clock import utc_text
-
         fields: dict[str, Any] = {"state": state, "ended_utc": utc_text()}
         if note is not None:
             fields["note"] = note
@@ -148,7 +148,7 @@ class JournalStore(ABC):
 
     @abstractmethod
     def pending(self, run_id: int | None = None) -> list[Row]:
-        """Pending rows (``id``, ``touchstone``), of one run or all."""
+        """Pending rows (``id``, ``run_id``, ``touchstone``), of one run or all."""
 
     @abstractmethod
     def settle(self, measurement_id: int, state: str, fields: Mapping[str, Any]) -> None:

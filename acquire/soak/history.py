@@ -117,6 +117,9 @@ class Series:
     touchstone: list[str | None]
     note: list[str | None]
     soak: list[dict[str, Any] | None]
+    cal_id: list[str | None] = field(default_factory=list)
+    cal_age_s: list[float | None] = field(default_factory=list)
+    instrument: list[str | None] = field(default_factory=list)
 
     def values(self, key: str) -> np.ndarray:
         """One soak metric per sweep (nan where absent)."""
@@ -142,6 +145,9 @@ def series(journal: JournalStore, run_id: int) -> Series:
         touchstone=[row["touchstone"] for row in rows],
         note=[row["note"] for row in rows],
         soak=soak,
+        cal_id=[row["cal_id"] for row in rows],
+        cal_age_s=[row["cal_age_s"] for row in rows],
+        instrument=[row["instrument"] for row in rows],
     )
 
 

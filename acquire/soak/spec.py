@@ -18,6 +18,7 @@
         command: "logger -t sweepd-alarm"   # optional, run per alarm (no shell)
       faults: {retries: 2, backoff_first: 0.5 s, backoff_max: 30 s, give_up: 2 h}
       disk_reserve: 200 MB      # stop capturing when less is free
+      statistics: {min_sweeps: 20, min_span: 10 min}   # before trends and Allan deviation
 
 Errors are one line naming the plan file and key path, as everywhere else.
 """
@@ -32,10 +33,12 @@ from pathlib import Path
 
 from acquire.errors import PlanError
 from acquire.plan import Plan
-from acquire.yamlfile import Node
+from acquire.soak.statistics import Minimums
+from acquire.yamlfile import Node, show
 
 REFLECTIONS = ("S11", "S22")
 _SIZE = re.compile(r"^\s*(\d+(?:\.\d*)?|\.\d+)\s*([kMGT]i?B|B)?\s*$")
+_SIZE_LIMIT = 2**50  # 1 PiB: a byte count beyond it is a typing slip
 _SIZE_FACTORS = {
     None: 1, "B": 1, "kB": 10**3, "MB": 10**6, "GB": 10**9, "TB": 10**12,
     "KiB": 2**10, "MiB": 2**20, "GiB": 2**30, "TiB": 2**40,
@@ -112,6 +115,7 @@ class SoakSpec:
     alarms: Thresholds = field(default_factory=Thresholds)
     faults: FaultPolicy = field(default_factory=FaultPolicy)
     disk_reserve_bytes: int = DEFAULT_RESERVE
+    minimums: Minimums = field(default_factory=Minimums)
 
     @property
     def reflection(self) -> bool:
@@ -131,7 +135,7 @@ def parse_soak(plan: Plan) -> SoakSpec:
     if soak is None:
         return SoakSpec(schedule, parameter=plan.measure[0])
     soak.mapping(("reference", "parameter", "band", "keep", "alarms", "faults",
-                  "disk_reserve"))
+                  "disk_reserve", "statistics"))
     parameter = soak["parameter"].text(plan.measure[0], choices=plan.measure)
     return SoakSpec(
         schedule=schedule,
@@ -142,6 +146,17 @@ def parse_soak(plan: Plan) -> SoakSpec:
         alarms=_alarms(soak["alarms"], parameter),
         faults=_faults(soak["faults"]),
         disk_reserve_bytes=_size(soak["disk_reserve"], DEFAULT_RESERVE),
+        minimums=_minimums(soak["statistics"]),
+    )
+
+
+def _minimums(node: Node) -> Minimums:
+    node.mapping(("min_sweeps", "min_span"), optional=True)
+    base = Minimums()
+    return Minimums(
+        min_sweeps=node["min_sweeps"].integer(base.min_sweeps, lo=3, hi=10_000_000),
+        min_span_s=node["min_span"].quantity("time", base.min_span_s, lo=0.0,
+                                             hi=366 * 86400.0),
     )
 
 
@@ -162,7 +177,7 @@ def _reference(node: Node) -> Path | None:
         return None
     path = node.file_path()
     if not path.is_file():
-        node.fail(f"must be 'first' or an existing Touchstone file, got {node.value!r} "
+        node.fail(f"must be 'first' or an existing Touchstone file, got {show(node.value)} "
                   f"({path} not found)")
     return path
 
@@ -241,10 +256,11 @@ def _size(node: Node, default: int) -> int:
     if not node.present:
         return default
     value = node.value
-    if isinstance(value, int) and not isinstance(value, bool) and value >= 0:
+    if isinstance(value, int) and not isinstance(value, bool) and 0 <= value <= _SIZE_LIMIT:
         return value
-    match = _SIZE.match(value) if isinstance(value, str) else None
-    if match is None:
+    match = _SIZE.match(value) if isinstance(value, str) and len(value) <= 40 else None
+    size = float(match.group(1)) * _SIZE_FACTORS[match.group(2)] if match else math.inf
+    if not size <= _SIZE_LIMIT:
         node.fail(f"must be a size such as 200 MB or 2 GiB (units B, kB, MB, GB, TB, KiB, "
-                  f"MiB, GiB, TiB), got {value!r}")
-    return int(float(match.group(1)) * _SIZE_FACTORS[match.group(2)])
+                  f"MiB, GiB, TiB) up to 1 PiB, got {show(value)}")
+    return int(size)

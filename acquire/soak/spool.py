@@ -30,7 +30,6 @@ import getpass
 import json
 import os
 import re
-import stat
 import time
 import uuid
 from dataclasses import dataclass
@@ -38,14 +37,18 @@ from pathlib import Path
 from typing import Any
 
 from acquire.errors import PlanError
-from acquire.journal import utc_text
+from acquire.safejson import loads_bounded
+from acquire.soak.ownership import OwnershipError, check_private
 from acquire.storage import replace_atomic, write_new
+from acquire.utc import utc_text
 from drivers.errors import SweepdError
+from drivers.yamlnode import one_line
 
 ENV_SPOOL = "SWEEPD_SPOOL"
 DATA_MARKER = ".sweepd-job"
 JOB_STATES = ("queued", "running", "held", "finished", "cancelled", "failed")
 ACTIVE_STATES = ("queued", "running", "held")
+MAX_JOB_FILE_BYTES = 8 * 1024 * 1024  # job.json holds a plan snapshot: a few KB
 _JOB_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,80}-\d{3,}$")
 
 
@@ -113,15 +116,11 @@ class Job:
 
     def load_plan(self) -> Any:
         """The plan as submitted (snapshot), with paths resolved from its original folder."""
-        import yaml
-
         from acquire.plan import parse_plan
         from acquire.yamlfile import Node
+        from drivers.yamltext import load_yaml_text
 
-        try:
-            raw = yaml.safe_load(self.plan_text)
-        except yaml.YAMLError as exc:
-            raise PlanError(f"job {self.id}: stored plan is not YAML: {exc}") from None
+        raw = load_yaml_text(self.plan_text, f"job {self.id}: stored plan", PlanError)
         root = Node(raw, f"plan {self.plan_source}", error=PlanError,
                     base_dir=self.plan_source.parent)
         return parse_plan(root, self.plan_source)
@@ -149,6 +148,12 @@ class Job:
             write_new(self.cancel_path, json.dumps({"by": who, "utc": utc_text()}) + "\n",
                       unique=False)
 
+    def check_trusted(self) -> None:
+        """Refuse a job whose folder or files another user owns or may write (its plan
+        names commands the daemon runs)."""
+        for path in (self.dir, self.dir / "job.json", self.state_path):
+            check_private(path, f"job {self.id}:")
+
     def to_json(self) -> dict[str, Any]:
         return {
             "id": self.id, "plan_name": self.plan_name, "plan_source": str(self.plan_source),
@@ -162,6 +167,8 @@ class Job:
         data = read_json(folder / "job.json", None)
         if data is None:
             raise SpoolError(f"job {folder.name}: {folder / 'job.json'} is missing")
+        if not isinstance(data, dict):
+            raise SpoolError(f"job {folder.name}: job.json must hold a JSON object")
         try:
             return cls(
                 id=str(data["id"]), dir=folder, plan_name=str(data["plan_name"]),
@@ -193,8 +200,10 @@ class Spool:
         except OSError as exc:
             raise SpoolError(f"spool {self.root}: cannot create ({exc.strerror})") from None
         for folder in (self.root, self.jobs_dir):
-            if folder.stat().st_mode & (stat.S_IWGRP | stat.S_IWOTH):
-                raise SpoolError(f"spool {folder}: is writable by others; chmod 700 it")
+            try:
+                check_private(folder, "spool")
+            except OwnershipError as exc:
+                raise SpoolError(str(exc)) from None
         return self
 
     def require(self) -> Spool:
@@ -306,11 +315,15 @@ class DaemonLock:
 def read_json(path: Path, default: Any) -> Any:
     """A small JSON state file, or ``default`` when it does not exist."""
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_JOB_FILE_BYTES + 1)
+        if len(data) > MAX_JOB_FILE_BYTES:
+            raise ValueError(f"larger than {MAX_JOB_FILE_BYTES >> 20} MiB")
+        return loads_bounded(data)
     except FileNotFoundError:
         return default
     except (OSError, ValueError) as exc:
-        raise SpoolError(f"{path}: unreadable ({exc})") from None
+        raise SpoolError(one_line(f"{path}: unreadable ({str(exc)[:120]})")) from None
 
 
 def _number(name: str, plan_name: str) -> int:

@@ -23,9 +23,9 @@ from __future__ import annotations
 from typing import Any
 
 from acquire.errors import JournalError
+from acquire.instruments import resource_key
 from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
-from acquire.soak.daemon import resource_key
 from acquire.soak.progress import clock_text, drift_text, sweeps_text
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from drivers.errors import SweepdError
@@ -71,7 +71,8 @@ def job_view(job: Job, *, daemon_running: bool) -> dict[str, Any]:
         "next_sweep": live.get("next_sweep") if name in ("running", "held") else None,
         "eta_utc": live.get("eta_utc") if name in ACTIVE_STATES else None,
         "drift": live.get("drift") or {"reference": None, "parameter": None, "latest": None,
-                                       "worst": {}, "allan_resonance": []},
+                                       "worst": {}, "allan_resonance": [],
+                                       "statistics": "not enough data (not started)"},
         "alarms": {"count": 0, "active": [], "last": None, **(live.get("alarms") or {})},
         "files": live.get("files") or {"data_dir": str(job.data_dir),
                                        "journal": str(job.output_dir / JOURNAL_NAME)},
@@ -171,7 +172,10 @@ def _details(job: dict[str, Any]) -> list[str]:
         last = alarms.get("last") or {}
         active = ", ".join(alarms.get("active") or []) or "none active"
         out.append(f"    alarms {alarms['count']} ({active}); last: {last.get('message', '-')}")
-    allan = (job.get("drift") or {}).get("allan_resonance") or []
+    drift = job.get("drift") or {}
+    allan = drift.get("allan_resonance") or []
+    if not allan and drift.get("statistics") not in (None, "ready"):
+        out.append(f"    statistics: {drift['statistics']}")
     if allan:
         from acquire.units import format_duration, format_frequency
 

@@ -24,17 +24,18 @@ import math
 import os
 import shutil
 import threading
-from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from acquire.errors import JournalError
-from acquire.journal import JOURNAL_NAME, JournalStore, journal_in, utc_text
+from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
+from acquire.jsonsafe import json_safe, json_text
 from acquire.measure import (
     Capture,
     Stored,
+    cal_dir_for,
     capture,
     journal_stored,
     plan_path,
@@ -44,7 +45,7 @@ from acquire.measure import (
 )
 from acquire.soak import history
 from acquire.soak.alarms import AlarmBook
-from acquire.soak.allan import AllanPoint, adev_curve
+from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import DeviationFile
 from acquire.soak.drift import (
     Reference,
@@ -54,10 +55,13 @@ from acquire.soak.drift import (
     reference_from_file,
 )
 from acquire.soak.link import Backoff, InstrumentLink, fault_kind
+from acquire.soak.ownership import check_job_paths
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job
+from acquire.soak.statistics import allan_points
 from acquire.soak.timeline import Clock, Timeline
 from acquire.storage import sweep_stale_temps
+from acquire.utc import epoch_text, parse_utc, utc_text
 from drivers.errors import InstrumentError, ScpiErrorQueue, SweepdError
 
 log = logging.getLogger(__name__)
@@ -113,6 +117,7 @@ class SoakWorker:
         self.alarm_count = 0
         self.last_alarm: dict[str, Any] | None = None
         self.allan: list[AllanPoint] = []
+        self.stats_note: str | None = "not enough data (no sweep yet)"
         self.state = "running"
         self.reason: str | None = None
         self.next_index = 0
@@ -147,6 +152,8 @@ class SoakWorker:
             plan = dataclasses.replace(plan, output=dataclasses.replace(
                 plan.output, name=plan.output.name + "-{index}"))
         self.plan = plan
+        check_job_paths(job.output_dir, job.data_dir, cal_dir_for(plan),
+                        self.spec.alarms.command)
         job.claim_data_dir()
         sweep_stale_temps(job.data_dir)
         self.journal = journal = journal_in(job.output_dir)
@@ -614,7 +621,7 @@ class SoakWorker:
                     continue
             drift, delta_db, delta_deg = measure_drift(self.reference, sweep)
             verdict = evaluate_checks(list(self.plan.checks), sweep)
-            t_s = _epoch(row["time_utc"]) - self.timeline.start
+            t_s = parse_utc(row["time_utc"]).timestamp() - self.timeline.start
             metrics = {**verdict.metrics, "soak": {**drift.to_dict(), "t_s": round(t_s, 6),
                                                    "kept": ["adopted after a restart"]}}
             # files written before the kill are complete (atomic): the journal owns them too
@@ -623,7 +630,7 @@ class SoakWorker:
             raw = ts.with_name(f"{ts.stem}.raw{ts.suffix}")
             self._devfile().append(int(row["seq"]), delta_db, delta_deg)  # before the row
             journal.fill_measurement(
-                int(row["id"]), metrics_json=json_dumps(metrics),
+                int(row["id"]), metrics_json=json_text(metrics),
                 verdict=verdict.verdict if verdict.results else None,
                 exit_code=verdict.exit_code if verdict.results else None,
                 worst_margin=worst_margin(verdict),
@@ -673,10 +680,10 @@ class SoakWorker:
         if not force and now - self._allan_at < ALLAN_EVERY_S:
             return
         self._allan_at = now
-        y = self._resonance[: self.next_index + 1]
-        if np.count_nonzero(np.isfinite(y)) < 2:
-            return
-        self.allan = adev_curve(y, self._tau0())
+        n = self.next_index + 1
+        found = allan_points(self._resonance[:n], self._t_s[:n], self._tau0(),
+                             self.spec.minimums)
+        self.allan, self.stats_note = ([], found) if isinstance(found, str) else (found, None)
         watched = self.spec.alarms.resonance_adev_hz
         if watched is not None and self.allan:
             worst = max(p.adev for p in self.allan)
@@ -717,7 +724,7 @@ class SoakWorker:
         in_plan = self.state == "running" and self.timeline.in_plan(k, now) and \
             self.reason is None
         done = sum(self.tally.get(s, 0) for s in history.DONE_STATES)
-        return _clean({
+        return json_safe({
             "job": self.job.id,
             "state": self.state,
             "reason": self.reason,
@@ -726,23 +733,24 @@ class SoakWorker:
             "updated_utc": utc_text(),
             "schedule": {"every_s": schedule.every_s, "count": schedule.count,
                          "duration_s": schedule.duration_s, "planned": schedule.total(),
-                         "start_utc": _utc(self.timeline.start),
-                         "end_utc": _utc(self.timeline.end_time())},
+                         "start_utc": epoch_text(self.timeline.start),
+                         "end_utc": epoch_text(self.timeline.end_time())},
             "sweeps": {"done": done, "kept": self.tally.get("stored", 0),
                        "missed": self.tally.get("missed", 0),
                        "failed": self.tally.get("failed", 0),
                        "interrupted": self.tally.get("interrupted", 0)},
             "last_sweep": self.last_sweep,
             "last_fault": self.last_fault,
-            "next_sweep": {"index": k, "due_utc": _utc(max(self.timeline.due(k), now))}
+            "next_sweep": {"index": k, "due_utc": epoch_text(max(self.timeline.due(k), now))}
             if in_plan else None,
-            "eta_utc": _utc(self._eta(now, done)),
+            "eta_utc": epoch_text(self._eta(now, done)),
             "drift": {
                 "reference": self.reference.source if self.reference else None,
                 "parameter": self.spec.parameter,
                 "latest": self.latest.to_dict() if self.latest else None,
                 "worst": dict(self.worst),
                 "allan_resonance": [p.to_dict() for p in self.allan],
+                "statistics": self.stats_note or "ready",
             },
             "alarms": {"count": self.alarm_count, "active": sorted(self.alarms.active),
                        "last": self.last_alarm},
@@ -773,32 +781,3 @@ def disk_full(exc: BaseException) -> bool:
     """A journal or storage error that says the disk is full."""
     text = str(exc).lower()
     return "disk is full" in text or "no space left" in text
-
-
-def _utc(epoch: float | None) -> str | None:
-    if epoch is None or not math.isfinite(epoch):
-        return None
-    return utc_text(datetime.fromtimestamp(epoch, timezone.utc))
-
-
-def _epoch(text: str) -> float:
-    return datetime.fromisoformat(text.replace("Z", "+00:00")).timestamp()
-
-
-def json_dumps(value: Any) -> str:
-    import json
-
-    return json.dumps(_clean(value))
-
-
-def _clean(value: Any) -> Any:
-    """JSON-safe: NaN and infinities become None, numpy scalars plain numbers."""
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    if isinstance(value, (np.floating, np.integer)):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value

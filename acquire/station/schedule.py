@@ -11,11 +11,12 @@ and survives restarts.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import datetime
 
-from acquire.journal import JournalStore, utc_text
-from acquire.station.config import GoldenSpec
+from acquire.journal import JournalStore
+from acquire.station.golden import GoldenSpec
 from acquire.units import format_duration
+from acquire.utc import parse_utc, utc_now, utc_text
 
 
 @dataclass(frozen=True)
@@ -26,11 +27,6 @@ class LineState:
     due_reason: str = ""
     units_since: int = 0
     anchor_utc: str | None = None  # last good golden check, or the releasing cal
-
-
-def parse_utc(text: str) -> datetime:
-    """A journal or cal-set timestamp (ISO 8601, ``Z``) as an aware datetime."""
-    return datetime.fromisoformat(text.replace("Z", "+00:00")).astimezone(timezone.utc)
 
 
 def line_state(journal: JournalStore, plan: str, spec: GoldenSpec, *,
@@ -52,7 +48,7 @@ def line_state(journal: JournalStore, plan: str, spec: GoldenSpec, *,
         return LineState(due=True, due_reason=f"{units} units since the last good golden "
                          f"check (every {spec.every_units})", units_since=units,
                          anchor_utc=anchor)
-    elapsed = ((now or datetime.now(timezone.utc)) - parse_utc(anchor)).total_seconds()
+    elapsed = ((now or utc_now()) - parse_utc(anchor)).total_seconds()
     if spec.every_s and elapsed >= spec.every_s:
         return LineState(due=True, due_reason=f"{format_duration(elapsed)} since the last "
                          f"good golden check (every {format_duration(spec.every_s)})",

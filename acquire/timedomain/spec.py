@@ -33,7 +33,7 @@ from acquire.timedomain.distance import (
 from acquire.timedomain.peaks import DEFAULT_FLOOR_DB
 from acquire.timedomain.transform import MODES, TransformError, TransformSettings
 from acquire.timedomain.windows import DEFAULT_WINDOW, WindowError, check_window
-from acquire.yamlfile import Node
+from acquire.yamlfile import Node, show
 
 SETTING_KEYS = ("velocity_factor", "cable", "loss_per_m", "compensate_loss", "mode", "window",
                 "padding", "floor", "parameter")
@@ -136,5 +136,5 @@ def parse_spec(node: Node) -> tuple[DtfSpec, frozenset[str]]:
 def _reflection(node: Node) -> str:
     text = node.text("S11").strip().upper()
     if len(text) != 3 or text[0] != "S" or text[1] != text[2] or text[1] not in "123456789":
-        node.fail(f"must be a reflection parameter such as S11 or S22, got {node.value!r}")
+        node.fail(f"must be a reflection parameter such as S11 or S22, got {show(node.value)}")
     return text
