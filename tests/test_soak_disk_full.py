@@ -65,12 +65,16 @@ def test_a_held_soak_journals_one_hold_and_resumes_when_space_returns(
         sim.__exit__(None, None, None)
     assert worker.state == "finished", job.read_state()
     states = check_invariants(job, 60)
-    (hold,) = [h for h in holds(job) if h["last_seq"] >= h["first_seq"]]
-    assert states["held"] >= 5 and hold["reason"].startswith(why)
+    # the held period is one row; on a 2 MiB disk the journal's own WAL may later bring a
+    # second, short hold of its own (one row again), never a row per sweep
+    spans = [h for h in holds(job) if h["last_seq"] >= h["first_seq"]]
+    assert 1 <= len(spans) <= 2, [dict(h) for h in holds(job)]
+    hold = spans[0]
+    assert hold["last_seq"] - hold["first_seq"] + 1 >= 5 and hold["reason"].startswith(why)
     assert not any("disk" in (r["note"] or "") for r in journal_rows(job)[1]
                    if r["state"] == "missed")
     assert max(r["seq"] for r in during) < hold["first_seq"] + 1
     kinds = [f["kind"] for f in journal_rows(job)[2]]
-    assert kinds.count("disk-ok") == 1
+    assert kinds.count("disk-ok") == len(spans)
     after = [r for r in journal_rows(job)[1] if r["seq"] > hold["last_seq"]]
     assert sum(r["state"] == "stored" for r in after) >= 3  # it captured again after it

@@ -100,8 +100,8 @@ def test_a_full_disk_holds_the_job_and_it_resumes_when_space_is_back(
         worker = SoakWorker(job)
         thread = threading.Thread(target=worker.run)
         thread.start()
-        for _ in range(100):
-            if job.read_state().get("state") == "held":
+        for _ in range(200):  # the state file says held first, then the status file
+            if job.read_state().get("state") == job.read_status().get("state") == "held":
                 break
             threading.Event().wait(0.05)
         status = job.read_status()
