@@ -39,9 +39,9 @@ def busy_message(error_text: str, resource: str, spool_root: Path | None = None)
 
 def soak_holder(resource: str, spool_root: Path | None = None) -> str | None:
     """The running soak job on ``resource`` in words, or None (no spool, no such job)."""
-    from acquire.soak.daemon import resource_key
     from acquire.soak.spool import Spool
     from drivers.errors import SweepdError
+    from drivers.resources import resource_key
 
     try:
         spool = Spool(spool_root)

@@ -216,7 +216,6 @@ OVERSIZE_MODULES: dict[str, str] = {
     "acquire/soak/worker.py": "12.2 soak worker split (scheduled later)",
     "acquire/checks.py": "12.2 size rule (not yet assigned)",
     "acquire/masks.py": "12.2 size rule (not yet assigned)",
-    "acquire/plots.py": "12.2 size rule (not yet assigned)",
     "acquire/station/loop.py": "12.2 size rule (not yet assigned)",
     "acquire/touchstone/reader.py": "12.2 size rule (not yet assigned)",
     "drivers/transport.py": "12.2 size rule (not yet assigned)",

@@ -12,19 +12,11 @@ from __future__ import annotations
 
 import argparse
 
-MARKER_HELP = ("marker at a frequency (2.45GHz) or a feature: min, max, edges (SWR 2 band "
-               "of a reflection, -3 dB band of a transmission), swr=LEVEL or db=LEVEL (each "
-               "crossing); put a parameter first for another trace (S21:max); repeat for "
-               "several. Each marker's value is printed in every quantity.")
+from acquire.commands.check import add_marker_argument, read_sweep
+
 _SCALES = {"swr": "swr", "return-loss": "return_loss", "db": "s_db"}
 _QUANTITIES = {**_SCALES, "phase": "phase", "group-delay": "group_delay",
                "impedance": "impedance"}
-
-
-def add_marker_argument(parser: argparse.ArgumentParser) -> None:
-    """``--marker SPEC`` (repeatable), shared by plot and check."""
-    parser.add_argument("--marker", action="append", default=[], metavar="SPEC",
-                        help=MARKER_HELP)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -61,7 +53,6 @@ def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
     from acquire.check_parse import mask_check
-    from acquire.commands.check import read_sweep
     from acquire.masks import evaluate_mask
     from acquire.plotting import check_output
     from acquire.uncertainty.plot import attach_from_summary
