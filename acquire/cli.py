@@ -20,6 +20,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
     "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
+    "export": ("export", "trace data of a Touchstone file as CSV: frequency plus quantities"),
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
     "measure": ("measure", "measure one unit for MES calls: checks, files, journal (0/1/2)"),
@@ -87,6 +88,8 @@ def main(argv: list[str] | None = None) -> int:
         where = f" ({exc.filename})" if exc.filename else ""
         _error(f"{exc.strerror or exc}{where}")
     except Exception as exc:  # anything unforeseen: exit 2, never 1 (1 means "failed")
+        from acquire.errors import internal_error_text
+
         _error(internal_error_text(exc))
     finally:
         if "drivers.iolog" in sys.modules:
@@ -109,17 +112,6 @@ def _error(message: str) -> None:
     from drivers.yamlnode import one_line
 
     print(f"sweepd: error: {one_line(message)}", file=sys.stderr)
-
-
-def internal_error_text(exc: BaseException) -> str:
-    """One line for an unexpected exception; its traceback goes to the log at debug level."""
-    import logging
-
-    logging.getLogger("sweepd").debug("unexpected error", exc_info=exc)
-    detail = " ".join(str(exc).split())
-    detail = detail if len(detail) <= 160 else detail[:157] + "..."
-    return (f"internal error ({type(exc).__name__}{': ' + detail if detail else ''}); "
-            "run with -vv for the traceback")
 
 
 def _check_resource(args: argparse.Namespace) -> bool:
