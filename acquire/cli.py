@@ -115,15 +115,9 @@ def _error(message: str) -> None:
 
 
 def _check_resource(args: argparse.Namespace) -> bool:
-    """``--resource`` follows the rules plans follow; True when refused (with --json)."""
-    from acquire.commands.jsonout import run_with_json_errors
-    from drivers.resources import parse_resource
-
-    def check() -> int:
-        parse_resource(args.resource, where="--resource")
-        return EXIT_OK
-
-    return run_with_json_errors(args, args.command, check) != EXIT_OK
+    """``--resource`` follows the rules plans follow; True when refused (acquire.commands.
+    resource_option, loaded like a command so that this module stays light)."""
+    return _module("resource_option").run(args) != EXIT_OK
 
 
 def _module(name: str):
