@@ -35,7 +35,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
                 "instrument"),
 }
 # Commands that talk to an instrument get --io-log (drivers.iolog); -vv shows the same.
-IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe", "dialect"}
+# (``dialect check`` adds it to its own sub-command.)
+IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe"}
 IO_LOG_HELP = ("append every message sent to and received from the instrument to FILE, with "
                "monotonic times and byte counts (binary payloads summarised)")
 

@@ -111,11 +111,12 @@ def _instrument_state(sim: SimServer) -> dict:
 
 
 def test_dialect_check_walks_every_command_and_leaves_nothing_changed(
-        sim: SimServer, capsys: pytest.CaptureFixture) -> None:
+        sim: SimServer, capsys: pytest.CaptureFixture, tmp_path: Path) -> None:
     sim.bench.connect("short")
     before = _instrument_state(sim)
     code, out, _ = _run(capsys, "dialect", "check", sim.dialect, "--resource",
-                        sim.tcp_resource, "--timeout", "0.5", "--json")
+                        sim.tcp_resource, "--timeout", "0.5", "--json", "--io-log",
+                        str(tmp_path / "io.log"))
     report = json.loads(out)
     assert code == 0 and report["failed"] == 0, [s for s in report["steps"] if not s["ok"]]
     sent = [s["key"] for s in report["steps"] if s["sent"]]
@@ -123,6 +124,8 @@ def test_dialect_check_walks_every_command_and_leaves_nothing_changed(
                 "trigger.command", "data.traces.S11", "data.traces.S22", "switch.set"):
         assert key in sent, key
     assert _instrument_state(sim) == before  # settings, and the switch is on short still
+    logged = (tmp_path / "io.log").read_text()
+    assert all(f"> {len(s['sent']) + 1} B" in logged for s in report["steps"][:3] if s["sent"])
     assert before["connected"] == "short"
 
 

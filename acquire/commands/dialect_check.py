@@ -24,6 +24,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     check.add_argument("--timeout", type=float, default=DEFAULT_TIMEOUT_S, metavar="S",
                        help=f"seconds to wait for each reply (default {DEFAULT_TIMEOUT_S:g})")
     check.add_argument("--json", action="store_true", help="print one JSON object")
+    check.add_argument("--io-log", metavar="FILE",
+                       help="append every message sent to and received from the instrument "
+                            "to FILE (monotonic times, byte counts)")
 
 
 def run(args: argparse.Namespace) -> int:
