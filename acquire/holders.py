@@ -39,14 +39,13 @@ def busy_message(error_text: str, resource: str, spool_root: Path | None = None)
 
 def soak_holder(resource: str, spool_root: Path | None = None) -> str | None:
     """The running soak job on ``resource`` in words, or None (no spool, no such job)."""
-    from acquire.soak.daemon import resource_key
     from acquire.soak.spool import Spool
     from drivers.errors import SweepdError
 
     try:
         spool = Spool(spool_root)
         for job in spool.jobs():
-            if resource_key(job.resource) != resource_key(resource):
+            if job.resource.strip().upper() != resource.strip().upper():  # case: same one
                 continue
             state = job.read_state()
             if state.get("state") != "running":

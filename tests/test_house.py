@@ -219,7 +219,6 @@ OVERSIZE_MODULES: dict[str, str] = {
     "acquire/calibration/checks.py": "12.4 calibration method classes (twoport engineer)",
     "acquire/checks.py": "12.2 size rule (not yet assigned)",
     "acquire/masks.py": "12.2 size rule (not yet assigned)",
-    "acquire/plots.py": "12.2 size rule (not yet assigned)",
     "acquire/station/loop.py": "12.2 size rule (not yet assigned)",
     "acquire/touchstone/reader.py": "12.2 size rule (not yet assigned)",
     "drivers/transport.py": "12.2 size rule (not yet assigned)",

@@ -11,6 +11,17 @@ from __future__ import annotations
 
 import argparse
 
+MARKER_HELP = ("marker at a frequency (2.45GHz) or a feature: min, max, edges (SWR 2 band "
+               "of a reflection, -3 dB band of a transmission), swr=LEVEL or db=LEVEL (each "
+               "crossing); put a parameter first for another trace (S21:max); repeat for "
+               "several. Each marker's value is printed in every quantity.")
+
+
+def add_marker_argument(parser: argparse.ArgumentParser) -> None:
+    """``--marker SPEC`` (repeatable), shared by plot and check."""
+    parser.add_argument("--marker", action="append", default=[], metavar="SPEC",
+                        help=MARKER_HELP)
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("file", help="Touchstone file (.s1p, .s2p, ..., .ts)")
@@ -22,8 +33,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--plan", metavar="PLAN", help="also apply the checks of this plan (YAML)",
     )
     parser.add_argument("--json", action="store_true", help="print the verdict as JSON")
-    from acquire.commands.plot import add_marker_argument
-
     add_marker_argument(parser)
     parser.epilog = "Exit codes: 0 pass, 1 fail, 2 error, 3 indeterminate (guarded plans)."
 

@@ -12,22 +12,14 @@ from __future__ import annotations
 
 import argparse
 
-MARKER_HELP = ("marker at a frequency (2.45GHz) or a feature: min, max, edges (SWR 2 band "
-               "of a reflection, -3 dB band of a transmission), swr=LEVEL or db=LEVEL (each "
-               "crossing); put a parameter first for another trace (S21:max); repeat for "
-               "several. Each marker's value is printed in every quantity.")
 _SCALES = {"swr": "swr", "return-loss": "return_loss", "db": "s_db"}
 _QUANTITIES = {**_SCALES, "phase": "phase", "group-delay": "group_delay",
                "impedance": "impedance"}
 
 
-def add_marker_argument(parser: argparse.ArgumentParser) -> None:
-    """``--marker SPEC`` (repeatable), shared by plot and check."""
-    parser.add_argument("--marker", action="append", default=[], metavar="SPEC",
-                        help=MARKER_HELP)
-
-
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from acquire.commands.check import add_marker_argument
+
     parser.add_argument("file", nargs="+",
                         help="Touchstone file (.s1p, .s2p, ..., .ts); several for an overlay")
     parser.add_argument(
