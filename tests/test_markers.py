@@ -163,5 +163,8 @@ def test_check_prints_markers_and_json_lists_them(tmp_path, capsys):
     assert check_cmd.run(parser.parse_args([str(path), "--mask", "patch-2g45", "--json",
                                             "--marker", "2.45GHz"])) == 0
     doc = json.loads(capsys.readouterr().out)
+    from schema_support import validate
+
+    validate(doc, "verdict")  # configs/schemas/verdict.schema.json describes the markers
     (mk,) = doc["markers"]
     assert mk["frequency_hz"] == 2.45e9 and mk["swr"] == pytest.approx(100 / 90, abs=1e-3)
