@@ -121,6 +121,9 @@ class Analyzer:
             if self._defined and self.transport.is_open:
                 try:
                     self._traces.cleanup_measurements()
+                    left = self._errors.drain()  # also: the cleanup was taken before we go
+                    if left:
+                        log.debug("%s: after the cleanup: %s", self.resource, left)
                 except InstrumentError as exc:  # closing anyway; the link may be gone
                     log.debug("%s: measurement cleanup failed: %s", self.resource, exc)
             self._defined = False

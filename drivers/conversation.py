@@ -50,7 +50,7 @@ class Conversation:
     def query(self, command: str, timeout_s: float | None = None) -> str:
         """Send ``command`` and return its one-line reply (padding and quotes removed)."""
         if self._plain:
-            self.transport.write(command)
+            self.write(command)
             return self.transport.read_line(command, timeout_s)
         self.ask(command)
         return self.clean(self.transport.read_line(command, timeout_s))
@@ -83,7 +83,9 @@ class Conversation:
 
     def wait_opc(self, after: str, timeout_s: float | None = None) -> None:
         """Ask ``*OPC?`` (the dialect's form) and require ``1``."""
-        command = self.dialect.opc_query.render()
+        opc = self.dialect.opc_query
+        assert opc is not None  # the parser requires it wherever it is used
+        command = opc.render()
         reply = self.query(command, timeout_s)
         if reply.strip().lstrip("+") != "1":
             raise ReplyError(

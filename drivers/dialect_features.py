@@ -16,7 +16,9 @@ from drivers.dialect_model import (
     Quirks,
 )
 from drivers.dialect_node import Node
+from drivers.layouts import FREQ_PREFIX
 from drivers.templates import Template, TemplateProblem
+from drivers.yamlnode import show
 
 MAX_DELAY_S = 30.0
 MAX_POLL_INTERVAL_S = 5.0
@@ -80,33 +82,44 @@ def trace_query(node: Node, traces: dict[str, str], spec: MeasurementSpec | None
         return template
     node.fail(
         "template must use {trace} (or a measurement token) when data.traces lists "
-        f"{len(traces)} traces and no measurement.select is given, got {template.text!r}"
+        f"{len(traces)} traces and no measurement.select is given, got {show(template.text)}"
     )
 
 
 def poll(node: Node) -> PollSpec:
     """``trigger.poll``: the query and what says done."""
-    node.mapping(("query", "arm", "done_bit", "done_reply", "interval"), required=("query",))
+    node.mapping(("query", "arm", "done_bit", "done_when", "done_reply", "interval"),
+                 required=("query",))
     has_bit, has_reply = node["done_bit"].present, node["done_reply"].present
     if has_bit == has_reply:
         node.fail("give exactly one of done_bit (a status bit number) or done_reply")
+    if node["done_when"].present and not has_bit:
+        node["done_when"].fail("applies to done_bit only")
     return PollSpec(
         query=node["query"].template(query=True),
         arm=node["arm"].optional_template(query=False),
         done_bit=node["done_bit"].integer(lo=0, hi=15) if has_bit else None,
         done_reply=token(node["done_reply"]) if has_reply else None,
         interval_s=_bounded(node["interval"], 0.02, 0.001, MAX_POLL_INTERVAL_S),
+        done_when_set=node["done_when"].text("set", choices=("set", "clear")) == "set",
     )
 
 
-def frequency(node: Node) -> FrequencyAxis | None:
-    """``data.frequency``: a list query (ASCII or binary) or start/stop/points queries."""
+def frequency(node: Node, layout: str) -> FrequencyAxis | None:
+    """``data.frequency``: a list query (ASCII or binary), start/stop/points queries, or
+    (with a ``freq_`` layout) the frequencies sent inside each trace."""
+    in_trace = layout.startswith(FREQ_PREFIX)
     if not node.present:
-        return None
+        return FrequencyAxis("trace", 1.0) if in_trace else None
     keys = ("query", "encoding", "byte_order", "start", "stop", "points", "unit_scale")
     node.mapping(keys)
     scale = node["unit_scale"].number(1.0, positive=True, lo=0.0)
     edges = [node[k].present for k in ("start", "stop", "points")]
+    if in_trace:
+        if node["query"].present or any(edges):
+            node.fail(f"layout {layout} sends the frequencies with each trace: give only "
+                      "unit_scale here")
+        return FrequencyAxis("trace", scale)
     if node["query"].present:
         if any(edges):
             node.fail("give either 'query' (a list) or 'start', 'stop' and 'points', not both")
@@ -167,7 +180,7 @@ def identity_reply(node: Node) -> IdentitySpec:
     node.mapping(("separator", "fields"), required=("fields",))
     separator = node["separator"].text(",")
     if len(separator) > 4 or not separator.isprintable():  # only splits replies, never sent
-        node["separator"].fail(f"must be 1 to 4 printable characters, got {separator!r}")
+        node["separator"].fail(f"must be 1 to 4 printable characters, got {show(separator)}")
     fields = tuple(entry.text(choices=IDENTITY_FIELDS) for entry in node["fields"].elements())
     named = [f for f in fields if f != "skip"]
     if len(set(named)) != len(named):

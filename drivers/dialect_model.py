@@ -112,6 +112,7 @@ class PollSpec:
     done_bit: int | None
     done_reply: str | None
     interval_s: float
+    done_when_set: bool = True  # done_bit: done when the bit is set (False: when clear)
 
 
 @dataclass(frozen=True)
@@ -119,11 +120,12 @@ class FrequencyAxis:
     """Where the frequency axis comes from when not from the settings read back.
 
     ``list``: ``query`` answers every frequency (ASCII or a binary block of ``encoding``);
-    ``edges``: ``start``, ``stop`` and ``points`` queries give a linear axis.
+    ``edges``: ``start``, ``stop`` and ``points`` queries give a linear axis;
+    ``trace``: each trace carries its frequencies (a ``freq_`` layout).
     ``scale`` is Hz per instrument unit.
     """
 
-    kind: str  # list | edges
+    kind: str  # list | edges | trace
     scale: float
     query: Template | None = None
     encoding: str = "ascii"
@@ -164,7 +166,7 @@ class Dialect:
     identity: Template
     clear: Template | None
     opening: tuple[Template, ...]
-    opc_query: Template
+    opc_query: Template | None  # required by the parser where it is used
     opc_after_setting: bool
     settings: Mapping[str, SettingSpec]
     formats: tuple[DataFormat, ...]

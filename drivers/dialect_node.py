@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from drivers.errors import DialectError
 from drivers.templates import Template, TemplateProblem, check_token
-from drivers.yamlnode import MISSING, YamlNode
+from drivers.yamlnode import MISSING, YamlNode, show
 
 __all__ = ["MISSING", "Node"]
 
@@ -29,14 +29,15 @@ class Node(YamlNode):
         except TemplateProblem as exc:
             self.fail(str(exc))
         if query and not template.is_query:
-            self.fail(f"a query template must contain '?', got {text!r}")
+            self.fail(f"a query template must contain '?', got {show(text)}")
         if not query and template.is_query:
             self.fail(
-                f"a command template must not contain '?' (a reply would go unread), got {text!r}"
+                "a command template must not contain '?' (a reply would go unread), "
+                f"got {show(text)}"
             )
         for name in require:
             if name not in template.fields:
-                self.fail(f"template must use {{{name}}}, got {text!r}")
+                self.fail(f"template must use {{{name}}}, got {show(text)}")
         return template
 
     def optional_template(self, fields: tuple[str, ...] = (), *, query: bool) -> Template | None:
@@ -52,6 +53,8 @@ class Node(YamlNode):
 
     def token(self, what: str = "token") -> str:
         self.require()
+        if not isinstance(self.value, str):  # shown bounded, however large the value
+            self.fail(f"{what} must be a non-empty string, got {show(self.value)}")
         try:
             return check_token(self.value, what)
         except TemplateProblem as exc:

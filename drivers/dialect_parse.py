@@ -61,9 +61,14 @@ def parse_dialect(raw: Any, path: Path) -> Dialect:
     name = root["dialect"].token("dialect name")
     session = root["session"].mapping(
         ("identity", "identity_reply", "clear", "opening", "opc_query", "opc_after_setting"),
-        required=("identity", "opc_query"),
+        required=("identity",),
     )
     opening = session["opening"]
+    trigger = _trigger(root["trigger"])
+    opc_after_setting = session["opc_after_setting"].boolean(False)
+    if (trigger["wait"] == "opc" or opc_after_setting) and not session["opc_query"].present:
+        why = "opc_after_setting is true" if opc_after_setting else "trigger.wait is 'opc'"
+        session["opc_query"].fail(f"is required when {why}")
     formats, format_query, byte_orders = _data_formats(root["data"])
     data = root["data"]
     traces = _traces(data["traces"])
@@ -77,17 +82,17 @@ def parse_dialect(raw: Any, path: Path) -> Dialect:
         identity=session["identity"].template(query=True),
         clear=session["clear"].optional_template(query=False),
         opening=opening.templates(query=False) if opening.present and opening.value != [] else (),
-        opc_query=session["opc_query"].template(query=True),
-        opc_after_setting=session["opc_after_setting"].boolean(False),
+        opc_query=session["opc_query"].optional_template(query=True),
+        opc_after_setting=opc_after_setting,
         settings=_settings(root["settings"]),
         formats=formats,
         format_query=format_query,
         byte_orders=byte_orders,
-        layout=data["layout"].text(choices=LAYOUTS),
+        layout=(layout := data["layout"].text(choices=LAYOUTS)),
         trace_query=features.trace_query(data["trace_query"], traces, measurement),
         traces=traces,
-        frequency=features.frequency(data["frequency"]),
-        **_trigger(root["trigger"]),
+        frequency=features.frequency(data["frequency"], layout),
+        **trigger,
         error_query=errors["query"].template(query=True),
         error_none_code=errors["none_code"].integer(0, lo=-32768, hi=32767),
         error_max_entries=errors["max_entries"].integer(64, lo=1, hi=10_000),

@@ -18,7 +18,7 @@ from drivers.deadline import Deadline
 from drivers.dialect_model import Dialect, FrequencyAxis, PollSpec
 from drivers.errors import BlockError, DialectError, InstrumentTimeout, ReplyError
 from drivers.format_choice import FormatChoice
-from drivers.layouts import VALUES_PER_POINT, to_complex
+from drivers.layouts import FREQ_PREFIX, split_frequency, to_complex, values_per_point
 from drivers.replies import parse_number, same_token
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
@@ -39,6 +39,7 @@ class TraceReader:
         # checked name -> (select commands, chained trigger + query, query alone)
         self._commands: dict[str, tuple[tuple[str, ...], str, str]] = {}
         self._grid: tuple[Stimulus, np.ndarray] | None = None
+        self._trace_axis: np.ndarray | None = None  # frequencies sent inside the last trace
 
     def sweep(self, params: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
         """Trigger one sweep, wait for it and read ``params`` (see ``Analyzer.sweep``)."""
@@ -152,14 +153,15 @@ class TraceReader:
         if fmt is None:
             raise ReplyError(f"instrument {self.talk.resource}: not opened")
         transport, points = self.talk.transport, row.size
-        count = points * VALUES_PER_POINT
-        what = f"{points} points x {VALUES_PER_POINT} values of {fmt.encoding}"
         layout = self.talk.dialect.layout
+        per_point = values_per_point(layout)
+        count = points * per_point
+        what = f"{points} points x {per_point} values of {fmt.encoding}"
         if fmt.encoding == "ascii":
             self.talk.ask(command)
             text = self.talk.clean(transport.read_line(command, timeout))
             values = self._decode(lambda: decode_ascii(text, count, what), command)
-            to_complex(values, layout, out=row)
+            self._to_row(values, layout, row)
             return
         size = count * VALUE_SIZE[fmt.encoding]
         in_place = self.formats.in_place
@@ -183,6 +185,12 @@ class TraceReader:
         values = self._decode(
             lambda: decode_binary(target, fmt.encoding, order, count, what), command
         )
+        self._to_row(values, layout, row)
+
+    def _to_row(self, values: np.ndarray, layout: str, row: np.ndarray) -> None:
+        """Convert into ``row``; keep the frequencies of a ``freq_`` layout for the axis."""
+        if layout.startswith(FREQ_PREFIX):
+            self._trace_axis, values, layout = split_frequency(values, layout)
         to_complex(values, layout, out=row)
 
     def _decode(self, decode: Any, command: str) -> Any:
@@ -201,6 +209,9 @@ class TraceReader:
             return grid[1].copy()
         if axis.kind == "edges":
             return self._axis_from_edges(axis, points)
+        if axis.kind == "trace":
+            assert self._trace_axis is not None  # every trace read sets it
+            return self._increasing(self._trace_axis * axis.scale, "the trace's frequencies")
         assert axis.query is not None
         command = axis.query.render()
         what = f"{points} frequencies"
@@ -215,11 +226,12 @@ class TraceReader:
                 lambda: decode_binary(target, axis.encoding, axis.byte_order, points, what),
                 command,
             )
-        freq = values * axis.scale
-        if points > 1 and not np.all(np.diff(freq) > 0):
+        return self._increasing(values * axis.scale, f"'{command}' frequencies")
+
+    def _increasing(self, freq: np.ndarray, what: str) -> np.ndarray:
+        if freq.size > 1 and not np.all(np.diff(freq) > 0):
             raise ReplyError(
-                f"instrument {self.talk.resource}: '{command}' frequencies are not strictly "
-                "increasing"
+                f"instrument {self.talk.resource}: {what} are not strictly increasing"
             )
         return freq
 
@@ -275,4 +287,4 @@ def poll_done(spec: PollSpec, reply: str, where: str) -> bool:
     register = parse_number(reply, where, integer=True)
     if not 0 <= register <= 0xFFFF:
         raise ReplyError(f"{where} status register {register} is outside 0..65535")
-    return bool((int(register) >> spec.done_bit) & 1)
+    return bool((int(register) >> spec.done_bit) & 1) == spec.done_when_set

@@ -14,7 +14,8 @@ It speaks just enough of the generic SCPI dialect (configs/dialects/scpi-generic
 - ``huge_header``   announces a block of 999,999,999 bytes and sends a few;
 - ``endless_line``  answers the sweep-time query with 2 MB of digits and no terminator.
 
-Quirk options shape honest replies: ``pad`` (NUL bytes and blanks around replies),
+Quirk options shape honest replies: ``triplets`` (each point as frequency, re, im),
+``pad`` (NUL bytes and blanks around replies),
 ``quote`` (replies wrapped in double quotes), ``read_request`` (a reply is released only
 after a separate ``READ`` message), ``identity`` (its own identity query and reply).
 Everything is bounded: the server thread stops on ``close()``.
@@ -36,10 +37,11 @@ class FakeInstrument:
     """One client at a time on 127.0.0.1; see the module docstring."""
 
     def __init__(self, mode: str = "honest", *, pad: bool = False, quote: bool = False,
-                 read_request: bool = False,
+                 read_request: bool = False, triplets: bool = False,
                  identity: tuple[str, str] = ("*IDN?", "fake-maker,fake-vna,F001,1.0")) -> None:
         assert mode in MODES, mode
         self.mode, self.pad, self.quote, self.read_request = mode, pad, quote, read_request
+        self.triplets = triplets
         self.identity_query, self.identity_reply = identity
         self.settings = {"STAR": 1e9, "STOP": 2e9, "POIN": 11.0, "POW": 0.0, "BAND": 1e3,
                          "AVER:COUN": 1.0}
@@ -186,6 +188,9 @@ class FakeInstrument:
         values = np.empty(2 * points)
         values[0::2] = np.linspace(0.1, 0.5, points)
         values[1::2] = -0.2
+        if self.triplets:
+            freq = np.linspace(self.settings["STAR"], self.settings["STOP"], points)
+            values = np.column_stack([freq, values[0::2], values[1::2]]).ravel()
         if self.mode in ("liar", "silent", "mute"):
             return None
         if self.mode == "garbage":

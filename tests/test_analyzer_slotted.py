@@ -16,7 +16,7 @@ from test_analyzer import STIM, TWO_PORT, columns, expected_raw
 
 from drivers.analyzer import Analyzer
 from drivers.dialect import DIALECT_DIR, load_dialect
-from drivers.errors import InstrumentError, ReplyError
+from drivers.errors import DialectError, InstrumentError, ReplyError
 from drivers.replies import Identity
 from drivers.stimulus import Stimulus
 from drivers.transport import Transport
@@ -93,8 +93,10 @@ def test_polling_waits_for_the_sweep(tmp_path: Path) -> None:
     stim = Stimulus(2.3e9, 2.6e9, 201, -10.0, 1e3, 1)  # 207 ms by the simulator's model
     esr = variant(tmp_path, SLOTTED,
                   trigger__poll={"query": "*ESR?", "arm": "*OPC", "done_bit": 0})
+    busy_bit = variant(tmp_path, SLOTTED, session__opc_query=None, trigger__poll={
+        "query": "ACQuire:BUSY?", "done_bit": 0, "done_when": "clear"})
     with SimServer(personality="slotted", time_scale=1.0, noise=False) as sim:
-        for dialect in (load_dialect("slotted-blocks"), esr):
+        for dialect in (load_dialect("slotted-blocks"), esr, busy_bit):
             with Analyzer(sim.tcp_resource, dialect) as an:
                 an.configure(stim)
                 started = time.monotonic()
@@ -154,3 +156,32 @@ def test_without_the_read_request_quirk_the_fake_never_answers(tmp_path: Path) -
         fake.resource, load_dialect("scpi-generic"), timeout_s=0.3
     ):
         pass
+
+
+@pytest.mark.parametrize("data_format", ["ascii", "real32", "real64"])
+def test_each_point_with_its_frequency(tmp_path: Path, data_format: str) -> None:
+    triples = variant(tmp_path, GENERIC, data__layout="freq_re_im")
+    stim = Stimulus(1e9, 2e9, 11, 0.0, 1e3)
+    with FakeInstrument(triplets=True) as fake, Analyzer(
+        fake.resource, triples, data_format=data_format
+    ) as an:
+        an.configure(stim)
+        freq, data = an.sweep(["S11"])
+        want = fake.expected_trace()
+    if data_format == "real32":
+        want = want.real.astype(np.float32) + 1j * want.imag.astype(np.float32)
+        np.testing.assert_allclose(freq, stim.frequencies(), rtol=2**-24)
+    else:
+        np.testing.assert_array_equal(freq, stim.frequencies())
+    np.testing.assert_array_equal(data[:, 0], want)
+
+
+def test_a_freq_layout_takes_no_axis_query(tmp_path: Path) -> None:
+    doc = yaml.safe_load(yaml.safe_dump(GENERIC))
+    doc["data"]["layout"] = "freq_db_deg"
+    doc["data"]["frequency"] = {"query": ":SENS:FREQ:DATA?"}
+    path = tmp_path / "x.yaml"
+    path.write_text(yaml.safe_dump(doc))
+    with pytest.raises(DialectError, match=r"data\.frequency: layout freq_db_deg sends the "
+                                           r"frequencies with each trace"):
+        load_dialect(path)

@@ -15,6 +15,10 @@ import yaml
 from test_dialect import DELETE, GENERIC, load_error, mutated, write
 
 from drivers.dialect import DIALECT_DIR, load_dialect
+from drivers.dialect_model import PollSpec
+from drivers.errors import ReplyError
+from drivers.templates import Template
+from drivers.trace_reader import poll_done
 
 SLOTTED = yaml.safe_load((DIALECT_DIR / "slotted-blocks.yaml").read_text())
 
@@ -51,6 +55,39 @@ def test_one_trace_needs_no_trace_placeholder(tmp_path: Path) -> None:
 def test_a_select_makes_the_trace_placeholder_unneeded(tmp_path: Path) -> None:
     doc = mutated(SLOTTED, "data.trace_query", "FETCh:SLOT?")
     assert load_dialect(write(tmp_path, doc)).trace_query.text == "FETCh:SLOT?"
+
+
+def test_opc_query_is_needed_only_where_it_is_used(tmp_path: Path) -> None:
+    doc = mutated(SLOTTED, "session.opc_query", DELETE)  # wait: poll never asks it
+    assert load_dialect(write(tmp_path, doc)).opc_query is None
+    doc = mutated(GENERIC, "session.opc_query", DELETE)  # wait: wai
+    assert load_dialect(write(tmp_path, doc)).opc_query is None
+    doc = mutated(doc, "trigger.wait", "opc")
+    assert "session.opc_query: is required when trigger.wait is 'opc'" in load_error(tmp_path,
+                                                                                      doc)
+    doc = mutated(mutated(GENERIC, "session.opc_query", DELETE),
+                  "session.opc_after_setting", True)
+    assert "session.opc_query: is required when opc_after_setting is true" in load_error(
+        tmp_path, doc)
+
+
+def test_poll_done_by_reply_or_by_a_bit_set_or_clear() -> None:
+    def spec(**kw: object) -> PollSpec:
+        base = {"query": Template.parse("*ESR?"), "arm": None, "done_bit": None,
+                "done_reply": None, "interval_s": 0.01}
+        return PollSpec(**{**base, **kw})
+
+    where = "instrument X: 'Q?'"
+    assert poll_done(spec(done_reply="0"), " +0 ", where)
+    assert not poll_done(spec(done_reply="0"), "1", where)
+    assert poll_done(spec(done_bit=0), "33", where)  # 0b100001: operation complete
+    assert not poll_done(spec(done_bit=0), "32", where)
+    assert poll_done(spec(done_bit=4, done_when_set=False), "1", where)  # bit 4 clear
+    assert not poll_done(spec(done_bit=4, done_when_set=False), "16", where)
+    with pytest.raises(ReplyError, match=r"status register 70000 is outside 0\.\.65535"):
+        poll_done(spec(done_bit=0), "70000", where)
+    with pytest.raises(ReplyError, match="reply is not a number"):
+        poll_done(spec(done_bit=0), "busy", where)
 
 
 def test_an_esr_bit_poll_and_edge_queries_load(tmp_path: Path) -> None:
@@ -98,6 +135,7 @@ BAD: list[tuple[str, Any, str]] = [
      "data.frequency: give either 'query' (a list) or 'start', 'stop' and 'points', not both"),
     ("data.frequency.query", DELETE,
      "data.frequency: needs 'query', or all of 'start', 'stop' and 'points'"),
+    ("trigger.poll.done_when", "clear", "trigger.poll.done_when: applies to done_bit only"),
     ("quirks.unit_suffixes", "yes", "quirks.unit_suffixes: must be true or false"),
     ("quirks.delays", [{"after": "UNIT:PRES", "seconds": 31}],
      "quirks.delays[0].seconds: must be at most 30 s, got 31.0"),

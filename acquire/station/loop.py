@@ -30,8 +30,9 @@ from acquire.station.counters import run_yield
 from acquire.station.display import banner, unit_lines
 from acquire.station.errors import SerialRefused, StationError
 from acquire.station.figures import worst_violation
+from acquire.station.hold import handle_indeterminate
 from acquire.station.hooks import LineHooks
-from acquire.station.interrupts import deferred_interrupt, terminate_as_interrupt
+from acquire.station.interrupts import QUIT, Quit, deferred_interrupt, terminate_as_interrupt
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
 from acquire.station.swap import SwapGuard, confirm_step
@@ -51,13 +52,6 @@ HELP = (
     "  g  golden check now     c  calibrate now     s  counters     ?  this help",
     "  q  quit (end of input and Ctrl-C also end the shift; nothing saved is lost)",
 )
-QUIT = ("q", "quit", "exit")
-
-
-class Quit(Exception):
-    """The operator ended the shift at a prompt."""
-
-
 @dataclass(frozen=True)
 class StationOptions:
     resource: str | None = None
@@ -201,9 +195,8 @@ class Station:
         if result is not None:
             self.swap.remember(serial, result.capture.sweep)
         if result is not None and result.verdict == "indeterminate":
-            from acquire.station.hold import handle_indeterminate
-
-            handle_indeterminate(self, serial, result)
+            if not handle_indeterminate(self, serial, result, QUIT):
+                raise Quit
         elif result is not None:
             self._show(result)
 
