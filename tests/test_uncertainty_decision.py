@@ -219,3 +219,12 @@ def test_s21_magnitude_segment_uses_the_transmission_uncertainty() -> None:
         assert evaluate_checks([check], sweep).verdict == simple
         assert evaluate_checks([check], sweep, decision=GUARDED,
                                uncertainty=unc).verdict == guarded
+
+
+def test_shipped_guarded_example_plan() -> None:
+    from acquire.library import library_dir
+    from acquire.plan import load_plan
+
+    plan = load_plan(library_dir("plans") / "patch-line-guarded.yaml")
+    assert plan.decision.guarded and plan.decision.guard == 1.0
+    assert plan.decision.budget.load_error == pytest.approx(0.01) and plan.decision.noise_auto
