@@ -139,14 +139,12 @@ def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> 
 
 def capture_uncertainty(plan: Plan, calset: Any | None, sweep: Sweep) -> Any:
     """The per-point uncertainty of a capture (acquire/uncertainty/capture.py)."""
-    from acquire.uncertainty.capture import sweep_uncertainty, unavailable
+    from acquire.uncertainty.capture import cached_kit, sweep_uncertainty, unavailable
     from acquire.uncertainty.decision import SIMPLE
 
     if calset is None or plan.calibration is None:
         return unavailable(sweep, "the sweep is uncorrected")
-    from acquire.calibration import load_kit
-
-    return sweep_uncertainty(sweep, calset, load_kit(plan.calibration.kit),
+    return sweep_uncertainty(sweep, calset, cached_kit(plan.calibration.kit),
                              plan.decision or SIMPLE)
 
 
@@ -319,6 +317,10 @@ class RunResult:
         verdict = self.capture.verdict
         if verdict.results:
             lines += [verdict.summary_line(), verdict.metrics_line()]
+        unc = self.capture.uncertainty
+        if unc is not None and not unc.unavailable:
+            lines += [text.removeprefix("sweepd ") for text in unc.comment_lines()
+                      if text.startswith("sweepd ")]
         return "\n".join(lines)
 
 

@@ -100,11 +100,12 @@ def test_a_full_disk_holds_the_job_and_it_resumes_when_space_is_back(
         worker = SoakWorker(job)
         thread = threading.Thread(target=worker.run)
         thread.start()
-        for _ in range(200):  # the state file says held first, then the status file
+        for _ in range(600):  # the state file says held first, then the status file
             if job.read_state().get("state") == job.read_status().get("state") == "held":
                 break
             threading.Event().wait(0.05)
         status = job.read_status()
+        assert status.get("state") == "held", (job.read_state(), status)
         assert job.read_state()["state"] == "held"
         assert "disk nearly full: 10.0 MB free" in job.read_state()["reason"]
         assert not list(job.data_dir.glob("*.s1p"))  # nothing captured while held
