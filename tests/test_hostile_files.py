@@ -203,6 +203,7 @@ def _load_any(kind: str, path: Path):
     ("a: " + "{b: " * 3000 + "1" + "}" * 3000 + "\n", r"nested too deeply \(at most 64 levels\)"),
     (f"a: {'9' * 5000}\n", r"value out of range"),
     ("a: 2020-99-99\n", r"value out of range"),
+    ("\x00lan: x\n", r"YAML error: unacceptable character #x0000"),  # found by the fuzz suite
 ])
 def test_hostile_yaml_is_one_line_for_every_file_kind(tmp_path: Path, kind: str, text: str,
                                                       message: str) -> None:
