@@ -36,13 +36,13 @@ def _alarm(_signum, _frame) -> None:
 def run_cli(argv: list[str]) -> dict[str, Any]:
     from acquire.cli import main
 
-    err = io.StringIO()
-    with contextlib.redirect_stderr(err), contextlib.redirect_stdout(io.StringIO()):
+    err, out = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stderr(err), contextlib.redirect_stdout(out):
         try:
             code = main(argv)
         except SystemExit as exc:  # argparse
             code = exc.code if isinstance(exc.code, int) else 2
-    return {"code": code, "stderr": err.getvalue()}
+    return {"code": code, "stderr": err.getvalue(), "stdout": out.getvalue()[-4000:]}
 
 
 def run_loader(name: str, path: str) -> dict[str, Any]:
