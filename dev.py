@@ -27,7 +27,8 @@ STAMP = VENV / ".sweepd-installed"
 
 def ensure_env() -> None:
     """Create .venv and install sweepd with its test extras, once per pyproject change."""
-    want = hashlib.sha256((HERE / "pyproject.toml").read_bytes()).hexdigest()
+    want = hashlib.sha256(b"".join((HERE / name).read_bytes()
+                                  for name in ("pyproject.toml", "setup.py"))).hexdigest()
     if STAMP.exists() and STAMP.read_text().strip() == want:
         return
     if not (BIN / "python").exists():

@@ -8,13 +8,14 @@ A plan's ``checks:`` list holds masks and derived checks::
       - resonance: {within: [2.43 GHz, 2.47 GHz]}
       - worst_swr: {band: [2.40 GHz, 2.50 GHz], at_most: 1.8}
 
-``parse_checks`` validates that list (errors name file and key path);
+``acquire.check_parse.parse_checks`` validates that list (errors name file and key path);
 ``evaluate_checks`` judges a sweep and returns a ``Verdict``. A check that cannot judge
 the sweep (non-finite data, a mask outside the sweep, a missing S-parameter) gives an
 ``error`` result instead of raising, so a verdict always exists and nothing already
 captured is lost. Overall: ``error`` if any check erred, else ``fail`` if any failed,
+else ``indeterminate`` if any was (guarded acceptance, see acquire/uncertainty/decision.py),
 else ``pass``; ``none`` when there were no checks. Exit codes: 0 pass/none, 1 fail,
-2 error. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
+2 error, 3 indeterminate. The JSON form is documented in configs/masks/README.md ("Verdict JSON").
 """
 
 from __future__ import annotations
@@ -23,20 +24,18 @@ import json
 import math
 from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
-from acquire.errors import ConfigError
-from acquire.masks import Limit, Mask, MaskResult, Segment, evaluate_mask, load_mask
+from acquire.errors import CheckError
+from acquire.jsonsafe import json_safe
+from acquire.masks import EDGE_RTOL, Limit, Mask, MaskResult, Segment, evaluate_mask
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
-from acquire.yamlfile import Node, show
 from drivers.errors import SweepdError
 
 VERDICT_FORMAT = "sweepd-verdict"
 VERDICT_VERSION = 1
-EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2}
-CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance")
+EXIT_CODES = {"pass": 0, "none": 0, "fail": 1, "error": 2, "indeterminate": 3}
 
 
 @dataclass(frozen=True)
@@ -45,7 +44,7 @@ class CheckResult:
 
     kind: str
     name: str
-    verdict: str  # "pass" | "fail" | "error"
+    verdict: str  # "pass" | "fail" | "error" | "indeterminate" (guarded acceptance)
     summary: str  # one ASCII line
     details: dict[str, Any] = field(default_factory=dict)
     message: str | None = None  # the error, when verdict == "error"
@@ -104,6 +103,12 @@ class MaskCheck(Check):
             f"{self.name} {result.verdict}: {worst.summary()}", result.to_dict(), None, result,
         )
 
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance (``acquire.uncertainty.decision``) of the same positions."""
+        from acquire.uncertainty.guarded import guarded_result
+
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
+
 
 @dataclass(frozen=True)
 class BandwidthCheck(Check):
@@ -160,6 +165,16 @@ class BandwidthCheck(Check):
             )
         verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
+        return self._result(verdict, bw, band, more, details)
+
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance on the band where |S| ± w is surely / possibly below."""
+        from acquire.uncertainty.guarded import guarded_bandwidth
+
+        return guarded_bandwidth(self, self.evaluate(sweep), sweep, rule, uncertainty)
+
+    def _result(self, verdict: str, bw: Any, band: Any, more: str, details: dict[str, Any]
+                ) -> CheckResult:
         return CheckResult(
             self.kind, self.name, verdict,
             f"{self.name} {verdict}: {format_frequency(bw.width_hz)}{more} "
@@ -259,6 +274,12 @@ class WorstSwrCheck(Check):
             f"{format_frequency(worst.freq_hz)}", details, None, result,
         )
 
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance of the band's positions (``acquire.uncertainty.decision``)."""
+        from acquire.uncertainty.guarded import guarded_result
+
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
+
 
 def _param(check: Check, sweep: Sweep):
     name = next(iter(check.parameters))
@@ -269,8 +290,6 @@ def _param(check: Check, sweep: Sweep):
 
 
 def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
-    from acquire.masks import EDGE_RTOL
-
     f = sweep.freq_hz
     tol = EDGE_RTOL * max(abs(float(f[-1])), 1.0)
     if lo < f[0] - tol or hi > f[-1] + tol:
@@ -278,10 +297,6 @@ def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
             check, f"{format_frequency(lo)}..{format_frequency(hi)} is not inside the sweep "
             f"{format_frequency(f[0])}..{format_frequency(f[-1])}",
         )
-
-
-class CheckError(SweepdError):
-    """A check cannot judge this sweep."""
 
 
 def _judged(check: Check, margin: float, *, inside: bool = True) -> str:
@@ -319,11 +334,12 @@ class Verdict:
     results: tuple[CheckResult, ...]
     sweep_info: dict[str, Any] = field(default_factory=dict)
     metrics: dict[str, Any] = field(default_factory=dict)
+    decision: dict[str, Any] = field(default_factory=dict)
 
     @property
     def verdict(self) -> str:
         states = {r.verdict for r in self.results}
-        for state in ("error", "fail", "pass"):
+        for state in ("error", "fail", "indeterminate", "pass"):
             if state in states:
                 return state
         return "none"
@@ -346,11 +362,12 @@ class Verdict:
             "sweep": self.sweep_info,
             "checks": [r.to_dict() for r in self.results],
             "metrics": self.metrics,
+            "decision": self.decision or _simple_decision(),
         }
 
     def to_json(self, indent: int | None = 2) -> str:
         """Stable JSON (keys in a fixed order, no NaN or infinity)."""
-        return json.dumps(_finite_json(self.to_dict()), indent=indent, allow_nan=False,
+        return json.dumps(json_safe(self.to_dict()), indent=indent, allow_nan=False,
                           ensure_ascii=True)
 
     def summary_line(self) -> str:
@@ -376,7 +393,8 @@ class Verdict:
 
     def comment_lines(self) -> list[str]:
         """Lines for Touchstone comments (ASCII, without the leading ``!``)."""
-        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})"]
+        lines = [f"sweepd verdict: {self.verdict.upper()} (exit {self.exit_code})",
+                 f"  decision rule: {(self.decision or _simple_decision())['statement']}"]
         for r in self.results:
             lines.extend(_check_lines(r, "  ", ranges=False))
         return [_ascii(line) for line in lines]
@@ -437,14 +455,39 @@ def _ascii(text: str) -> str:
     return text.encode("ascii", "replace").decode("ascii").replace("\n", " ")
 
 
+def _simple_decision() -> dict[str, Any]:
+    from acquire.uncertainty.decision import SIMPLE
+
+    return SIMPLE.to_dict()
+
+
+def _judge(check: Check, sweep: Sweep, decision: Any, uncertainty: Any) -> CheckResult:
+    guarded = decision is not None and decision.guarded
+    if guarded and hasattr(check, "evaluate_guarded"):
+        return check.evaluate_guarded(sweep, decision, uncertainty)
+    result = check.evaluate(sweep)
+    if guarded:
+        note = {"rule": "simple", "statement": f"{check.kind} checks have no guard band: "
+                "simple acceptance"}
+        result = CheckResult(result.kind, result.name, result.verdict, result.summary,
+                             {**result.details, "decision": note}, result.message,
+                             result.mask_result)
+    return result
+
+
 def evaluate_checks(
-    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None
+    checks: list[Check], sweep: Sweep, *, metrics: bool = True, source: str | None = None,
+    decision: Any = None, uncertainty: Any = None,
 ) -> Verdict:
-    """Judge ``sweep`` with every check; errors become ``error`` results."""
+    """Judge ``sweep`` with every check; errors become ``error`` results.
+
+    ``decision`` (``acquire.uncertainty.DecisionRule``) chooses simple or guarded
+    acceptance; guarded acceptance uses ``uncertainty`` (a ``SweepUncertainty``).
+    """
     results = []
     for check in checks:
         try:
-            result = check.evaluate(sweep)
+            result = _judge(check, sweep, decision, uncertainty)
             if result.verdict != "error" and _unfinished_margin(result.details):
                 raise _check_error(check, "a margin is not a finite number; no verdict")
             results.append(result)
@@ -470,131 +513,5 @@ def evaluate_checks(
         from acquire.metrics import key_metrics
 
         key = key_metrics(sweep)
-    return Verdict(tuple(results), info, _finite_json(key))
-
-
-def _finite_json(value: Any) -> Any:
-    """Plain JSON values: numpy scalars unwrapped, NaN and infinity as ``None``."""
-    if hasattr(value, "item") and not isinstance(value, (list, dict, str)):
-        value = value.item()
-    if isinstance(value, float):
-        return value if value == value and abs(value) != float("inf") else None
-    if isinstance(value, dict):
-        return {k: _finite_json(v) for k, v in value.items()}
-    if isinstance(value, list):
-        return [_finite_json(v) for v in value]
-    return value
-
-
-# -- parsing plan entries ------------------------------------------------------------
-
-
-def parse_checks(node: Node) -> list[Check]:
-    """Validate a plan's ``checks:`` list; errors name the plan file and key path."""
-    checks: list[Check] = []
-    for item in node.elements():
-        item.mapping(CHECK_KINDS)
-        if len(item.value) != 1:
-            item.fail(f"must hold exactly one check ({', '.join(CHECK_KINDS)}), "
-                      f"got {len(item.value)} keys")
-        kind = next(iter(item.value))
-        checks.append(_PARSERS[kind](item[kind]))
-    return checks
-
-
-def mask_check(ref: str, base_dir: Path | None = None) -> MaskCheck:
-    """A mask check from a bare name (shipped library) or a path."""
-    from acquire.library import find_config
-
-    return MaskCheck(load_mask(find_config("masks", ref, base_dir)))
-
-
-def any_mask_check(ref: str, base_dir: Path | None = None) -> Check:
-    """Like ``mask_check``, but a mask file with ``domain: distance`` gives a distance check."""
-    from acquire.library import find_config
-
-    return _mask_file_check(find_config("masks", ref, base_dir))
-
-
-def _mask_file_check(path: Path) -> Check:
-    from acquire.errors import MaskError
-    from acquire.timedomain.checks import is_distance_mask, load_distance_mask
-    from acquire.yamlfile import load_yaml
-
-    if is_distance_mask(load_yaml(path, "mask", MaskError)):
-        return load_distance_mask(path)
-    return MaskCheck(load_mask(path))
-
-
-def _parse_mask(node: Node) -> Check:
-    ref = node.text()
-    try:
-        from acquire.library import find_config
-
-        path = find_config("masks", ref, node.base_dir)
-    except ConfigError as exc:
-        node.fail(str(exc))
-    return _mask_file_check(path)
-
-
-def _parse_bandwidth(node: Node) -> Check:
-    node.mapping(["below_swr", "below_return_loss", "at_least", "parameter"],
-                 required=["at_least"])
-    has_swr, has_rl = node["below_swr"].present, node["below_return_loss"].present
-    if has_swr == has_rl:
-        node.fail("needs exactly one of below_swr or below_return_loss")
-    swr_max = node["below_swr"].number(lo=1.0) if has_swr else None
-    if swr_max is not None and swr_max == 1.0:
-        node["below_swr"].fail("must be above 1 (SWR 1 is a perfect match, no bandwidth)")
-    rl = node["below_return_loss"].quantity("decibel") if has_rl else None
-    if rl is not None and rl <= 0:
-        node["below_return_loss"].fail("must be a positive return loss in dB, e.g. 10 dB")
-    at_least = node["at_least"].quantity("frequency", lo=0.0)
-    return BandwidthCheck(at_least, swr_max, rl, _reflection(node["parameter"]))
-
-
-def _parse_resonance(node: Node) -> Check:
-    node.mapping(["within", "method", "parameter"], required=["within"])
-    lo, hi = _freq_pair(node["within"])
-    method = node["method"].text("min_gamma", choices=("min_gamma", "reactance_zero"))
-    return ResonanceCheck(lo, hi, method, _reflection(node["parameter"]))
-
-
-def _parse_worst_swr(node: Node) -> Check:
-    node.mapping(["band", "at_most", "parameter"], required=["band", "at_most"])
-    lo, hi = _freq_pair(node["band"])
-    return WorstSwrCheck(lo, hi, node["at_most"].number(lo=1.0), _reflection(node["parameter"]))
-
-
-def _parse_distance(node: Node) -> Check:
-    from acquire.timedomain.checks import parse_distance_check
-
-    return parse_distance_check(node)
-
-
-def _freq_pair(node: Node) -> tuple[float, float]:
-    items = node.elements(min_len=2)
-    if len(items) != 2:
-        node.fail(f"must be a pair [low, high], got {len(items)} values")
-    lo = items[0].quantity("frequency", lo=0.0)
-    hi = items[1].quantity("frequency", lo=0.0)
-    if hi < lo:
-        node.fail(f"low end {format_frequency(lo)} lies above high end {format_frequency(hi)}")
-    return lo, hi
-
-
-def _reflection(node: Node) -> str:
-    text = node.text("S11").strip().upper()
-    if len(text) != 3 or text[0] != "S" or not text[1:].isdigit() or text[1] != text[2] \
-            or text[1] == "0":
-        node.fail(f"must be a reflection parameter such as S11 or S22, got {show(node.value)}")
-    return text
-
-
-_PARSERS = {
-    "mask": _parse_mask,
-    "bandwidth": _parse_bandwidth,
-    "resonance": _parse_resonance,
-    "worst_swr": _parse_worst_swr,
-    "distance": _parse_distance,
-}
+    rule = decision.to_dict() if decision is not None else {}
+    return Verdict(tuple(results), info, json_safe(key), rule)

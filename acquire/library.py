@@ -10,8 +10,9 @@ from __future__ import annotations
 from pathlib import Path
 
 from acquire.errors import ConfigError
+from sweepd_configs import shipped_root
 
-CONFIG_ROOT = Path(__file__).resolve().parents[1] / "configs"
+CONFIG_ROOT = shipped_root()
 KINDS = ("dialects", "calkits", "masks", "plans", "cables")
 
 

@@ -16,12 +16,13 @@ from pathlib import Path
 from typing import Any
 
 from acquire.checks import Verdict, evaluate_checks
-from acquire.journal import Journal, Planned
+from acquire.journal import JournalStore, Planned, StoredFields, journal_in
 from acquire.journal import worst_margin as journal_worst_margin
 from acquire.plan import Plan
-from acquire.runner import Session, capture_path, save_capture, utc_now
+from acquire.runner import Session, capture_path, save_capture
 from acquire.storage import free_path, sweep_stale_temps, write_new
 from acquire.sweep import Sweep
+from acquire.utc import utc_now
 from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)
@@ -116,6 +117,7 @@ class Capture:
     verdict: Verdict
     corrected: bool = False
     cal_warnings: list[str] = field(default_factory=list)
+    uncertainty: Any = None  # acquire.uncertainty.SweepUncertainty
 
 
 def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> Capture:
@@ -126,8 +128,23 @@ def capture(session: Session, cal: CalChoice, serial: str = "", **meta: Any) -> 
         sweep = cal.calset.correct(raw).with_meta(corrected=True, **notes)
     else:
         sweep = raw.with_meta(corrected=False, **notes)
-    verdict = evaluate_checks(list(session.plan.checks), sweep)
-    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings))
+    unc = capture_uncertainty(session.plan, cal.calset, sweep)
+    verdict = evaluate_checks(list(session.plan.checks), sweep, decision=session.plan.decision,
+                              uncertainty=unc)
+    return Capture(raw, sweep, verdict, cal.calset is not None, list(cal.warnings), unc)
+
+
+def capture_uncertainty(plan: Plan, calset: Any | None, sweep: Sweep) -> Any:
+    """The per-point uncertainty of a capture (acquire/uncertainty/capture.py)."""
+    from acquire.uncertainty.capture import sweep_uncertainty, unavailable
+    from acquire.uncertainty.decision import SIMPLE
+
+    if calset is None or plan.calibration is None:
+        return unavailable(sweep, "the sweep is uncorrected")
+    from acquire.calibration import load_kit
+
+    return sweep_uncertainty(sweep, calset, load_kit(plan.calibration.kit),
+                             plan.decision or SIMPLE)
 
 
 @dataclass
@@ -145,7 +162,7 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
     Order matters for crash safety: the JSON summary first, then the raw copy (if the
     plan keeps raw data), then the Touchstone file with the verdict in its comments, each
     atomically. A Touchstone file that exists is therefore complete, and so is everything
-    written before it (``Journal.reconcile`` relies on this).
+    written before it (``JournalStore.reconcile`` relies on this).
     """
     raw_path = raw_path_for(path) if plan.output.keep_raw and cap.corrected else None
     summary = summary_dict(cap, path, raw_path)
@@ -154,7 +171,10 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
                              unique=False)
     if raw_path is not None:
         save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
-    comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
+    judged = plan.checks or cap.verdict.results  # a golden capture is judged without them
+    comments = tuple(cap.verdict.comment_lines()) if judged else ()
+    if cap.uncertainty is not None:
+        comments += tuple(cap.uncertainty.comment_lines())
     final = save_capture(cap.sweep, plan, path, comments, unique=False)
     return Stored(final, summary_path, raw_path)
 
@@ -172,26 +192,34 @@ def companions(path: Path) -> tuple[Path, ...]:
 def plan_path(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
               index: int | None = None, station: str = "") -> Path:
     """A free Touchstone path for a capture, from the plan's name template."""
-    verdict = cap.verdict.verdict if plan.checks else ""
+    verdict = cap.verdict.verdict if plan.checks or cap.verdict.results else ""
     path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
                         station=station, when=utc_now())
     return free_path(path, companions)
 
 
-def journal_stored(journal: Journal, planned: Planned, cap: Capture, stored: Stored) -> None:
+def journal_stored(journal: JournalStore, planned: Planned, cap: Capture,
+                   stored: Stored) -> None:
     """Mark a planned measurement stored with its verdict, metrics and calibration."""
+    journal.store_measurement(planned, touchstone=stored.touchstone, summary=stored.summary,
+                              raw_touchstone=stored.raw, fields=stored_fields(cap))
+
+
+def stored_fields(cap: Capture, *, note: str | None = None,
+                  with_verdict_json: bool = True) -> StoredFields:
+    """What the journal keeps of a capture: verdict, margin, metrics, calibration."""
     meta = cap.sweep.meta
     verdict = cap.verdict
-    journal.store_measurement(
-        planned, touchstone=stored.touchstone, summary=stored.summary,
-        raw_touchstone=stored.raw,
+    return StoredFields(
         verdict=verdict.verdict if verdict.results else None,
         exit_code=verdict.exit_code if verdict.results else None,
-        worst_margin=worst_margin(verdict), metrics=verdict.metrics,
-        verdict_json=verdict.to_json(indent=None),
+        worst_margin=worst_margin(verdict),
+        metrics_json=json.dumps(verdict.metrics),
+        verdict_json=verdict.to_json(indent=None) if with_verdict_json else None,
         cal_id=meta.get("cal_id") if cap.corrected else None,
         cal_age_s=meta.get("cal_age_s") if cap.corrected else None,
         instrument=meta.get("instrument"),
+        note=note,
     )
 
 
@@ -225,6 +253,8 @@ def summary_dict(cap: Capture, touchstone: Path | None = None,
         } if cap.corrected else None,
         "warnings": list(cap.cal_warnings),
     }
+    if cap.uncertainty is not None:
+        data["uncertainty"] = json.loads(json.dumps(cap.uncertainty.to_dict(), allow_nan=False))
     return data
 
 
@@ -264,7 +294,7 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
     stored after; faults are journalled with the run marked failed.
     """
     sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
-    with Journal.in_folder(out_dir) as journal:
+    with journal_in(out_dir) as journal:
         run_id = journal.start_run(kind, plan.name, plan_path=str(plan.source),
                                    resource=resource or plan.instrument.resource)
         try:

@@ -10,7 +10,7 @@ from __future__ import annotations
 import logging
 import time
 from dataclasses import asdict, dataclass
-from datetime import datetime, timezone
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
@@ -19,24 +19,9 @@ import numpy as np
 from acquire.plan import Plan
 from acquire.storage import safe_component
 from acquire.sweep import Sweep
+from acquire.utc import compact_utc, utc_now, utc_text
 
 log = logging.getLogger(__name__)
-
-
-def utc_now() -> datetime:
-    return datetime.now(timezone.utc)
-
-
-def iso_utc(moment: datetime) -> str:
-    """ISO 8601 UTC with milliseconds: 2026-12-02T06:10:00.123Z."""
-    return moment.astimezone(timezone.utc).isoformat(timespec="milliseconds").replace(
-        "+00:00", "Z"
-    )
-
-
-def compact_utc(moment: datetime) -> str:
-    """File-name form of a UTC time: 20261202T061000Z."""
-    return moment.astimezone(timezone.utc).strftime("%Y%m%dT%H%M%SZ")
 
 
 def stimulus_meta(stimulus: Any) -> dict[str, float | int]:
@@ -66,12 +51,23 @@ class Session:
             data_format=spec.data_format,
             byte_order=spec.byte_order,
             serial={"baud_rate": spec.baud_rate} if spec.baud_rate else None,
+            max_sweep_time_s=spec.max_sweep_time_s,
         )
         self.identity_text = ""
         self.applied = self.plan.stimulus
 
     def open(self) -> Session:
-        self.analyzer.open()
+        from drivers.errors import ConnectError
+
+        try:
+            self.analyzer.open()
+        except ConnectError as exc:  # a busy instrument: say who holds it, in words
+            from acquire.holders import busy_message
+
+            words = busy_message(str(exc), self.resource)
+            if words is None:
+                raise
+            raise ConnectError(words) from None
         ident = self.analyzer.identity
         self.identity_text = ",".join(
             (ident.maker, ident.model, ident.serial, ident.firmware)
@@ -106,7 +102,7 @@ class Session:
                 "resource": self.resource,
                 "dialect": self.dialect.name,
                 "stimulus": stimulus_meta(self.applied),
-                "started_utc": iso_utc(started),
+                "started_utc": utc_text(started),
                 "sweep_s": round(duration, 6),
                 **meta,
             },

@@ -31,7 +31,7 @@ from simulators.calkit import DEFAULT_KIT, load_kit
 from simulators.clock import SimClock
 from simulators.devices import Device, device_params, make_device, shifted
 from simulators.drift import Drift
-from simulators.errorbox import measure, reference_plane_terms
+from simulators.errorbox import measure, reference_plane_terms, switch_terms
 from simulators.errors import SimError
 from simulators.lines import coax_gamma_l, uniform_line
 from simulators.lot import PRESET_LOTS, Lot
@@ -187,6 +187,11 @@ class Bench:
         with self._lock:
             dist = self._disturbance if disturbed else None
         return self._terms(f, dist)
+
+    def switch_terms(self, freq_hz: np.ndarray, disturbed: bool = True
+                     ) -> tuple[np.ndarray, np.ndarray]:
+        """The switch terms (Γf = a2/b2, Γr = a1/b1) at ``freq_hz``, noise-free."""
+        return switch_terms(self.error_terms(freq_hz, disturbed))
 
     def standard(self, name: str, freq_hz: np.ndarray) -> np.ndarray:
         """What the fixture presents (n, 2, 2) for a standard, from the cal kit file."""

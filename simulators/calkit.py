@@ -29,8 +29,9 @@ import numpy as np
 from simulators.errors import SimError
 from simulators.lines import reflection, two_port, uniform_line
 from simulators.quantities import plain_number, quantity
+from sweepd_configs import shipped_dir
 
-KIT_DIR = Path(__file__).resolve().parents[1] / "configs" / "calkits"
+KIT_DIR = shipped_dir("calkits")
 DEFAULT_KIT = "generic-sma-50"
 
 _C_SCALE = (1e-15, 1e-27, 1e-36, 1e-45)

@@ -2,12 +2,15 @@
 
 One-port: ``resonator`` (an antenna-like series or parallel RLC behind a short line) and
 ``impedance`` (a fixed R + jX, e.g. a 25 Ω check standard). Two-port: ``cable`` (lossy,
-slightly mismatched line) and ``filter`` (coupled-resonator band-pass). Each device gives
-its true S (n, p, p) on any grid and can be shifted in frequency by the drift model.
+slightly mismatched line), ``filter`` (coupled-resonator band-pass) and ``attenuator``
+(resistive pi pad, optionally designed for another impedance, between short lines). Each
+device gives its true S (n, p, p) on any grid and can be shifted in frequency by the drift
+model.
 
 Presets (plain names for the demo and tests): ``patch-2g45``, ``whip-915``, ``cable-1m``,
-``bandpass-2g45``, ``check-25ohm``. The RLC element values follow Pozar, Microwave
-Engineering, 4th ed., ch. 6: series Q0 = ω0L/R, parallel Q0 = R/(ω0L), ω0 = 1/√(LC).
+``bandpass-2g45``, ``check-25ohm``, ``attenuator-10db``. The RLC element values follow
+Pozar, Microwave Engineering, 4th ed., ch. 6: series Q0 = ω0L/R, parallel Q0 = R/(ω0L),
+ω0 = 1/√(LC).
 """
 
 from __future__ import annotations
@@ -21,7 +24,7 @@ import numpy as np
 
 from simulators.errors import SimError
 from simulators.filters import bandpass_s
-from simulators.lines import coax_gamma_l, reflection, two_port, uniform_line
+from simulators.lines import abcd_to_s, coax_gamma_l, reflection, two_port, uniform_line
 
 Z0 = 50.0
 
@@ -133,8 +136,39 @@ class BandPass:
                           self.ripple_db, self.q, Z0)
 
 
-Device = Resonator | Impedance | Cable | BandPass
-KINDS: dict[str, type] = {c.kind: c for c in (Resonator, Impedance, Cable, BandPass)}
+@dataclass(frozen=True)
+class Attenuator:
+    """Resistive pi pad of ``attenuation_db`` designed for ``z_ohm`` (50: matched), with a
+    lossless 50 Ω line of ``delay_s`` / 2 on each side (its connectors).
+
+    Pad values (Pozar ch. 4 ABCD of shunt-series-shunt): K = 10^(A/20),
+    R_shunt = Z(K + 1)/(K − 1), R_series = Z(K² − 1)/(2K).
+    """
+
+    attenuation_db: float = 10.0
+    z_ohm: float = 50.0
+    delay_s: float = 60e-12
+    kind: ClassVar[str] = "attenuator"
+    ports: ClassVar[int] = 2
+    shift_field: ClassVar[str | None] = None
+
+    def check(self) -> None:
+        _positive(self, "attenuation_db", "z_ohm")
+        _non_negative(self, "delay_s")
+
+    def s(self, freq_hz: np.ndarray) -> np.ndarray:
+        f = np.asarray(freq_hz, dtype=np.float64)
+        k = 10.0 ** (self.attenuation_db / 20.0)
+        y = (k - 1.0) / (self.z_ohm * (k + 1.0))  # shunt conductance
+        r = self.z_ohm * (k * k - 1.0) / (2.0 * k)  # series resistance
+        one = np.ones(f.shape, dtype=np.complex128)
+        a, b, c, d = one + r * y, r * one, y * (2.0 + r * y) * one, one + r * y
+        pad = abcd_to_s(a, b, c, d, Z0)
+        return pad * np.exp(-2j * np.pi * f * self.delay_s)[:, None, None]
+
+
+Device = Resonator | Impedance | Cable | BandPass | Attenuator
+KINDS: dict[str, type] = {c.kind: c for c in (Resonator, Impedance, Cable, BandPass, Attenuator)}
 
 PRESETS: dict[str, tuple[str, dict[str, Any]]] = {
     "patch-2g45": ("resonator", {"f0_hz": 2.45e9, "q": 14.0, "r_ohm": 58.0,
@@ -145,6 +179,8 @@ PRESETS: dict[str, tuple[str, dict[str, Any]]] = {
     "bandpass-2g45": ("filter", {"center_hz": 2.45e9, "bandwidth_hz": 100e6, "order": 3,
                                  "ripple_db": 0.5, "q": 400.0}),
     "check-25ohm": ("impedance", {"r_ohm": 25.0, "x_ohm": 0.0}),
+    "attenuator-10db": ("attenuator", {"attenuation_db": 10.0, "z_ohm": 50.0,
+                                       "delay_s": 60e-12}),
 }
 
 

@@ -17,6 +17,13 @@ e30; reverse e33', e22', e23'e32', e23'e01', e11', e03') as written in R. B. Mar
 
 ``error_terms`` returns them under the keys e00, e11, e10e01, e10e32, e22, e30, e33r, e22r,
 e23e32r, e23e01r, e11r, e03r ("r" = primed, reverse).
+
+The box is physical: each port is an 8-term error two-port and the switch, seen from the
+terminated port's receiver, reflects Γf = a2/b2 (port 1 driving) or Γr = a1/b1 (port 2
+driving). A port's load match then differs from its source match by the switch
+(Marks 1997): e22 = e22' + e23'e32'·Γf/(1 − e33'·Γf), and the reverse tracking obeys
+e10e32·(1 − e33'Γf) · e23'e01'·(1 − e00Γr) = e10e01 · e23'e32'. ``switch_terms`` gives
+Γf and Γr, which a calibration with an unknown thru needs.
 """
 
 from __future__ import annotations
@@ -132,12 +139,27 @@ def reference_plane_terms(freq_hz: np.ndarray,
     p1, p2 = ports
     if fixture is not None:
         p1 = p1.through(*fixture)
-    return {
+    terms = {
         "e00": p1.directivity, "e11": p1.source_match, "e10e01": p1.tracking,
         "e10e32": p1.one_way * p2.receive, "e22": p2.load_match, "e30": isolation(freq_hz, 0.2),
         "e33r": p2.directivity, "e22r": p2.source_match, "e23e32r": p2.tracking,
-        "e23e01r": p2.one_way * p1.receive, "e11r": p1.load_match, "e03r": isolation(freq_hz, 1.1),
+        "e11r": p1.load_match, "e03r": isolation(freq_hz, 1.1),
     }
+    gf, gr = switch_terms(terms)
+    eight_forward = terms["e10e32"] * (1 - terms["e33r"] * gf)
+    eight_reverse = terms["e10e01"] * terms["e23e32r"] / eight_forward
+    terms["e23e01r"] = eight_reverse / (1 - terms["e00"] * gr)
+    return terms
+
+
+def switch_terms(terms: dict[str, np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Γf = a2/b2 (port 1 driving) and Γr = a1/b1 (port 2 driving) of the switch, from the
+    difference between each port's load match and source match (see the module doc)."""
+    d2 = terms["e22"] - terms["e22r"]
+    gf = d2 / (terms["e23e32r"] + terms["e33r"] * d2)
+    d1 = terms["e11r"] - terms["e11"]
+    gr = d1 / (terms["e10e01"] + terms["e00"] * d1)
+    return gf, gr
 
 
 def measure(terms: dict[str, np.ndarray], s: np.ndarray) -> np.ndarray:

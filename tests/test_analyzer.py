@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 import yaml
 
+import simulators.server as server
 from drivers.analyzer import Analyzer, Identity
 from drivers.dialect import DIALECT_DIR, load_dialect
 from drivers.errors import (
@@ -30,8 +31,6 @@ from drivers.errors import (
     StimulusError,
 )
 from drivers.stimulus import Stimulus
-
-server = pytest.importorskip("simulators.server")
 
 STIM = Stimulus(2.3e9, 2.6e9, 201, -10.0, 1e3, 1)
 TWO_PORT = ["S11", "S21", "S12", "S22"]

@@ -1,8 +1,10 @@
 """Error models: solve, correct, embed; response variants; transmission tracking.
 
-Oracles: scikit-rf 2.2 ``OnePort`` and ``TwelveTerm`` (tests only), the closed forms and
-the response-calibration table of the one-port model (R. B. Marks, 50th ARFTG Digest,
-1997; table computed from that model).
+Oracles: scikit-rf 2.2 ``OnePort`` and ``TwelveTerm`` (tests only), the closed forms of
+the one-port error model, and a worst-case table of response calibrations whose values are
+recalled from a published comparison (from memory: the attribution to R. B. Marks's
+one-port error-model work, 50th ARFTG Digest, 1997, is uncertain) and reproduced here by
+computing from that model.
 """
 
 from __future__ import annotations
@@ -158,9 +160,10 @@ RESPONSE_TABLE = {  # DUT |Γ|: short only, open only, open/short average, short
 def test_response_calibration_worst_case_table() -> None:
     """Worst |Γ error| over DUT phase for |e00| = 0.05, |e11| = 0.1, |e10e01| = 0.8.
 
-    The table (4 significant digits) does not state the error-term phases; these two
-    (e00 at 176.73°, e11 at 108.93°, tracking at 0°) were found by a least-squares fit to
-    the published numbers, after which all twelve response entries agree to rounding.
+    The table (4 significant digits, values from memory) does not state the error-term
+    phases; these two (e00 at 176.73°, e11 at 108.93°, tracking at 0°) were found by a
+    least-squares fit to the recalled numbers, after which all twelve response entries,
+    computed from the model, agree to rounding. The 3-term column is the model's identity.
     """
     ph = np.linspace(0, 2 * np.pi, 3601)[:-1]
     box = OnePortTerms(0.05 * np.exp(1j * np.radians(176.73)),
@@ -209,7 +212,7 @@ def _two_port(freq: rf.Frequency, s11, s21, s12, s22) -> rf.Network:
     return rf.Network(frequency=freq, s=s, z0=50)
 
 
-def test_enhanced_response_thru_solves_load_match_and_tracking_exactly() -> None:
+def test_one_path_thru_solves_load_match_and_tracking_exactly() -> None:
     """Raw thru readings from scikit-rf's 12-term forward model (TwelveTerm.embed); our
     thru solve recovers e22 and e10e32 (two-port model of Kruppa and Sodomsky, 1971)."""
     rng = np.random.default_rng(11)
@@ -229,7 +232,7 @@ def test_enhanced_response_thru_solves_load_match_and_tracking_exactly() -> None
                   - coefs["forward transmission tracking"]).max() < 1e-12
 
 
-def test_enhanced_response_corrects_a_device_exactly_when_load_match_is_zero() -> None:
+def test_one_path_corrects_a_device_exactly_when_load_match_is_zero() -> None:
     """S21 = (S21m − e30)(1 − e11·S11)/e10e32 is exact for e22 = 0 (scikit-rf 12-term
     forward model as the source of raw data)."""
     rng = np.random.default_rng(12)
@@ -255,8 +258,8 @@ def test_enhanced_response_corrects_a_device_exactly_when_load_match_is_zero() -
     assert np.abs(again - raw[:, 1, 0]).max() < 1e-12
 
 
-def test_thru_response_normalises_cable_loss() -> None:
-    """With matched ports (e11 = e22 = 0) the thru response is exact: a 1 m cable."""
+def test_transmission_normalisation_of_cable_loss() -> None:
+    """With matched ports (e11 = e22 = 0) transmission normalisation is exact: a 1 m cable."""
     f = np.linspace(10e6, 6e9, 201)
     w = 2 * np.pi * f
     tracking = 0.6 * np.exp(-1j * w * 4e-9)
@@ -267,7 +270,7 @@ def test_thru_response_normalises_cable_loss() -> None:
     assert np.abs(terms.correct(box.embed(cable)) - cable).max() < 1e-14
 
 
-def test_enhanced_response_from_kit_via_methods_corrects_sweep() -> None:
+def test_one_path_two_port_from_kit_via_methods_corrects_sweep() -> None:
     """Whole path: kit models, raw readings keyed '<standard>.<param>', Sweep in and out."""
     kit = load_kit("generic-sma-50")
     rng = np.random.default_rng(2)
@@ -284,7 +287,7 @@ def test_enhanced_response_from_kit_via_methods_corrects_sweep() -> None:
     t11, t21 = kit.thru_s("thru", f)
     thru = twelve.embed(_two_port(freq, t11, t21, t21, t11)).s
     raw["thru.S11"], raw["thru.S21"] = thru[:, 0, 0], thru[:, 1, 0]
-    solution = solve("enhanced-response", f, raw, kit)
+    solution = solve("one-path-two-port", f, raw, kit)
     assert solution.model.params == ("S11", "S21")
     dut = (0.2 + 0.1j + zero, 0.7j + zero, 0.7j + zero, 0.1 + zero)
     sweep = Sweep(f, twelve.embed(_two_port(freq, *dut)).s)
@@ -301,19 +304,20 @@ def test_solve_refuses_missing_readings_and_out_of_band_kits() -> None:
     with pytest.raises(CalError, match=r"no raw reading 'load.S11' \(have: open.S11, short.S11\)"):
         solve("one-port", f, {"open.S11": f * 0j, "short.S11": f * 0j}, kit)
     with pytest.raises(CalError, match="specified from 0 Hz to 18 GHz; the sweep covers"):
-        solve("response-open", np.linspace(1e9, 20e9, 5), {"open.S11": np.ones(5)}, kit)
-    with pytest.raises(CalError, match="unknown calibration method 'two-port'"):
-        solve("two-port", f, {}, kit)
-    with pytest.raises(CalError, match="uses open; got standards of kind short"):
-        solve("response-open", f, {"short.S11": np.ones(5)}, kit, standards=("short",))
+        solve("open-normalisation", np.linspace(1e9, 20e9, 5), {"open.S11": np.ones(5)}, kit)
+    with pytest.raises(CalError, match="unknown calibration method 'four-port'"):
+        solve("four-port", f, {}, kit)
+    with pytest.raises(CalError,
+                       match="open-normalisation calibration uses open; got standards of kind sho"):
+        solve("open-normalisation", f, {"short.S11": np.ones(5)}, kit, standards=("short",))
 
 
-def test_thru_response_on_port_two_corrects_s12() -> None:
+def test_transmission_normalisation_on_port_two_corrects_s12() -> None:
     kit = load_kit("ideal")
     f = np.linspace(10e6, 6e9, 51)
     box = TransmissionTerms(0.5 * np.exp(-2j * np.pi * f * 3e-9), 1e-3, 0)
     raw = {"thru.S12": box.embed(np.ones(f.size)), "isolation.S12": box.embed(np.zeros(f.size))}
-    solution = solve("thru-response", f, raw, kit, port=2, isolation="isolation.S12")
+    solution = solve("transmission-normalisation", f, raw, kit, port=2, isolation="isolation.S12")
     assert solution.model.params == ("S12",)
     s = np.zeros((f.size, 2, 2), complex)
     s[:, 0, 1] = box.embed(0.25j)

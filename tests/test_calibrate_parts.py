@@ -150,7 +150,7 @@ def test_thru_checks_on_synthetic_readings() -> None:
     """Readings through a known 3-term error box (forward model: R. B. Marks, 50th ARFTG
     Digest, 1997): a thru whose port-1 side sees an open end is named; a good one passes."""
     kit = load_kit("generic-sma-50")
-    steps = build_steps("enhanced-response", kit, ports=2)
+    steps = build_steps("one-path-two-port", kit, ports=2)
     f = STIM.frequencies()
     w = 2 * np.pi * f
     box = OnePortTerms(0.03 * np.exp(-1j * w * 0.3e-9), 0.08 * np.exp(-1j * w * 0.5e-9),

@@ -9,12 +9,13 @@ from __future__ import annotations
 
 import io
 import sys
-import time
+from datetime import timedelta
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+import acquire.utc
 from acquire.calibration import CalSet, load_kit
 from acquire.cli import main
 from acquire.errors import CalError
@@ -171,8 +172,14 @@ def test_run_refuses_a_stale_or_mismatched_cal_set(sim: SimServer, tmp_path: Pat
     out = tmp_path / "out"
     stale = _plan(tmp_path, "aging", calibration="method: one-port\nmax_age: 1 s")
     _cal(stale, sim, out)
-    time.sleep(1.2)
-    assert main(["run", str(stale), "--resource", sim.tcp_resource, "--output", str(out)]) == 2
+    # two seconds later, by an injected clock rather than by sleeping past the window
+    later = acquire.utc.utc_now() + timedelta(seconds=2)
+    previous = acquire.utc.set_clock(lambda: later)
+    try:
+        assert main(["run", str(stale), "--resource", sim.tcp_resource,
+                     "--output", str(out)]) == 2
+    finally:
+        acquire.utc.set_clock(previous)
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1
     assert "old (max 1 s)" in err and "sweepd calibrate" in err
@@ -313,10 +320,10 @@ def test_verification_device_against_its_reference_file(sim: SimServer, tmp_path
     assert set((tmp_path / "out" / "cal").glob("*.calset")) == before
 
 
-def test_enhanced_response_two_port_with_a_missing_thru(sim: SimServer, tmp_path: Path) -> None:
+def test_one_path_two_port_with_a_missing_thru(sim: SimServer, tmp_path: Path) -> None:
     sim.bench.set_device("cable-1m")
     plan_path = _plan(tmp_path, "cable-test", measure="two-port",
-                      calibration="method: enhanced-response", start="10 MHz", stop="3 GHz")
+                      calibration="method: one-path-two-port", start="10 MHz", stop="3 GHz")
     outcome, text = _cal(plan_path, sim, tmp_path / "out", script="open short load load")
     assert "the THRU step reads S21 at" in text and "nothing seems to join the ports" in text
     assert outcome.exit_code == 0
@@ -334,7 +341,7 @@ def test_enhanced_response_two_port_with_a_missing_thru(sim: SimServer, tmp_path
 
 
 def test_response_method_says_what_stays_uncorrected(sim: SimServer, tmp_path: Path) -> None:
-    plan_path = _plan(tmp_path, calibration="method: response-open")
+    plan_path = _plan(tmp_path, calibration="method: open-normalisation")
     outcome, text = _cal(plan_path, sim, tmp_path / "out")
     assert "[1/1] OPEN" in text
     assert "leaves directivity and source match uncorrected" in text
@@ -360,7 +367,7 @@ def test_plans_that_cannot_be_calibrated(tmp_path: Path, capsys: pytest.CaptureF
     whip = ROOT / "configs" / "plans" / "whip-915.yaml"
     assert main(["calibrate", str(whip)]) == 2
     assert "no calibration section" in capsys.readouterr().err
-    thru_on_one_port = _plan(tmp_path, calibration="method: thru-response")
+    thru_on_one_port = _plan(tmp_path, calibration="method: transmission-normalisation")
     assert main(["calibrate", str(thru_on_one_port)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "needs a thru between two ports" in err
@@ -391,10 +398,11 @@ def test_confirm_asks_before_each_switched_step(sim: SimServer, tmp_path: Path) 
     assert out.count("load connected") == 2
 
 
-def test_thru_response_normalises_transmission(sim: SimServer, tmp_path: Path) -> None:
+def test_transmission_normalisation_of_a_cable(sim: SimServer, tmp_path: Path) -> None:
     sim.bench.set_device("cable-1m")
     plan_path = _plan(tmp_path, "cable-thru", measure="two-port",
-                      calibration="method: thru-response", start="10 MHz", stop="3 GHz")
+                      calibration="method: transmission-normalisation", start="10 MHz",
+                      stop="3 GHz")
     outcome, text = _cal(plan_path, sim, tmp_path / "out")
     assert "[1/1] THRU  ·thru" in text and "thru connected" in text
     assert outcome.calset.model.params == ("S21",)

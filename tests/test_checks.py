@@ -11,14 +11,8 @@ import json
 import numpy as np
 import pytest
 
-from acquire.checks import (
-    BandwidthCheck,
-    ResonanceCheck,
-    WorstSwrCheck,
-    evaluate_checks,
-    mask_check,
-    parse_checks,
-)
+from acquire.check_parse import mask_check, parse_checks
+from acquire.checks import BandwidthCheck, ResonanceCheck, WorstSwrCheck, evaluate_checks
 from acquire.errors import MaskError, PlanError
 from acquire.sweep import Sweep
 from acquire.yamlfile import Node
@@ -166,14 +160,19 @@ def test_verdict_json_is_stable_and_documented():
     verdict = evaluate_checks(parse_checks(plan_node(PLAN)), Sweep(F, antenna(F)))
     d = json.loads(verdict.to_json())
     assert list(d) == ["format", "version", "verdict", "exit_code", "summary", "sweep",
-                       "checks", "metrics"]
+                       "checks", "metrics", "decision"]
+    assert d["decision"]["rule"] == "simple"
     assert d["format"] == "sweepd-verdict" and d["version"] == 1
     assert [c["kind"] for c in d["checks"]] == ["mask", "bandwidth", "resonance", "worst_swr"]
     for c in d["checks"]:
         assert {"kind", "name", "verdict", "summary", "message"} <= set(c)
     seg = d["checks"][0]["segments"][0]
     assert {"worst", "failing_ranges_hz", "from_hz", "to_hz", "quantity", "parameter"} <= set(seg)
-    assert verdict.to_json() == verdict.to_json()
+    # stable: a verdict judged again from the same data writes the same text, and that
+    # text is already in the canonical form (key order kept, no NaN or infinity)
+    again = evaluate_checks(parse_checks(plan_node(PLAN)), Sweep(F, antenna(F)))
+    assert again.to_json() == verdict.to_json()
+    assert json.dumps(d, indent=2, allow_nan=False, ensure_ascii=True) == verdict.to_json()
     # Every key named in the README's verdict section exists.
     from acquire.library import library_dir
 

@@ -19,7 +19,7 @@ import pytest
 from acquire.commands import check as check_cmd
 from acquire.commands import plot as plot_cmd
 from acquire.errors import ConfigError
-from acquire.plots import PlotError
+from acquire.plotting import PlotError
 from acquire.sweep import Sweep
 
 
@@ -46,16 +46,15 @@ def run(module, argv):
 
 @pytest.fixture
 def touchstone():
-    """Our Touchstone module; the command tests need its reader."""
-    ts = pytest.importorskip("acquire.touchstone")
-    if not hasattr(ts, "read_touchstone"):
-        pytest.skip("acquire.touchstone.read_touchstone not available yet")
+    """Our Touchstone module; the command tests need its reader and writer."""
+    import acquire.touchstone as ts
+
     return ts
 
 
 def skrf_file(tmp_path, name, s, f=F):
     """Write a Touchstone file with scikit-rf (the outside writer)."""
-    rf = pytest.importorskip("skrf")
+    import skrf as rf
     s = np.asarray(s)
     if s.ndim == 1:
         s = s.reshape(-1, 1, 1)
@@ -114,8 +113,6 @@ def test_mask_outside_the_file_sweep_is_exit_2(tmp_path, touchstone, capsys):
 
 
 def test_same_verdict_for_a_scikit_rf_file_and_our_own(tmp_path, touchstone, capsys):
-    if not hasattr(touchstone, "write_touchstone"):
-        pytest.skip("acquire.touchstone.write_touchstone not available yet")
     f = np.linspace(10e6, 6e9, 601)
     s = np.zeros((f.size, 2, 2), complex)
     s[:, 0, 0] = s[:, 1, 1] = 0.08 * np.exp(1j * f / 3e8) * (1 + f / 6e9)  # fails at 6 GHz
@@ -183,7 +180,8 @@ def test_plot_command_default_output_and_exit_codes(tmp_path, touchstone, capsys
 
 def test_offline_check_repeats_the_capture_time_verdict(tmp_path, touchstone, capsys):
     # Capture time: judge the sweep, write the verdict into the Touchstone comments.
-    from acquire.checks import evaluate_checks, mask_check
+    from acquire.check_parse import mask_check
+    from acquire.checks import evaluate_checks
 
     sweep = Sweep(F, antenna(F, f0=2.48e9), meta={"serial": "P-0007"})
     at_capture = evaluate_checks([mask_check("patch-2g45")], sweep)
@@ -200,3 +198,13 @@ def test_offline_check_repeats_the_capture_time_verdict(tmp_path, touchstone, ca
     assert seg_now["worst"]["freq_hz"] == pytest.approx(seg_then["worst"]["freq_hz"], rel=1e-12)
     assert seg_now["worst"]["value"] == pytest.approx(seg_then["worst"]["value"], rel=1e-12)
     assert np.allclose(seg_now["failing_ranges_hz"], seg_then["failing_ranges_hz"], rtol=1e-12)
+
+
+def test_check_with_a_plan_without_checks_says_so(tmp_path):
+    plan = tmp_path / "bare.yaml"
+    plan.write_text("plan: bare\ninstrument: {resource: 'TCPIP::127.0.0.1::5025::SOCKET', "
+                    "dialect: scpi-generic}\nstimulus: {start: 2.3 GHz, stop: 2.6 GHz, "
+                    "points: 11, power: -10 dBm, if_bandwidth: 1 kHz}\nmeasure: S11\n")
+    with pytest.raises(ConfigError, match=r"plan .*bare.yaml has no checks") as info:
+        run(check_cmd, [str(tmp_path / "x.s1p"), "--plan", str(plan)])
+    assert "\n" not in str(info.value)

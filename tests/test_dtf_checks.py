@@ -15,7 +15,8 @@ import pytest
 from dtf_line import line_s11
 from schema_support import one_json_object, validate
 
-from acquire.checks import evaluate_checks, parse_checks
+from acquire.check_parse import parse_checks
+from acquire.checks import evaluate_checks
 from acquire.cli import main
 from acquire.errors import ConfigError, MaskError, PlanError
 from acquire.plan import load_plan

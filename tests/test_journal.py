@@ -1,7 +1,9 @@
-"""The journal: schema versioning, pending-then-stored measurements, crash reconciliation."""
+"""The journal: schema versioning, pending-then-stored measurements, crash reconciliation,
+one meaning per state."""
 
 from __future__ import annotations
 
+import json
 import sqlite3
 import threading
 from pathlib import Path
@@ -9,38 +11,57 @@ from pathlib import Path
 import pytest
 
 from acquire.errors import JournalError
-from acquire.journal import SCHEMA_VERSION, Journal
+from acquire.journal import StoredFields, journal_in, open_journal
+from acquire.journal.sqlite_schema import SCHEMA_VERSION
 
 
-def test_schema_created_in_wal_mode(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j:
+def raw(folder: Path, sql: str, params: tuple = ()) -> list[sqlite3.Row]:
+    """Read the file with a plain connection, as another program would."""
+    db = sqlite3.connect(folder / "journal.sqlite")
+    db.row_factory = sqlite3.Row
+    try:
+        return db.execute(sql, params).fetchall()
+    finally:
+        db.close()
+
+
+def test_schema_created_in_wal_mode_with_user_version(tmp_path: Path) -> None:
+    with journal_in(tmp_path) as j:
         assert j.schema_version == SCHEMA_VERSION
-        assert j.query_one("PRAGMA journal_mode")[0] == "wal"
-    # reopening an existing journal keeps it
-    with Journal.in_folder(tmp_path) as j:
+    assert raw(tmp_path, "PRAGMA journal_mode")[0][0] == "wal"
+    assert raw(tmp_path, "PRAGMA user_version")[0][0] == SCHEMA_VERSION
+    # older sweepd read the version from meta: it must see the newer one and refuse
+    assert raw(tmp_path, "SELECT value FROM meta")[0][0] == str(SCHEMA_VERSION)
+    with journal_in(tmp_path) as j:  # reopening an existing journal keeps it
         assert j.schema_version == SCHEMA_VERSION
 
 
 def test_newer_schema_is_refused(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j, j.transaction() as db:
-        db.execute("UPDATE meta SET value = '99' WHERE key = 'schema_version'")
+    journal_in(tmp_path).close()
+    db = sqlite3.connect(tmp_path / "journal.sqlite")
+    db.execute("PRAGMA user_version = 99")
+    db.close()
     with pytest.raises(JournalError, match="schema version 99 is newer"):
-        Journal.in_folder(tmp_path)
+        journal_in(tmp_path)
+    with pytest.raises(JournalError, match="schema version 99 is newer"):
+        journal_in(tmp_path, read_only=True)
 
 
 def test_not_a_database(tmp_path: Path) -> None:
     (tmp_path / "journal.sqlite").write_bytes(b"this is not sqlite" * 100)
     with pytest.raises(JournalError, match=r"journal .*journal\.sqlite"):
-        Journal.in_folder(tmp_path)
+        journal_in(tmp_path)
 
 
 def test_measurement_lifecycle_and_attempts(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j:
+    with journal_in(tmp_path) as j:
         run = j.start_run("station", "patch-line-a", station="bench-3")
         p1 = j.plan_measurement(run, 0, tmp_path / "a.s1p", serial="PA-1")
         assert p1.attempt == 1
-        j.store_measurement(p1, touchstone=tmp_path / "a.s1p", summary=None, verdict="fail",
-                            exit_code=1, worst_margin=-0.2, metrics={"S11": {"swr_min": 1.2}})
+        j.store_measurement(p1, touchstone=tmp_path / "a.s1p", summary=None,
+                            raw_touchstone=None,
+                            fields=StoredFields(verdict="fail", exit_code=1, worst_margin=-0.2,
+                                                metrics_json='{"S11": {"swr_min": 1.2}}'))
         p2 = j.plan_measurement(run, 1, tmp_path / "b.s1p", serial="PA-1")
         assert p2.attempt == 2  # a retest is recorded as such
         golden = j.plan_measurement(run, 2, tmp_path / "g.s1p", serial="GOLD", golden=True)
@@ -48,52 +69,88 @@ def test_measurement_lifecycle_and_attempts(tmp_path: Path) -> None:
         with pytest.raises(JournalError, match="already journalled"):
             j.plan_measurement(run, 1, tmp_path / "c.s1p", serial="PA-2")
         j.end_run(run)
-        rows = j.query("SELECT seq, state, verdict FROM measurements ORDER BY seq")
-        assert [tuple(r) for r in rows] == [(0, "stored", "fail"), (1, "pending", None),
-                                            (2, "pending", None)]
-        assert j.query_one("SELECT state FROM runs")[0] == "finished"
+        rows = j.run_measurements(run)
+        assert [(r["seq"], r["state"], r["verdict"]) for r in rows] == [
+            (0, "stored", "fail"), (1, "pending", None), (2, "pending", None)]
+        assert j.run(run)["state"] == "finished"
+        assert j.attempts("patch-line-a", "PA-1") == 1
 
 
-def test_reconcile_adopts_complete_files_and_marks_the_rest_missed(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j:
+def test_reconcile_adopts_complete_files_and_marks_the_rest_interrupted(tmp_path: Path) -> None:
+    with journal_in(tmp_path) as j:
         run = j.start_run("soak", "drift")
         done = j.plan_measurement(run, 0, tmp_path / "s0.s1p")
         lost = j.plan_measurement(run, 1, tmp_path / "s1.s1p")
         (tmp_path / "s0.s1p").write_text("complete file")
         (tmp_path / "s1.json").write_text("{}")  # written ahead; its capture never landed
         (tmp_path / "s1.raw.s1p").write_text("raw")
-        assert j.reconcile() == [(done.id, "stored"), (lost.id, "missed")]
+        assert j.reconcile() == [(done.id, "stored"), (lost.id, "interrupted")]
         assert j.reconcile() == []
         assert sorted(p.name for p in tmp_path.iterdir()
                       if not p.name.startswith("journal")) == ["s0.s1p"]
+        assert j.state_counts(run) == ({"stored": 1, "interrupted": 1}, 1)
 
 
-def test_missed_sweeps_and_faults(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j:
+def test_missed_means_due_but_never_taken_and_never_overwrites_a_row(tmp_path: Path) -> None:
+    """One meaning for 'missed': a new row for an index that was due and not taken. An
+    index already journalled (pending, stored, ...) keeps its row and state."""
+    with journal_in(tmp_path) as j:
         run = j.start_run("soak", "drift")
-        j.record_missed(run, 5, "instrument unreachable")
-        j.record_fault(run, "ConnectionLost", "link dropped", action="reconnected", seq=5)
+        p = j.plan_measurement(run, 1, tmp_path / "s1.s1p")
+        assert j.record_missed(run, range(0, 3), "instrument unreachable") == 2
+        assert j.record_missed(run, [1, 2], "again") == 0
+        rows = j.run_measurements(run)
+        assert [(r["seq"], r["state"], r["note"]) for r in rows] == [
+            (0, "missed", "instrument unreachable"), (1, "pending", None),
+            (2, "missed", "instrument unreachable")]
+        j.fail_measurement(p, "disk full")
+        assert j.state_counts(run)[0] == {"missed": 2, "failed": 1}
+
+
+def test_faults_alarms_and_golden_checks(tmp_path: Path) -> None:
+    with journal_in(tmp_path) as j:
+        run = j.start_run("soak", "drift")
+        for n in range(3):
+            j.record_fault(run, "ConnectionLost", f"link dropped {n}", action="reconnected",
+                           seq=n)
         j.record_alarm(run, "resonance_hz", "drifted 2 MHz", seq=5, value=2e6, threshold=1e6)
+        j.record_golden(run, "GOLD-1", True, worst_db=0.1)
         j.record_golden(run, "GOLD-1", False, worst_db=0.8, message="fixture moved")
-        assert j.query_one("SELECT state, note FROM measurements")[:] == (
-            "missed", "instrument unreachable")
-        assert j.query_one("SELECT COUNT(*) FROM faults")[0] == 1
-        assert j.query_one("SELECT COUNT(*) FROM alarms")[0] == 1
-        assert j.query_one("SELECT passed FROM golden_checks")[0] == 0
+        assert [f["message"] for f in j.faults(run)] == [f"link dropped {n}" for n in range(3)]
+        assert [f["message"] for f in j.faults(run, last=1)] == ["link dropped 2"]
+        assert j.alarms(run)[0]["value"] == 2e6
+        assert j.last_golden("drift")["message"] == "fixture moved"
+        assert j.last_good_golden_utc("drift") is not None
+        assert [g["passed"] for g in j.golden_checks(plan="drift")] == [1, 0]
+        assert j.golden_checks(plan="other") == []
 
 
-def test_transaction_rolls_back(tmp_path: Path) -> None:
-    with Journal.in_folder(tmp_path) as j:
-        with pytest.raises(RuntimeError), j.transaction() as db:
-            db.execute("INSERT INTO faults(time_utc, kind, message) VALUES ('t', 'k', 'm')")
-            raise RuntimeError("boom")
-        assert j.query_one("SELECT COUNT(*) FROM faults")[0] == 0
+def test_a_failed_write_rolls_back_and_says_which_journal(tmp_path: Path) -> None:
+    with journal_in(tmp_path) as j:
+        run = j.start_run("run", "p")
+        with pytest.raises(ValueError, match="unknown run fields"):
+            j.update_run(run, colour="red")
+        with pytest.raises(JournalError, match=r"journal .*journal\.sqlite: .*already"):
+            j.record_measured(run, 0, StoredFields())
+            j.record_measured(run, 0, StoredFields())
+        assert j.state_counts(run)[0] == {"measured": 1}
+
+
+def test_read_only_view_cannot_write(tmp_path: Path) -> None:
+    with journal_in(tmp_path) as j:
+        run = j.start_run("soak", "drift")
+    with journal_in(tmp_path, read_only=True) as view:
+        assert view.run(run)["kind"] == "soak"
+        with pytest.raises(JournalError, match="read-only"):
+            view.record_fault(run, "k", "m")
+    with pytest.raises(JournalError, match="not found"):
+        journal_in(tmp_path / "nowhere", read_only=True)
 
 
 def test_two_connections_share_the_file(tmp_path: Path) -> None:
     """Another process (here: another connection) reads while a writer writes (WAL)."""
     errors: list[BaseException] = []
-    with Journal.in_folder(tmp_path) as writer:
+    with journal_in(tmp_path) as writer:
         run = writer.start_run("soak", "drift")
 
         def write() -> None:
@@ -105,11 +162,11 @@ def test_two_connections_share_the_file(tmp_path: Path) -> None:
 
         t = threading.Thread(target=write)
         t.start()
-        reader = sqlite3.connect(tmp_path / "journal.sqlite", timeout=10)
+        reader = open_journal(tmp_path / "journal.sqlite", read_only=True)
         while t.is_alive():
-            reader.execute("SELECT COUNT(*) FROM faults").fetchone()
+            reader.faults(run)
         t.join()
-        assert reader.execute("SELECT COUNT(*) FROM faults").fetchone()[0] == 50
+        assert len(reader.faults(run)) == 50
         reader.close()
     assert not errors
 
@@ -117,9 +174,7 @@ def test_two_connections_share_the_file(tmp_path: Path) -> None:
 def test_adopted_rows_take_summary_verdict_and_raw_copy_from_their_files(tmp_path: Path) -> None:
     """Files are written summary, raw copy, Touchstone (last): an adopted capture's
     companions are complete and fill the row."""
-    import json
-
-    with Journal.in_folder(tmp_path) as j:
+    with journal_in(tmp_path) as j:
         run = j.start_run("station", "patch-line-a")
         p = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1")
         summary = {
@@ -133,7 +188,7 @@ def test_adopted_rows_take_summary_verdict_and_raw_copy_from_their_files(tmp_pat
         (tmp_path / "u.raw.s1p").write_text("raw")
         (tmp_path / "u.s1p").write_text("corrected")
         assert j.reconcile() == [(p.id, "stored")]
-        row = j.query_one("SELECT * FROM measurements")
+        (row,) = j.run_measurements(run)
         assert row["summary"] == str(tmp_path / "u.json")
         assert row["raw_touchstone"] == str(tmp_path / "u.raw.s1p")
         assert (row["verdict"], row["exit_code"], row["worst_margin"]) == ("fail", 1, -0.25)

@@ -133,7 +133,7 @@ def test_status_of_a_queued_job_has_the_full_shape(tmp_path: Path,
     planned = parse_soak(load_plan(plan)).schedule.total()
     assert job["state"] == "queued"
     assert job["sweeps"] == {"planned": planned, "done": 0, "kept": 0, "missed": 0,
-                             "failed": 0, "pending": 0}
+                             "failed": 0, "pending": 0, "interrupted": 0}
     assert job["alarms"] == {"count": 0, "active": [], "last": None}
 
 

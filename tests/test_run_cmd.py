@@ -11,7 +11,7 @@ import pytest
 import yaml
 
 from acquire.cli import main
-from acquire.journal import Journal
+from acquire.journal import journal_in
 from acquire.library import library_dir
 from acquire.touchstone import read_touchstone
 from simulators.server import SimServer
@@ -30,7 +30,9 @@ def copy_plan(tmp_path: Path, name: str, **changes: object) -> Path:
 def test_two_port_cable_plan_over_tcp(tmp_path: Path, capsys: pytest.CaptureFixture) -> None:
     with SimServer() as sim:
         sim.bench.set_device("cable-1m")
-        code = main(["run", str(PLANS / "cable-line.yaml"), "--resource", sim.tcp_resource,
+        # the shipped plan without its calibration and mask: raw data, nothing to judge
+        plan = copy_plan(tmp_path, "cable-line", calibration={"method": "none"}, checks=[])
+        code = main(["run", str(plan), "--resource", sim.tcp_resource,
                      "--output", str(tmp_path), "--serial", "C-0001", "--json"])
         summary = json.loads(capsys.readouterr().out)
         assert code == 0 and summary["exit_code"] == 0
@@ -66,9 +68,9 @@ def test_patch_plan_needs_its_calibration(tmp_path: Path,
         assert code == 2
         assert err.count("\n") == 0 and "no calibration for plan patch-line-a" in err
         assert "run `sweepd calibrate" in err
-        with Journal.in_folder(tmp_path / "out") as journal:  # the refusal is journalled
-            assert journal.query_one("SELECT state FROM runs")[0] == "failed"
-            assert journal.query_one("SELECT kind FROM faults")[0] == "CalError"
+        with journal_in(tmp_path / "out") as journal:  # the refusal is journalled
+            assert journal.run(1)["state"] == "failed"
+            assert [f["kind"] for f in journal.faults(1)] == ["CalError"]
         assert not list((tmp_path / "out").glob("*.s1p"))
 
 
@@ -87,9 +89,8 @@ def test_verdict_sets_the_exit_code_and_files_carry_it(tmp_path: Path,
                 break
     capsys.readouterr()
     assert {0, 1} <= set(codes.values())
-    with Journal.in_folder(tmp_path / "out") as journal:
-        rows = journal.query("SELECT serial, verdict, exit_code, touchstone, state "
-                             "FROM measurements ORDER BY id")
+    with journal_in(tmp_path / "out") as journal:
+        rows = journal.measurements()
     assert [r["serial"] for r in rows] == list(codes)
     for row in rows:
         assert row["state"] == "stored" and row["exit_code"] == codes[row["serial"]]

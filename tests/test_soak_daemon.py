@@ -75,7 +75,8 @@ def test_submit_serve_status_report_from_other_shells(tmp_path: Path,
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out",
                          every="0.03 s", count=60,
                          soak={"alarms": {"resonance_shift": "1 MHz", "command":
-                                          f"{sys.executable} -c pass"}})
+                                          f"{sys.executable} -c pass"},
+                               "statistics": {"min_sweeps": 20, "min_span": "0.5 s"}})
         code, out, err = cli(capsys, "submit", str(plan), "--spool", str(spool))
         assert code == 0 and out.startswith("submitted soak-test-001: soak-test on TCPIP::")
         assert "no sweepd serve runs on spool" in err
@@ -138,48 +139,70 @@ def test_sigterm_finishes_the_sweep_records_the_stop_and_resumes(tmp_path: Path)
     assert kinds.count("stop") == 1 and kinds.count("restart") == 1
 
 
-def kill_test(tmp_path: Path, kills: int, count: int, every: str, serial: bool) -> None:
+def sweeps_done(job) -> int:
+    """Sweeps taken so far (stored or measured), read from the journal as a reader."""
+    if not (job.output_dir / "journal.sqlite").is_file():
+        return 0
+    _, rows, _ = journal_rows(job)
+    return sum(r["state"] in ("stored", "measured") for r in rows)
+
+
+def kill_test(tmp_path: Path, kills: int, every: str, serial: bool) -> None:
+    """SIGKILL the daemon ``kills`` times at random moments of its sweep loop, each time
+    after its worker has taken at least one more sweep, then cancel the job from another
+    shell while a last daemon runs, and check that everything is consistent.
+
+    Nothing here depends on how fast the machine is: the schedule is far longer than the
+    test (so slots missed while a daemon starts up on a loaded machine are just missed),
+    every wait is for a condition, and the job ends by cancellation, not by its clock.
+    """
     spool = tmp_path / "spool"
     rng = random.Random(20261202)
     with SimServer(time_scale=0.0, noise=True, serial=serial) as sim:
         resource = sim.serial_resource if serial else sim.tcp_resource
         plan = soak_plan(tmp_path / "p.yaml", resource, tmp_path / "out", every=every,
-                         count=count, points=51 if serial else 101,
+                         count=1_000_000, points=51 if serial else 101,
                          soak={"keep": {"every": 3}})
         assert main(["submit", str(plan), "--spool", str(spool)]) == 0
         job = Spool(spool).find("soak-test-001")
-        for _ in range(kills):
-            proc = serve(spool, tmp_path / "serve.log")
-            # once its worker owns the job, kill it at a random moment of the sweep loop
-            wait_for(lambda p=proc: worker_pid(Spool(spool), job.id) == p.pid, 15,
+        for round_ in range(kills + 1):
+            before = sweeps_done(job)
+            proc = serve(spool, tmp_path / "serve.log", "--until-idle")
+            # once its worker owns the job and has swept again, kill it at a random moment
+            wait_for(lambda p=proc: worker_pid(Spool(spool), job.id) == p.pid, 60,
                      "the worker to start")
+            wait_for(lambda n=before: sweeps_done(job) > n, 60, "a sweep after the restart")
             time.sleep(rng.uniform(0.0, 0.35))
-            proc.kill()
-            proc.wait(10)
-            assert job.read_state()["state"] == "running"
-        proc = serve(spool, tmp_path / "serve.log", "--until-idle")
-        assert proc.wait(120) == 0
-    states = check_invariants(job, count)
-    assert job.read_state()["state"] == "finished"
-    runs, _, faults = journal_rows(job)
-    assert runs[0]["state"] == "finished"
+            if proc.poll() is not None:
+                raise AssertionError(f"the daemon exited early ({proc.returncode})")
+            if round_ < kills:
+                proc.kill()
+                proc.wait(10)
+                assert job.read_state()["state"] == "running"
+        # the last daemon is left running: cancel from another shell, it stops cleanly
+        assert main(["cancel", job.id, "--spool", str(spool)]) == 0
+        assert proc.wait(60) == 0
+    _, rows, faults = journal_rows(job)
+    states = check_invariants(job, len(rows))
+    assert job.read_state()["state"] == "cancelled"
     assert sum(f["kind"] == "restart" for f in faults) == kills
     counted = status_counts(job)
     assert counted["done"] == states["stored"] + states["measured"]
     assert counted["missed"] == states["missed"] and counted["pending"] == 0
-    assert states["stored"] + states["measured"] > count // 4
+    # every daemon, the killed ones and the last, took at least one sweep of its own
+    assert states["stored"] + states["measured"] >= kills + 1
 
 
-@pytest.mark.timeout(150)
+@pytest.mark.timeout(240)
 def test_twenty_kills_during_one_job_leave_everything_consistent(tmp_path: Path) -> None:
-    kill_test(tmp_path, kills=20, count=900, every="0.025 s", serial=False)
+    kill_test(tmp_path, kills=20, every="0.025 s", serial=False)
 
 
 @pytest.mark.long
-@pytest.mark.timeout(900)
+@pytest.mark.timeout(1200)
 @pytest.mark.parametrize("serial", [False, True], ids=["tcp", "serial"])
 def test_hundred_kills(tmp_path: Path, serial: bool) -> None:
-    kill_test(tmp_path, kills=100, count=4000, every="0.03 s", serial=serial)
+    kill_test(tmp_path, kills=100, every="0.03 s", serial=serial)
 
 
 def test_jobs_on_other_instruments_run_side_by_side_same_instrument_waits(
@@ -261,7 +284,7 @@ def test_spool_is_private_and_bad_input_is_one_line(tmp_path: Path,
             assert not path.stat().st_mode & (stat.S_IWGRP | stat.S_IWOTH), path
     os.chmod(spool, 0o777)
     code, _, err = cli(capsys, "submit", str(plan), "--spool", str(spool))
-    assert code == 2 and "is writable by others; chmod 700 it" in err
+    assert code == 2 and "writable by group or others (mode 0777)" in err
     os.chmod(spool, 0o700)
     bad = tmp_path / "bad.yaml"
     bad.write_text(plan.read_text().replace("every: 0 s", "every: soon"))

@@ -7,8 +7,8 @@ from pathlib import Path
 import pytest
 from test_soak_support import check_invariants, journal_rows
 
-from acquire.demo import DemoContext
-from acquire.soak.demo import SWEEPS, demo_step
+from acquire.demo.context import DemoContext
+from acquire.demo.soak import SWEEPS, demo_step
 from acquire.soak.spool import Spool
 from simulators.process import SimProcess
 

@@ -16,7 +16,7 @@ from acquire.soak.spool import Job, Spool
 from acquire.storage import TEMP_PREFIX
 from acquire.touchstone import read_touchstone
 
-FINAL_STATES = {"stored", "measured", "missed", "failed"}
+FINAL_STATES = {"stored", "measured", "missed", "interrupted", "failed"}
 
 
 def soak_plan(path: Path, resource: str, out: Path, *, every: str = "0 s", count: int = 100,
@@ -51,7 +51,7 @@ def journal_rows(job: Job) -> tuple[list[sqlite3.Row], list[sqlite3.Row], list[s
     db = sqlite3.connect(job.output_dir / "journal.sqlite")
     db.row_factory = sqlite3.Row
     try:
-        runs = db.execute("SELECT * FROM runs WHERE job_id = ?", (job.id,)).fetchall()
+        runs = db.execute("SELECT * FROM runs WHERE job_uid = ?", (job.uid,)).fetchall()
         assert len(runs) == 1, f"one run per job, found {len(runs)}"
         rows = db.execute("SELECT * FROM measurements WHERE run_id = ? ORDER BY seq",
                           (runs[0]["id"],)).fetchall()
@@ -88,7 +88,7 @@ def check_invariants(job: Job, planned: int) -> Counter:
         elif r["state"] == "measured":
             assert r["touchstone"] is None
             assert "soak" in json.loads(r["metrics_json"])
-        elif r["state"] == "missed":
+        elif r["state"] in ("missed", "interrupted"):
             assert r["note"], r["seq"]
     folder = job.data_dir
     leftovers = [p for p in folder.rglob("*") if p.name.startswith(TEMP_PREFIX)]

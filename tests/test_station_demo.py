@@ -7,8 +7,8 @@ import io
 import json
 from pathlib import Path
 
-from acquire.demo import DemoContext
-from acquire.station.demo import GOLDEN_EVERY, SERIALS, demo_step
+from acquire.demo.context import DemoContext
+from acquire.demo.station import GOLDEN_EVERY, SERIALS, demo_step
 from simulators.process import SimProcess
 
 

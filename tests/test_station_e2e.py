@@ -15,10 +15,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from station_driver import StationProcess
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
-from acquire.journal import Journal
-from acquire.station.driver import StationProcess
+from acquire.journal import journal_in
 from acquire.storage import sweep_stale_temps
 from simulators.server import SimServer
 
@@ -79,7 +79,8 @@ def test_a_batch_over_tcp_gets_the_right_verdicts_files_and_journal(sim, tmp_pat
         text = unit(st, sim, BAD[0])
         assert f"RETEST: {BAD[0]} was measured 1 time(s) before" in text
         assert f"{BAD[0]}: FAIL   RETEST (attempt 2)" in text
-        assert "tested 4 | passed 2 | failed 2 | retests 1 | first-pass yield 50.0 %" in text
+        assert ("tested 4 | passed 2 | failed 2 | yield 50.0 % (4 judged) | retests 1 | "
+                "first-pass yield 50.0 %") in text
         st.send("s")
         assert "retests 1" in st.expect("serial> ")
         st.send("q")
@@ -202,12 +203,13 @@ def test_an_expired_cal_set_blocks_measuring_until_the_procedure_runs(sim, tmp_p
 
 def test_a_cal_set_expiring_mid_shift_blocks_the_next_unit(sim, tmp_path) -> None:
     out = tmp_path / "out"
-    install_cal(out, age_s=8 * 3600 - 2.0)  # valid for two more seconds
+    install_cal(out, age_s=8 * 3600 - 600.0)  # valid for ten more minutes
     plan = write_plan(tmp_path, sim.tcp_resource, station={"golden": None})
-    with start(plan) as st:
+    with StationProcess([str(plan), "--station", "bench-7"],
+                        clock_shift_file=tmp_path / "clock-shift") as st:
         st.expect("serial> ")
         assert f"{GOOD[0]}: PASS" in unit(st, sim, GOOD[0])
-        time.sleep(2.5)
+        st.shift_clock(1200.0)  # twenty minutes later, by the station's injected clock
         text = unit(st, sim, GOOD[1], "cal> ")
         assert "CANNOT MEASURE: calibration" in text and "old (max 8 h)" in text
         assert "measuring" not in text
@@ -339,7 +341,7 @@ def test_sigkill_between_units_and_mid_sweep(sim, tmp_path) -> None:
         time.sleep(0.3)
         st.signal(signal.SIGKILL)
         assert st.wait() == -signal.SIGKILL
-    with Journal.in_folder(out) as journal:
+    with journal_in(out) as journal:
         assert journal.reconcile() == []  # nothing was left half-recorded
     stored = agree(out)
     assert len(stored) == 5  # 2 golden checks, 3 units; the unit in flight has no file
@@ -365,7 +367,7 @@ def test_sigkill_at_random_moments_never_tears_a_record(sim, tmp_path) -> None:
             time.sleep(float(rng.uniform(0.05, 1.5)))
             st.signal(signal.SIGKILL)
             st.wait()
-        with Journal.in_folder(out) as journal:
+        with journal_in(out) as journal:
             journal.reconcile()
         # what the next start does: temp files of the killed writer go (never a live one's)
         sweep_stale_temps(out)

@@ -17,18 +17,19 @@ import pytest
 from test_station_support import GOLDEN, write_plan
 
 from acquire.errors import PlanError
-from acquire.journal import Journal, utc_text
+from acquire.journal import StoredFields, journal_in
 from acquire.plan import load_plan
-from acquire.station.config import SerialRule, Tolerance, station_config
+from acquire.station.config import station_config
 from acquire.station.counters import count_yield
 from acquire.station.display import banner, big
 from acquire.station.errors import GoldenError, SerialRefused
-from acquire.station.golden import compare, differences
+from acquire.station.golden import GoldenSpec, Tolerance, compare, differences
 from acquire.station.interrupts import deferred_interrupt
 from acquire.station.schedule import line_state
-from acquire.station.serials import check_serial
+from acquire.station.serials import SerialRule, check_serial
 from acquire.station.terminal import MAX_LINE, Terminal
 from acquire.sweep import Sweep
+from acquire.utc import utc_text
 
 RESOURCE = "TCPIP::127.0.0.1::5025::SOCKET"
 
@@ -162,14 +163,12 @@ def sweep(gamma: np.ndarray, f: np.ndarray = F) -> Sweep:
 
 
 def spec(tmp_path: Path, **tol):
-    from acquire.station.config import GoldenSpec
-
     return GoldenSpec("GOLDEN", tmp_path / "ref.s1p", tolerance=Tolerance(**tol))
 
 
 def test_differences_match_scikit_rf(tmp_path: Path) -> None:
     """Oracle: scikit-rf's s_db and s_deg (Touchstone-style dB and degrees)."""
-    rf = pytest.importorskip("skrf")
+    import skrf as rf
     ref, meas = antenna(), antenna(f0=2.452e9, r=47.0) * np.exp(-1j * 0.02)
     freq = rf.Frequency.from_f(F, unit="Hz")
     nref, nmeas = rf.Network(frequency=freq, s=ref, z0=50), rf.Network(frequency=freq, s=meas,
@@ -215,8 +214,6 @@ def test_magnitude_and_phase_skip_points_below_min_level(tmp_path: Path) -> None
 
 
 def test_golden_band_and_grid(tmp_path: Path) -> None:
-    from acquire.station.config import GoldenSpec
-
     ref = antenna()
     meas = ref.copy()
     meas[:20] *= 2.0  # outside 2.40..2.50 GHz only
@@ -234,10 +231,8 @@ def test_golden_band_and_grid(tmp_path: Path) -> None:
 
 
 def test_line_state_from_the_journal(tmp_path: Path) -> None:
-    from acquire.station.config import GoldenSpec
-
     golden = GoldenSpec("GOLDEN", GOLDEN, every_units=2, every_s=3600.0)
-    with Journal.in_folder(tmp_path) as j:
+    with journal_in(tmp_path) as j:
         run = j.start_run("station", "patch-station")
         state = line_state(j, "patch-station", golden)
         assert state.due and "no golden check on record" in state.due_reason
@@ -245,7 +240,8 @@ def test_line_state_from_the_journal(tmp_path: Path) -> None:
         assert not line_state(j, "patch-station", golden).due
         for seq in range(2):
             p = j.plan_measurement(run, seq, tmp_path / f"u{seq}.s1p", serial=f"PA-{seq}")
-            j.store_measurement(p, touchstone=p.touchstone, summary=None, verdict="pass")
+            j.store_measurement(p, touchstone=p.touchstone, summary=None, raw_touchstone=None,
+                                fields=StoredFields(verdict="pass"))
         state = line_state(j, "patch-station", golden)
         assert state.due and state.units_since == 2 and "2 units since" in state.due_reason
         later = datetime.now(timezone.utc) + timedelta(hours=2)
@@ -269,7 +265,8 @@ def test_line_state_from_the_journal(tmp_path: Path) -> None:
 
 def test_worst_swr_in_band_matches_scikit_rf(tmp_path: Path) -> None:
     """Oracle: scikit-rf ``Network.s_vswr`` (SWR = (1+|Γ|)/(1-|Γ|), Pozar ch. 2)."""
-    rf = pytest.importorskip("skrf")
+    import skrf as rf
+
     from acquire.checks import evaluate_checks
     from acquire.station.figures import key_figures
 
@@ -309,8 +306,8 @@ def test_yield_counters() -> None:
     assert (y.tested, y.passed, y.failed, y.retests) == (6, 4, 2, 2)
     assert (y.first_tested, y.first_passed) == (5, 3)
     assert y.first_pass_yield == pytest.approx(0.6)
-    assert y.line() == ("tested 6 | passed 4 | failed 2 | retests 2 | "
-                        "first-pass yield 60.0 %")
+    assert y.line() == ("tested 6 | passed 4 | failed 2 | yield 66.7 % (6 judged) | "
+                        "retests 2 | first-pass yield 60.0 %")
     assert count_yield([]).line().endswith("first-pass yield n/a")
 
 

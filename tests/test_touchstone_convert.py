@@ -8,11 +8,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import skrf as rf
 
 from acquire.touchstone import parse_touchstone
 from acquire.touchstone.convert import from_s, normalisation, to_s
 
-rf = pytest.importorskip("skrf")
 SKRF = {"Z": (rf.network.s2z, rf.network.z2s), "Y": (rf.network.s2y, rf.network.y2s),
         "H": (rf.network.s2h, rf.network.h2s), "G": (rf.network.s2g, rf.network.g2s)}
 

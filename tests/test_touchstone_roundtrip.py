@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import skrf as rf
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -21,8 +22,6 @@ from acquire.touchstone import (
     read_touchstone,
     write_touchstone,
 )
-
-rf = pytest.importorskip("skrf")
 
 
 def random_sweep(points: int, ports: int, seed: int, z0=None, scale: float = 0.5) -> Sweep:

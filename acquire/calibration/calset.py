@@ -30,12 +30,10 @@ from __future__ import annotations
 import hashlib
 import io
 import json
-import logging
-import math
 import zipfile
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field, replace
-from datetime import datetime, timezone
+from datetime import datetime
 from functools import cached_property
 from pathlib import Path
 from types import MappingProxyType
@@ -44,10 +42,13 @@ from typing import Any
 import numpy as np
 
 from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
-from acquire.calibration.methods import ErrorModel
+from acquire.calibration.methods import ErrorModel, canonical_name
 from acquire.errors import CalError
+from acquire.jsonsafe import json_safe
 from acquire.storage import safe_component, write_new
 from acquire.sweep import Sweep
+from acquire.utc import compact_utc, minute_text, parse_utc, utc_text
+from acquire.utc import utc_now as utc_clock
 from drivers.stimulus import Stimulus
 from drivers.yamlnode import one_line, show
 
@@ -56,13 +57,11 @@ VERSION = 1
 SUFFIX = ".calset"
 HEADER = "header.json"
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)
-_TIME_FORMAT = "%Y-%m-%dT%H:%M:%S.%fZ"
-log = logging.getLogger(__name__)
 
 
 def utc_now() -> str:
-    """The current UTC time in the cal set's timestamp format."""
-    return datetime.now(timezone.utc).strftime(_TIME_FORMAT)
+    """The current UTC time in the cal set's timestamp format (microseconds, ``Z``)."""
+    return utc_text(digits=6)
 
 
 @dataclass(frozen=True, eq=False)
@@ -90,10 +89,10 @@ class CalSet:
             a.flags.writeable = False
             raw[str(name)] = a
         object.__setattr__(self, "raw", MappingProxyType(raw))
-        object.__setattr__(self, "figures", MappingProxyType(_jsonable(dict(self.figures))))
+        object.__setattr__(self, "figures", MappingProxyType(json_safe(dict(self.figures))))
         if self.interpolation is not None:
             object.__setattr__(self, "interpolation",
-                               MappingProxyType(_jsonable(dict(self.interpolation))))
+                               MappingProxyType(json_safe(dict(self.interpolation))))
         _parse_time(self.created_utc)  # fail early on a malformed timestamp
 
     # -- identity and age ----------------------------------------------------------------
@@ -112,7 +111,7 @@ class CalSet:
     @property
     def when(self) -> str:
         """Creation time for messages: ``2026-12-02T06:10Z``."""
-        return self.created.strftime("%Y-%m-%dT%H:%MZ")
+        return minute_text(self.created)
 
     @property
     def interpolated(self) -> bool:
@@ -129,11 +128,11 @@ class CalSet:
 
     @property
     def id(self) -> str:
-        stamp = self.created.strftime("%Y%m%dT%H%M%SZ")
+        stamp = compact_utc(self.created)
         return f"{stamp}-{safe_component(self.plan, max_len=40)}-{self.content_sha256[:10]}"
 
     def age_s(self, now: datetime | None = None) -> float:
-        now = now or datetime.now(timezone.utc)
+        now = now or utc_clock()
         return (now - self.created).total_seconds()
 
     # -- applying --------------------------------------------------------------------------
@@ -226,47 +225,6 @@ def _read_file(path: Path) -> bytes:
         raise CalError(f"cal set {path}: cannot read ({exc.strerror})") from None
     except Refused as exc:
         raise CalError(f"cal set {path}: {exc}") from None
-
-
-def list_calsets(cal_dir: Path | str, plan: str | None = None,
-                 instrument: str | None = None) -> list[tuple[Path, dict[str, Any]]]:
-    """(path, header) of the readable cal sets in ``cal_dir``, newest first.
-
-    Filters by plan name and instrument identity when given. Unreadable files are logged
-    as warnings and skipped.
-    """
-    found = []
-    folder = Path(cal_dir)
-    if not folder.is_dir():
-        return []
-    for path in folder.glob(f"*{SUFFIX}"):
-        try:
-            header = read_header(path)
-        except CalError as exc:
-            log.warning("skipping %s", exc)
-            continue
-        if plan is not None and header["plan"] != plan:
-            continue
-        if instrument is not None and not same_instrument(header["instrument"], instrument):
-            continue
-        found.append((path, header))
-    found.sort(key=lambda item: (item[1]["created_utc"], item[0].name), reverse=True)
-    return found
-
-
-def find_latest(cal_dir: Path | str, plan: str, instrument: str | None = None) -> CalSet | None:
-    """The newest cal set for ``plan`` (and instrument) that loads and verifies, or None."""
-    for path, _header in list_calsets(cal_dir, plan, instrument):
-        try:
-            return CalSet.load(path)
-        except CalError as exc:
-            log.warning("skipping %s", exc)
-    return None
-
-
-def same_instrument(a: str, b: str) -> bool:
-    """Identity strings compared field by field, ignoring blanks around commas and case."""
-    return [p.strip().lower() for p in a.split(",")] == [p.strip().lower() for p in b.split(",")]
 
 
 def replace_grid(cal: CalSet, model: ErrorModel, interpolation: Mapping[str, Any]) -> CalSet:
@@ -371,7 +329,8 @@ class _Reader:
         terms = {t: self.array(f"terms/{t}.npy", np.complex128, n) for t in term_names}
         raw = {r: self.array(f"raw/{r}.npy", np.complex128, n) for r in raw_names}
         try:
-            model = ErrorModel.from_flat(h["method"], freq, terms)
+            canonical_name(h["method"], f"cal set {self.source}")  # warns on an older name
+            model = ErrorModel.from_flat(h["method"], freq, terms)  # kept: the id covers it
         except (ValueError, KeyError) as exc:
             self.fail(f"error terms do not form a calibration: {exc}")
         try:
@@ -411,26 +370,9 @@ def _dump_json(obj: Any) -> bytes:
 
 def _parse_time(text: str) -> datetime:
     try:
-        return datetime.strptime(text, _TIME_FORMAT).replace(tzinfo=timezone.utc)
-    except (TypeError, ValueError):
+        return parse_utc(text)
+    except (AttributeError, TypeError, ValueError):
         raise ValueError(f"created_utc must look like 2026-12-02T06:10:00.000000Z, "
                          f"got {text!r}") from None
 
 
-def _jsonable(value: Any) -> Any:
-    """Plain JSON values: numpy scalars to Python, tuples to lists, non-finite to None."""
-    if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return _jsonable(value.tolist())
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return float(value) if math.isfinite(value) else None
-    if value is None or isinstance(value, str):
-        return value
-    raise ValueError(f"figure value {value!r} is not a JSON value")

@@ -15,8 +15,8 @@ Transmission (forward, load match neglected for the device)::
 
     S21m = e30 + e10e32·S21/(1 − e11·S11)
 
-with e30 isolation and e10e32 transmission tracking; e11 = 0 gives the plain thru-response
-normalisation, a known e11 the enhanced response (both as in the two-port model of
+with e30 isolation and e10e32 transmission tracking; e11 = 0 gives the plain transmission
+normalisation, a known e11 the one-path two-port correction (both as in the two-port model of
 Kruppa and Sodomsky, IEEE Trans. MTT-19(1), 1971, with e22 set to zero for the device).
 """
 
@@ -212,7 +212,7 @@ def solve_thru(s21m_thru: np.ndarray, s21_model: np.ndarray, *,
     if source is None:
         return TransmissionTerms((s21m - e30) / t, e30, np.zeros_like(s21m))
     if s11m_thru is None:
-        raise ValueError("enhanced response needs the raw S11 read with the thru connected")
+        raise ValueError("a one-path two-port solve needs the raw S11 read with the thru connected")
     s11 = np.asarray(s11_model, np.complex128)
     s22 = np.asarray(s22_model, np.complex128)
     gc = source.correct(s11m_thru)

@@ -15,6 +15,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from acquire.demo import run_demo
+    from acquire.demo.run import run_demo
 
     return run_demo(Path(args.dir))

@@ -83,7 +83,7 @@ def _sources(args: argparse.Namespace):
     """Distance checks from --mask and --plan, and the plan's ``dtf:`` settings."""
     from pathlib import Path
 
-    from acquire.checks import any_mask_check
+    from acquire.check_parse import any_mask_check
     from acquire.errors import ConfigError
     from acquire.timedomain.checks import DistanceCheck
     from acquire.timedomain.spec import DtfSpec, parse_spec
@@ -167,7 +167,7 @@ def _plot(args, profile, peaks, checks, verdict) -> None:
 def _json(args, spec, profile, peaks, verdict) -> str:
     import json
 
-    from acquire.checks import _finite_json
+    from acquire.jsonsafe import json_safe
 
     body = {
         "format": DTF_FORMAT,
@@ -187,7 +187,7 @@ def _json(args, spec, profile, peaks, verdict) -> str:
             "level_db": profile.level_db.tolist(),
             "impedance_ohm": None if z is None else z.tolist(),
         }
-    return json.dumps(_finite_json(body), indent=2, allow_nan=False, ensure_ascii=True)
+    return json.dumps(json_safe(body), indent=2, allow_nan=False, ensure_ascii=True)
 
 
 def _text(source: str, profile, peaks, verdict) -> list[str]:

@@ -21,10 +21,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_spool_argument(parser)
 
 
-REPORT_FORMAT = "sweepd-report"
-REPORT_VERSION = 1
-
-
 def run(args: argparse.Namespace) -> int:
     from acquire.commands.jsonout import run_with_json_errors
 
@@ -35,7 +31,7 @@ def _run(args: argparse.Namespace) -> int:
     import json
 
     from acquire.commands import cli_path
-    from acquire.soak.report import write_report
+    from acquire.soak.report import report_document, write_report
     from acquire.soak.spool import Spool
 
     spool = Spool(args.spool).require()
@@ -43,13 +39,7 @@ def _run(args: argparse.Namespace) -> int:
     out = cli_path(args.output) if args.output else job.data_dir / "report"
     report = write_report(job, out)
     if args.json:
-        print(json.dumps({
-            "format": REPORT_FORMAT, "version": REPORT_VERSION, "job": job.id,
-            "folder": str(report.folder), "html": str(report.html),
-            "text_file": str(report.folder / "summary.txt"),
-            "pictures": {name: str(path) for name, path in report.pictures.items()},
-            "summary": report.text.splitlines(),
-        }))
+        print(json.dumps(report_document(job, report)))
         return 0
     print(report.text)
     print(f"\nreport: {report.html}")

@@ -27,37 +27,17 @@ def _run(args: argparse.Namespace) -> int:
     import sys
     from pathlib import Path
 
-    from acquire.errors import PlanError
-    from acquire.plan import _RESOURCE, load_plan
-    from acquire.soak.drift import reference_from_file
-    from acquire.soak.spec import parse_soak
     from acquire.soak.spool import Spool
-    from acquire.units import format_duration
+    from acquire.soak.submit import submit_plan
 
-    path = Path(args.plan)
-    plan = load_plan(path)
-    spec = parse_soak(plan)
-    if spec.reference is not None:  # readable, has the parameter, covers the sweep
-        reference_from_file(spec.reference, spec.parameter, spec.band_hz,
-                            plan.stimulus.frequencies())
-    resource = args.resource or plan.instrument.resource
-    if not _RESOURCE.match(resource):
-        raise PlanError(f"--resource: not a supported VISA resource string: {resource!r}")
-    output = Path(args.output or plan.output.dir).expanduser().resolve()
     spool = Spool(args.spool)
-    job = spool.create_job(plan.name, path.resolve(), path.read_text(encoding="utf-8"),
-                           output, resource)
-    s = spec.schedule
-    every = f"every {format_duration(s.every_s)}" if s.every_s > 0 else "back to back"
-    extent = (f"{s.count} sweeps" if s.count is not None else
-              f"for {format_duration(s.duration_s)}" if s.duration_s is not None
-              else "until cancelled")
+    done = submit_plan(spool, Path(args.plan), resource=args.resource,
+                       output=Path(args.output) if args.output else None)
     if args.json:
-        print(json.dumps({"job": job.id, "spool": str(spool.root), "resource": resource,
-                          "data_dir": str(job.data_dir)}))
+        print(json.dumps({"job": done.job.id, "uid": done.job.uid, "spool": str(spool.root),
+                          "resource": done.resource, "data_dir": str(done.job.data_dir)}))
     else:
-        print(f"submitted {job.id}: {plan.name} on {resource}, {every}, {extent}; "
-              f"files in {job.data_dir}")
+        print(done.describe())
     if spool.daemon_pid() is None:
         serve = shlex.join(["sweepd", "serve", "--spool", str(spool.root)])
         print(f"sweepd: note: no sweepd serve runs on spool {spool.root}; start it to run the "

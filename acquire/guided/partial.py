@@ -18,27 +18,30 @@ import json
 import zipfile
 from collections.abc import Mapping
 from dataclasses import asdict, dataclass, field
-from datetime import datetime, timezone
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
+from acquire.calibration.methods import canonical_name
 from acquire.errors import CalError
 from acquire.storage import replace_atomic, safe_component
 from acquire.units import format_duration
+from acquire.utc import parse_utc, utc_now
+from acquire.utc import utc_text as utc_form
 from drivers.stimulus import Stimulus
 
 FORMAT = "sweepd-partial-cal"
 VERSION = 1
 SUFFIX = ".partial-cal"
 HEADER = "header.json"
-_TIME = "%Y-%m-%dT%H:%M:%S.%fZ"
 
 
 def utc_text(moment: datetime | None = None) -> str:
-    return (moment or datetime.now(timezone.utc)).strftime(_TIME)
+    """Partial-cal file timestamps: UTC with microseconds and ``Z``."""
+    return utc_form(moment, digits=6)
 
 
 def partial_path(cal_dir: Path, plan: str) -> Path:
@@ -100,8 +103,7 @@ class Partial:
         return replace_atomic(path, self.to_bytes())
 
     def age_s(self) -> float:
-        then = datetime.strptime(self.updated_utc, _TIME).replace(tzinfo=timezone.utc)
-        return (datetime.now(timezone.utc) - then).total_seconds()
+        return (utc_now() - parse_utc(self.updated_utc)).total_seconds()
 
     def mismatch(self, want: Fingerprint, max_age_s: float | None) -> str:
         """Why these readings may not be reused for ``want`` ('' when they may)."""
@@ -130,7 +132,7 @@ def load_partial(path: Path) -> Partial:
             if header.get("format") != FORMAT or header.get("version") != VERSION:
                 raise CalError(f"{where}: not a version {VERSION} {FORMAT} file")
             st = header["stimulus"]
-            fp = Fingerprint(str(header["plan"]), str(header["method"]),
+            fp = Fingerprint(str(header["plan"]), canonical_name(str(header["method"]), where),
                              str(header["instrument"]), Stimulus(**st),
                              str(header["kit_name"]), str(header["kit_sha256"]))
             partial = Partial(fp, updated_utc=str(header["updated_utc"]))
@@ -150,7 +152,7 @@ def load_partial(path: Path) -> Partial:
                     raise CalError(f"{where}: member {name} belongs to no listed step")
                 arr = read_npy(zf.read(name), name, np.complex128, points)
                 partial.readings[step][param] = np.asarray(arr, np.complex128)
-            datetime.strptime(partial.updated_utc, _TIME)
+            parse_utc(partial.updated_utc)
             return partial
     except CalError:
         raise

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TextIO
 
-from acquire.calibration import CalSet, list_calsets, load_kit
+from acquire.calibration import METHODS, CalSet, canonical_name, list_calsets, load_kit, method
 from acquire.errors import CalError, StorageError
 from acquire.guided.backends import AutoBackend, Backend, ScriptedBackend, TerminalBackend
 from acquire.guided.connectors import (
@@ -32,7 +32,7 @@ from acquire.guided.connectors import (
 from acquire.guided.console import Console
 from acquire.guided.keys import parse_script
 from acquire.guided.partial import Fingerprint, Partial, load_partial, partial_path, readings_fit
-from acquire.guided.procedure import FULL_ONE_PORT, Outcome, Procedure, Setup
+from acquire.guided.procedure import Outcome, Procedure, Setup
 from acquire.guided.steps import build_steps
 from acquire.guided.verify import VerifySpec
 from acquire.plan import PROMPTS, Plan
@@ -72,14 +72,14 @@ def calibrate(plan: Plan, options: Options = Options(), *, stdin: TextIO | None 
                        "in the plan or --switch-command")
     actions = parse_script(options.script) if options.script else ()
     kit = load_kit(spec.kit)
-    steps = build_steps(spec.method, kit, plan.ports, str(plan.source))
+    steps = build_steps(spec.method, kit, plan.ports, str(plan.source), spec.isolation)
     kit.check_range(plan.stimulus.frequencies())
     verify = _verify_spec(options, spec.method, steps)
     cal_dir = cal_dir_for(plan)
     _writable(cal_dir)
     console = Console(stdout, ascii_only=options.ascii_only)
     with Session(plan, options.resource) as session:
-        connector = _connector(prompt, switch_command, session)
+        connector = _connector(prompt, switch_command, session, spec.switch_names)
         backend = _backend(prompt, options, console, stdin, actions)
         fingerprint = Fingerprint(plan.name, spec.method, session.identity_text,
                                   session.applied, kit.name, kit.sha256)
@@ -102,12 +102,13 @@ def _prompt(options: Options, planned: str) -> str:
     return prompt
 
 
-def _connector(prompt: str, switch_command: str | None, session: object) -> Connector:
+def _connector(prompt: str, switch_command: str | None, session: object,
+               names: dict[str, str] | None = None) -> Connector:
     if prompt == "terminal":
         return ManualConnector()
     if prompt == "command" or (prompt == "scripted" and switch_command):
         assert switch_command is not None
-        return CommandConnector(switch_command)
+        return CommandConnector(switch_command, names=names)
     return SwitchConnector(session.analyzer)  # type: ignore[attr-defined]
 
 
@@ -141,7 +142,7 @@ def _verify_spec(options: Options, method_name: str, steps: tuple) -> VerifySpec
         raise CalError(f"--verify: method {method_name} corrects no reflection to verify")
     if not Path(target).is_file():
         raise CalError(f"--verify {target}: no such Touchstone file (or give 'load')")
-    if tol is None and method_name not in FULL_ONE_PORT:
+    if tol is None and not method(method_name).full_reflection:
         raise CalError(f"--verify {target}: give --verify-tolerance; method {method_name} "
                        "leaves directivity or source match uncorrected, so no residual estimate")
     return VerifySpec(target, tol)
@@ -176,9 +177,12 @@ def _partial(pfile: Path, fingerprint: Fingerprint, resume: bool, max_age_s: flo
 
 def _previous(cal_dir: Path, plan: str, instrument: str, method_name: str) -> CalSet | None:
     """The newest readable cal set of this plan and instrument made with a full one-port
-    or the same method (response-only terms would blur the comparison)."""
+    or the same method (normalisation-only terms would blur the comparison)."""
+    wanted = method(method_name)
     for path, header in list_calsets(cal_dir, plan, instrument):
-        if header.get("method") not in (*FULL_ONE_PORT, method_name):
+        name = canonical_name(str(header.get("method")))
+        if name != wanted.name and (name not in METHODS or not METHODS[name].full_reflection
+                                    or METHODS[name].two_port != wanted.two_port):
             continue
         try:
             return CalSet.load(path)

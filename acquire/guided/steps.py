@@ -1,48 +1,112 @@
 """The steps of a guided calibration: which standard each one measures and what it reads.
 
-A method from ``acquire.calibration.METHODS`` names kit standards in step order; each step
-here knows its standard's kind (open, short, load, thru), the S-parameters it keeps from
-a sweep and the fixture position (one of the fixed names a switch understands).
+A method from ``acquire.calibration.METHODS`` lists its standards in step order with the
+port each is read at; each step here knows its kit standard, its kind (open, short, load,
+thru: also the fixture / switch position, one of the fixed names a switch understands),
+its port and the S-parameters it keeps from a sweep. A full two-port method reads
+open, short and load at port 1, then at port 2, then the thru; its reflect steps keep
+both reflections (S11 and S22) so a standard put on the wrong port can be told.
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
+
+import numpy as np
 
 from acquire.calibration import CalKit, method
 from acquire.errors import CalError
 
-PORT = 1  # the source port every guided method calibrates
+PORT = 1  # the source port every one-port and one-path method calibrates
 REFLECTION = "S11"
 TRANSMISSION = "S21"
+ALL_PARAMS = ("S11", "S21", "S12", "S22")
+ISOLATION = "isolation"  # the step with loads on both ports; its readings are load.S21/S12
 
 
 @dataclass(frozen=True)
 class Step:
     """One standard to connect and measure."""
 
-    name: str  # kit standard name; raw readings are stored as "<name>.<param>"
+    name: str  # unique step name: the kit standard, '-2' added for port 2 of a two-port
     kind: str  # open | short | load | thru: also the fixture / switch position
-    params: tuple[str, ...]
+    params: tuple[str, ...]  # what the step keeps from a sweep
+    standard: str = ""  # kit standard name (default: the step name)
+    port: int = PORT  # 1 or 2 for a reflect standard, 0 for a thru (both ports)
+
+    def __post_init__(self) -> None:
+        if not self.standard:
+            object.__setattr__(self, "standard", self.name)
 
     @property
     def label(self) -> str:
+        if self.name == ISOLATION:
+            return "ISOLATION (loads at both ports)"
+        if self.port == 2:
+            return f"{self.standard.upper()} at port 2"
         return self.name.upper()
 
     @property
     def is_reflect(self) -> bool:
         return self.kind != "thru"
 
+    @property
+    def reflection(self) -> str:
+        """The reflection parameter of the port this standard sits at."""
+        return "S22" if self.port == 2 else REFLECTION
 
-def build_steps(method_name: str, kit: CalKit, ports: int, plan: str = "") -> tuple[Step, ...]:
-    """The steps of ``method_name`` with ``kit``; ``CalError`` if the plan cannot do it."""
+    @property
+    def solve_params(self) -> tuple[str, ...]:
+        """The readings the solver takes from this step."""
+        return self.params if self.port == 0 else (self.reflection,)
+
+
+def build_steps(method_name: str, kit: CalKit, ports: int, plan: str = "",
+                isolation: bool = False) -> tuple[Step, ...]:
+    """The steps of ``method_name`` with ``kit``; ``CalError`` if the plan cannot do it.
+
+    ``isolation`` adds a step with the kit's load on both ports before the thru (its
+    transmission readings are the isolation terms)."""
     m = method(method_name)
+    if m.two_port and ports < 2:
+        raise CalError(f"plan {plan}: calibration method {m.name} calibrates two ports; the "
+                       "plan measures S11 only (use measure: two-port)")
+    if m.name == "two-port-unknown-thru":
+        raise CalError(f"plan {plan}: calibration method {m.name} needs measured switch terms, "
+                       "which the guided calibration cannot read from an analyzer yet; use "
+                       "method two-port (defined thru)")
     steps = []
-    for name in m.steps:
-        kind = kit.standard(name).kind
+    for spec in m.step_specs:
+        kind = kit.standard(spec.standard).kind
         if kind == "thru" and ports < 2:
-            raise CalError(f"plan {plan}: calibration method {method_name} needs a thru between "
+            raise CalError(f"plan {plan}: calibration method {m.name} needs a thru between "
                            "two ports; the plan measures S11 only (use measure: two-port)")
-        params = (TRANSMISSION, REFLECTION) if kind == "thru" else (REFLECTION,)
-        steps.append(Step(name, kind, params))
+        if kind == "thru":
+            params = ALL_PARAMS if m.two_port else (TRANSMISSION, REFLECTION)
+        else:
+            params = ("S11", "S22") if m.two_port else (REFLECTION,)
+        if kind == "thru" and isolation:
+            steps.append(_isolation_step(kit, m.two_port, plan))
+        name = f"{spec.standard}-2" if spec.port == 2 else spec.standard
+        steps.append(Step(name, kind, params, spec.standard, spec.port))
     return tuple(steps)
+
+
+def _isolation_step(kit: CalKit, two_port: bool, plan: str) -> Step:
+    loads = kit.names_of_kind("load")
+    if not loads:
+        raise CalError(f"plan {plan}: isolation needs a load standard; kit {kit.name} has none")
+    return Step(ISOLATION, "load", ("S21", "S12") if two_port else (TRANSMISSION,),
+                loads[0], 0)
+
+
+def flat_readings(steps: tuple[Step, ...], held: Mapping[str, Mapping[str, np.ndarray]]
+                  ) -> dict[str, np.ndarray]:
+    """The solver's raw readings ``{"<standard>.<param>": array}`` from the held steps."""
+    out: dict[str, np.ndarray] = {}
+    for step in steps:
+        for param in step.solve_params:
+            if step.name in held and param in held[step.name]:
+                out[f"{step.standard}.{param}"] = held[step.name][param]
+    return out

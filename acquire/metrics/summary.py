@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.jsonsafe import finite_or_none
 from acquire.metrics import conversions as cv
 from acquire.metrics.errors import MetricError
 from acquire.metrics.features import Bandwidth, Resonance, bandwidth, q_factor, resonance_min_gamma
@@ -17,6 +18,19 @@ from acquire.sweep import Sweep
 # the "-10 dB bandwidth" (RL >= 10 dB) and SWR <= 2 (RL >= 9.54 dB) of antenna work.
 SUMMARY_RETURN_LOSS_DB = 10.0
 SUMMARY_SWR = 2.0
+# A two-port whose |S21| or |S12| rises above this somewhere passes signal (a thru, a
+# cable, a filter): its S11 is not a load's impedance and has no resonator Q. Our choice.
+TRANSMITS_ABOVE_DB = -20.0
+
+
+def transmits(sweep: Sweep) -> bool:
+    """True for a two-port (or more) whose port 1 to port 2 path passes signal."""
+    if sweep.ports < 2:
+        return False
+    with np.errstate(all="ignore"):
+        db = cv.db20(np.concatenate([sweep.param("S21"), sweep.param("S12")]))
+    finite = db[np.isfinite(db)]
+    return bool(finite.size) and float(np.max(finite)) > TRANSMITS_ABOVE_DB
 
 
 @dataclass(frozen=True)
@@ -38,9 +52,9 @@ class ReflectionSummary:
             "resonance_hz": self.resonance.freq_hz,
             "resonance_at_sweep_edge": self.resonance.at_edge,
             "gamma_min": self.resonance.gamma_abs,
-            "swr_min": _json_float(cv.swr(self.resonance.gamma_abs)),
-            "return_loss_max_db": _json_float(cv.return_loss_db(self.resonance.gamma_abs)),
-            "impedance_at_resonance_ohm": [_json_float(z.real), _json_float(z.imag)],
+            "swr_min": finite_or_none(cv.swr(self.resonance.gamma_abs)),
+            "return_loss_max_db": finite_or_none(cv.return_loss_db(self.resonance.gamma_abs)),
+            "impedance_at_resonance_ohm": [finite_or_none(z.real), finite_or_none(z.imag)],
             f"bandwidth_rl{SUMMARY_RETURN_LOSS_DB:g}db": _band_dict(self.bandwidth_rl),
             f"bandwidth_swr{SUMMARY_SWR:g}": _band_dict(self.bandwidth_swr),
             "q_unloaded": self.q_unloaded,
@@ -75,6 +89,8 @@ def key_metrics(sweep: Sweep) -> dict[str, Any]:
     out: dict[str, Any] = {}
     try:
         out["S11"] = reflection_summary(sweep, "S11").to_dict()
+        if transmits(sweep):  # no resonator behind port 1: a Q would mean nothing
+            out["S11"]["q_unloaded"] = out["S11"]["q_loaded"] = None
     except MetricError as exc:
         out["S11"] = {"error": str(exc)}
     if sweep.ports >= 2:
@@ -102,6 +118,3 @@ def _band_dict(bw: Bandwidth) -> dict[str, Any]:
     }
 
 
-def _json_float(x: float | np.ndarray) -> float | None:
-    value = float(x)
-    return value if np.isfinite(value) else None

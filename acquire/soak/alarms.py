@@ -19,6 +19,7 @@ import threading
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 
+from acquire.soak.ownership import OwnershipError, check_command
 from acquire.soak.spec import Thresholds
 from acquire.units import format_frequency
 
@@ -102,6 +103,13 @@ class AlarmBook:
                    SWEEPD_METRIC=alarm.metric, SWEEPD_VALUE=repr(alarm.value),
                    SWEEPD_THRESHOLD=repr(alarm.threshold), SWEEPD_MESSAGE=alarm.message)
         command = list(self.thresholds.command)
+        try:  # checked again here: the file may have changed since the job started
+            check_command(command, "alarm command")
+        except OwnershipError as exc:
+            log.warning("job %s: %s", self.job_id, exc)
+            if self.on_command_failure is not None:
+                self.on_command_failure(str(exc))
+            return
         threading.Thread(target=self._command_thread, args=(command, env),
                          name="sweepd-alarm-command", daemon=True).start()
 

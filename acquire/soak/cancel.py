@@ -5,8 +5,9 @@ from __future__ import annotations
 import getpass
 import os
 
-from acquire.journal import Journal, utc_text
+from acquire.journal import JOURNAL_NAME, journal_in
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool
+from acquire.utc import utc_text
 
 
 def who() -> str:
@@ -28,8 +29,8 @@ def cancel_without_daemon(spool: Spool, job: Job) -> bool:
             return True
         reason = f"cancelled by {who()} while sweepd serve was not running"
         run_id = state.get("run_id")
-        if run_id and (job.output_dir / "journal.sqlite").is_file():
-            with Journal.in_folder(job.output_dir) as journal:
+        if run_id and (job.output_dir / JOURNAL_NAME).is_file():
+            with journal_in(job.output_dir) as journal:
                 journal.reconcile(run_id=int(run_id))
                 journal.record_fault(int(run_id), "cancel", reason, action="job stopped")
                 journal.end_run(int(run_id), "stopped", note=reason)
@@ -37,3 +38,29 @@ def cancel_without_daemon(spool: Spool, job: Job) -> bool:
         return True
     finally:
         lock.release()
+
+
+def cancel_job(spool: Spool, job: Job, wait_s: float,
+               daemon_here: bool = False) -> str:
+    """Ask ``job`` to stop; wait up to ``wait_s`` for it. Returns what happened, in words.
+
+    ``daemon_here`` says the caller is the daemon itself (the HTTP service), which stops
+    the job after the sweep in flight.
+    """
+    import time
+
+    from acquire.soak.spool import ACTIVE_STATES
+
+    state = job.read_state().get("state")
+    if state not in ACTIVE_STATES:
+        return f"job {job.id} is already {state}"
+    job.request_cancel(who())
+    if not daemon_here and spool.daemon_pid() is None and cancel_without_daemon(spool, job):
+        return f"job {job.id} cancelled (sweepd serve was not running)"
+    deadline = time.monotonic() + max(0.0, wait_s)
+    while time.monotonic() < deadline:
+        state = job.read_state().get("state")
+        if state not in ACTIVE_STATES:
+            return f"job {job.id} {state}"
+        time.sleep(0.1)
+    return f"job {job.id}: cancel requested; sweepd serve stops it after the sweep in flight"

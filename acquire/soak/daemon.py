@@ -21,20 +21,18 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
+from acquire.instruments import Instruments
+from acquire.soak.ownership import OwnershipError
 from acquire.soak.progress import progress_line
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from acquire.soak.worker import SoakWorker, StopSignal
+from drivers.resources import resource_key
 
 log = logging.getLogger(__name__)
 
 POLL_S = 0.2
 PROGRESS_EVERY_S = 10.0
 STOP_JOIN_S = 120.0  # longest wait for workers to finish their sweep after a stop
-
-
-def resource_key(resource: str) -> str:
-    """Resource strings name the same instrument regardless of case."""
-    return resource.strip().upper()
 
 
 @dataclass
@@ -48,8 +46,10 @@ class Daemon:
     """The job runner behind ``sweepd serve``."""
 
     def __init__(self, spool: Spool, *, until_idle: bool = False,
-                 progress: bool | None = None, poll_s: float = POLL_S) -> None:
+                 progress: bool | None = None, poll_s: float = POLL_S,
+                 instruments: Instruments | None = None) -> None:
         self.spool = spool
+        self.instruments = instruments  # shared with the HTTP service, when it runs
         self.until_idle = until_idle
         self.poll_s = poll_s
         self.progress = sys.stderr.isatty() if progress is None else progress
@@ -96,7 +96,12 @@ class Daemon:
             if job.id in self.running or job.id in self._settled:
                 continue
             try:
+                job.check_trusted()
                 state = job.read_state().get("state", "queued")
+            except OwnershipError as exc:
+                log.error("%s; the job is not run", exc)
+                self._settled.add(job.id)
+                continue
             except SpoolError as exc:
                 log.error("%s", exc)
                 continue
@@ -110,6 +115,9 @@ class Daemon:
             key = resource_key(job.resource)
             if key in busy:
                 continue
+            if self.instruments is not None and not self.instruments.try_hold(
+                    job.resource, f"soak job {job.id}"):
+                continue  # a measurement through the service holds it: next look
             busy.add(key)
             self._start(job)
 
@@ -146,6 +154,8 @@ class Daemon:
             if not entry.thread.is_alive():
                 entry.thread.join()
                 del self.running[job_id]
+                if self.instruments is not None:
+                    self.instruments.release(entry.job.resource)
 
     # -- stopping ----------------------------------------------------------------------------
     def _install_signals(self) -> Callable[[], None]:

@@ -11,14 +11,13 @@ reflection parameter. Everything is vectorised over points.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 
 from acquire.errors import PlanError
+from acquire.jsonsafe import finite_or_none
 from acquire.metrics import db20, resonance_min_gamma, swr
 from acquire.sweep import Sweep
 
@@ -39,7 +38,7 @@ class SweepDrift:
     worst_swr_rise: float | None = None
 
     def to_dict(self) -> dict[str, float | None]:
-        return {key: _finite(getattr(self, key)) for key in self.__dataclass_fields__}
+        return {key: finite_or_none(getattr(self, key)) for key in self.__dataclass_fields__}
 
     def metric(self, name: str) -> float | None:
         """A watched quantity by alarm name (magnitudes for the signed shifts)."""
@@ -48,7 +47,7 @@ class SweepDrift:
             "resonance_shift_hz": _abs(self.resonance_shift_hz),
             "worst_swr": self.worst_swr, "worst_swr_rise": self.worst_swr_rise,
         }.get(name)
-        return None if value is None or not math.isfinite(value) else float(value)
+        return finite_or_none(value)
 
 
 @dataclass(frozen=True)
@@ -151,11 +150,6 @@ def _resample(freq: np.ndarray, values: np.ndarray, grid: np.ndarray, source: st
     return np.interp(grid, freq, values.real) + 1j * np.interp(grid, freq, values.imag)
 
 
-def _finite(value: Any) -> float | None:
-    if value is None:
-        return None
-    value = float(value)
-    return value if math.isfinite(value) else None
 
 
 def _abs(value: float | None) -> float | None:

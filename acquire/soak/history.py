@@ -8,46 +8,27 @@ it, so they never disturb the daemon.
 from __future__ import annotations
 
 import json
-import sqlite3
-from collections.abc import Callable, Sequence
-from contextlib import closing
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from acquire.errors import JournalError
-from acquire.journal import JOURNAL_NAME
+from acquire.journal import DONE_STATES, JournalStore, journal_in
 
-Query = Callable[[str, Sequence[Any]], list[Any]]
-DONE_STATES = ("stored", "measured")
 SOAK_KIND = "soak"
 
 
-def read_only_query(journal_path: Path) -> tuple[Query, Callable[[], None]]:
-    """A query function on the journal that never writes, and its closer."""
-    if not journal_path.is_file():
-        raise JournalError(f"journal {journal_path}: not found")
-    try:
-        db = sqlite3.connect(f"file:{journal_path}?mode=ro", uri=True, timeout=10.0)
-    except sqlite3.Error as exc:
-        raise JournalError(f"journal {journal_path}: {exc}") from None
-    db.row_factory = sqlite3.Row
-
-    def query(sql: str, params: Sequence[Any] = ()) -> list[Any]:
-        try:
-            return db.execute(sql, tuple(params)).fetchall()
-        except sqlite3.Error as exc:
-            raise JournalError(f"journal {journal_path}: {exc}") from None
-
-    return query, db.close
-
-
-def find_run(query: Query, job_id: str) -> dict[str, Any] | None:
-    rows = query("SELECT * FROM runs WHERE job_id = ? AND kind = ? ORDER BY id LIMIT 1",
-                 (job_id, SOAK_KIND))
-    return dict(rows[0]) if rows else None
+def find_run(journal: JournalStore, job: Any) -> dict[str, Any] | None:
+    """The journal run of ``job``, matched on its unique id. A job submitted before jobs
+    had one is matched on the run its own state file names, if that run is its."""
+    if job.uid:
+        return journal.soak_run(job.uid)
+    run_id = job.read_state().get("run_id")
+    run = journal.run(int(run_id)) if run_id else None
+    if run is None or run["kind"] != SOAK_KIND or run["job_id"] != job.id:
+        return None
+    return run
 
 
 @dataclass
@@ -78,41 +59,36 @@ class Counts:
         return self.by_state.get("pending", 0)
 
     @property
+    def interrupted(self) -> int:
+        return self.by_state.get("interrupted", 0)
+
+    @property
     def next_seq(self) -> int:
         return 0 if self.last_seq is None else self.last_seq + 1
 
     def to_dict(self) -> dict[str, int]:
         return {"done": self.done, "kept": self.kept, "missed": self.missed,
-                "failed": self.failed, "pending": self.pending}
+                "failed": self.failed, "pending": self.pending,
+                "interrupted": self.interrupted}
 
 
-def counts(query: Query, run_id: int) -> Counts:
-    rows = query("SELECT state, COUNT(*) AS n, MAX(seq) AS top FROM measurements "
-                 "WHERE run_id = ? GROUP BY state", (run_id,))
-    by_state = {row["state"]: int(row["n"]) for row in rows}
-    tops = [int(row["top"]) for row in rows if row["top"] is not None]
-    return Counts(by_state, max(tops) if tops else None)
+def counts(journal: JournalStore, run_id: int) -> Counts:
+    by_state, top = journal.state_counts(run_id)
+    return Counts(by_state, top)
 
 
-def last_sweep(query: Query, run_id: int) -> dict[str, Any] | None:
-    rows = query("SELECT seq, time_utc, verdict, state, touchstone FROM measurements "
-                 "WHERE run_id = ? AND state IN ('stored', 'measured') "
-                 "ORDER BY seq DESC LIMIT 1", (run_id,))
-    return dict(rows[0]) if rows else None
+def last_sweep(journal: JournalStore, run_id: int) -> dict[str, Any] | None:
+    rows = journal.run_measurements(run_id, DONE_STATES, limit=1, newest_first=True)
+    return rows[0] if rows else None
 
 
-def faults(query: Query, run_id: int, limit: int | None = None) -> list[dict[str, Any]]:
-    sql = "SELECT seq, time_utc, kind, message, action FROM faults WHERE run_id = ? ORDER BY id"
-    if limit is not None:
-        sql = ("SELECT * FROM (SELECT seq, time_utc, kind, message, action, id FROM faults "
-               f"WHERE run_id = ? ORDER BY id DESC LIMIT {int(limit)}) ORDER BY id")
-    return [dict(row) for row in query(sql, (run_id,))]
+def faults(journal: JournalStore, run_id: int, limit: int | None = None
+           ) -> list[dict[str, Any]]:
+    return journal.faults(run_id, last=limit)
 
 
-def alarms(query: Query, run_id: int) -> list[dict[str, Any]]:
-    return [dict(row) for row in query(
-        "SELECT seq, time_utc, metric, value, threshold, message FROM alarms "
-        "WHERE run_id = ? ORDER BY id", (run_id,))]
+def alarms(journal: JournalStore, run_id: int) -> list[dict[str, Any]]:
+    return journal.alarms(run_id)
 
 
 @dataclass
@@ -126,6 +102,9 @@ class Series:
     touchstone: list[str | None]
     note: list[str | None]
     soak: list[dict[str, Any] | None]
+    cal_id: list[str | None] = field(default_factory=list)
+    cal_age_s: list[float | None] = field(default_factory=list)
+    instrument: list[str | None] = field(default_factory=list)
 
     def values(self, key: str) -> np.ndarray:
         """One soak metric per sweep (nan where absent)."""
@@ -135,9 +114,8 @@ class Series:
         return np.array([s in DONE_STATES for s in self.state], dtype=bool)
 
 
-def series(query: Query, run_id: int) -> Series:
-    rows = query("SELECT seq, state, verdict, touchstone, note, metrics_json FROM measurements "
-                 "WHERE run_id = ? ORDER BY seq", (run_id,))
+def series(journal: JournalStore, run_id: int) -> Series:
+    rows = journal.run_measurements(run_id)
     soak, t_s = [], []
     for row in rows:
         metrics = json.loads(row["metrics_json"]) if row["metrics_json"] else None
@@ -152,23 +130,15 @@ def series(query: Query, run_id: int) -> Series:
         touchstone=[row["touchstone"] for row in rows],
         note=[row["note"] for row in rows],
         soak=soak,
+        cal_id=[row["cal_id"] for row in rows],
+        cal_age_s=[row["cal_age_s"] for row in rows],
+        instrument=[row["instrument"] for row in rows],
     )
 
 
-def open_for_job(output_dir: Path) -> tuple[Query, Callable[[], None]]:
-    return read_only_query(output_dir / JOURNAL_NAME)
-
-
-def with_journal(output_dir: Path, action: Callable[[Query], Any]) -> Any:
-    """Run ``action(query)`` on a read-only view of the job's journal."""
-    query, close = open_for_job(output_dir)
-    with closing(_Closer(close)):
-        return action(query)
-
-
-class _Closer:
-    def __init__(self, close: Callable[[], None]) -> None:
-        self.close = close
+def open_for_job(output_dir: Path) -> JournalStore:
+    """The job's journal, read-only: readers never disturb the daemon."""
+    return journal_in(output_dir, read_only=True)
 
 
 def _num(value: Any) -> float:

@@ -2,18 +2,19 @@
 
 from __future__ import annotations
 
-from datetime import datetime, timezone
+from datetime import datetime
 from typing import Any
 
 from acquire.units import format_duration, format_frequency
+from acquire.utc import parse_utc, utc_now
 
 
 def clock_text(utc: str | None, now: datetime | None = None) -> str:
     """``06:10:00`` (local time) for today, ``Dec 03 06:10`` otherwise, ``-`` for none."""
     if not utc:
         return "-"
-    when = datetime.fromisoformat(utc.replace("Z", "+00:00")).astimezone()
-    today = (now or datetime.now(timezone.utc)).astimezone().date()
+    when = parse_utc(utc).astimezone()
+    today = (now or utc_now()).astimezone().date()
     return when.strftime("%H:%M:%S" if when.date() == today else "%b %d %H:%M")
 
 
@@ -47,8 +48,7 @@ def progress_line(job_id: str, status: dict[str, Any]) -> str:
         parts.append(f"next {clock_text(nxt.get('due_utc'))}")
     eta = status.get("eta_utc")
     if eta:
-        left = (datetime.fromisoformat(eta.replace("Z", "+00:00"))
-                - datetime.now(timezone.utc)).total_seconds()
+        left = (parse_utc(eta) - utc_now()).total_seconds()
         parts.append(f"ETA {clock_text(eta)} ({format_duration(max(0.0, left))} left)")
     parts.append(f"drift {drift_text(status)}")
     return f"job {job_id}: " + ", ".join(parts)

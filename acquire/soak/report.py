@@ -9,7 +9,7 @@ the sweeps the journal holds.
 
 from __future__ import annotations
 
-import html
+import contextlib
 from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
@@ -17,14 +17,20 @@ from typing import Any
 
 import numpy as np
 
+from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
-from acquire.soak.allan import adev_curve
+from acquire.soak.alarms import LABELS
+from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import read_deviation
-from acquire.soak.report_plots import allan_plot, deviation_plot, drift_plot
+from acquire.soak.report_pages import report_html, report_text
+from acquire.soak.report_plots import Events, Panel, allan_plot, deviation_plot, drift_plot
+from acquire.soak.sentences import FAULT_WORDS, fault_sentence
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job, SpoolError
+from acquire.soak.statistics import allan_points, trend_per_hour
 from acquire.storage import replace_atomic
 from acquire.units import format_duration, format_frequency
+from acquire.utc import parse_utc
 
 
 @dataclass
@@ -35,8 +41,24 @@ class Report:
     pictures: dict[str, Path]
 
 
-def write_report(job: Job, folder: Path) -> Report:
-    """Build every part of the report for ``job`` into ``folder``."""
+REPORT_FORMAT = "sweepd-report"
+REPORT_VERSION = 1
+
+
+def report_document(job: Job, report: Report) -> dict[str, Any]:
+    """The report as the JSON document ``sweepd report --json`` prints."""
+    return {
+        "format": REPORT_FORMAT, "version": REPORT_VERSION, "job": job.id,
+        "folder": str(report.folder), "html": str(report.html),
+        "text_file": str(report.folder / "summary.txt"),
+        "pictures": {name: str(path) for name, path in report.pictures.items()},
+        "summary": report.text.splitlines(),
+    }
+
+
+def _gather(job: Job) -> tuple[Any, SoakSpec, dict[str, Any], dict[str, Any], history.Series,
+                               list[dict[str, Any]], list[dict[str, Any]]]:
+    """Plan, soak spec, job state, journal run, series, faults and alarms of ``job``."""
     plan = job.load_plan()
     spec = parse_soak(plan)
     state = job.read_state()
@@ -44,34 +66,48 @@ def write_report(job: Job, folder: Path) -> Report:
     if run_id is None:
         raise SpoolError(f"job {job.id}: never ran (state {state.get('state')}); "
                          "nothing to report yet")
-    query, close = history.open_for_job(job.output_dir)
-    try:
-        rows = query("SELECT * FROM runs WHERE id = ?", (int(run_id),))
-        if not rows:
-            raise SpoolError(f"job {job.id}: run {run_id} is not in "
-                             f"{job.output_dir / 'journal.sqlite'}")
-        run = dict(rows[0])
+    with history.open_for_job(job.output_dir) as journal:
+        run = journal.run(int(run_id))
+        if run is None:
+            raise SpoolError(f"job {job.id}: run {run_id} is not in {journal.where}")
         run_id = int(run["id"])
-        ser = history.series(query, run_id)
-        faults = history.faults(query, run_id)
-        alarms = history.alarms(query, run_id)
-    finally:
-        close()
+        ser = history.series(journal, run_id)
+        faults = history.faults(journal, run_id)
+        alarms = history.alarms(journal, run_id)
+    return plan, spec, state, run, ser, faults, alarms
+
+
+def drift_png(job: Job) -> bytes:
+    """Only the drift picture of ``job``, as PNG bytes (for the live status page)."""
+    import tempfile
+
+    _, spec, state, _, ser, faults, alarms = _gather(job)
+    t_s = _times(ser, spec)
+    with tempfile.TemporaryDirectory(prefix="sweepd-drift-") as tmp:
+        path = _drift(Path(tmp), ser, spec, t_s, alarms, faults, f"soak {job.id}",
+                      float(state.get("start_epoch") or 0.0))
+        return path.read_bytes()
+
+
+def write_report(job: Job, folder: Path) -> Report:
+    """Build every part of the report for ``job`` into ``folder``."""
+    plan, spec, state, run, ser, faults, alarms = _gather(job)
     folder.mkdir(parents=True, exist_ok=True)
     done = ser.done_mask()
     deviation = read_deviation(job.data_dir, set(ser.seq[done].tolist()))
     t_s = _times(ser, spec)
     title = f"soak {job.id}"
     pictures = {
-        "drift": _drift(folder, ser, spec, t_s, alarms, faults, title),
+        "drift": _drift(folder, ser, spec, t_s, alarms, faults, title,
+                        float(state.get("start_epoch") or 0.0)),
         "allan": _allan(folder, ser, spec, t_s, title),
     }
     if deviation is not None and deviation[1].size:
         pictures["deviation"] = _deviation(folder, deviation, spec, title)
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
-    text = _text(facts)
+    text = report_text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
-    page = replace_atomic(folder / "summary.html", _html(facts, pictures))
+    page = replace_atomic(folder / "summary.html", report_html(facts, pictures, folder))
     return Report(folder, text, page, pictures)
 
 
@@ -115,36 +151,66 @@ def _alarm_times(alarms: list[dict[str, Any]], ser: history.Series,
 
 
 def _drift(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
-           alarms: list[dict[str, Any]], faults: list[dict[str, Any]], title: str) -> Path:
+           alarms: list[dict[str, Any]], faults: list[dict[str, Any]], title: str,
+           start_epoch: float) -> Path:
     done = ser.done_mask()
     th = spec.alarms
-    panels: list[tuple[str, np.ndarray, float | None]] = []
+    panels: list[Panel] = []
     if spec.reflection:
         shift = np.where(done, ser.values("resonance_shift_hz"), np.nan)
-        panels.append(("resonance shift (kHz)", shift / 1e3,
-                       th.resonance_shift_hz / 1e3 if th.resonance_shift_hz else None))
-        panels.append(("worst in-band SWR", np.where(done, ser.values("worst_swr"), np.nan),
-                       th.worst_swr))
-    panels.append((f"max |change| |{spec.parameter}| (dB)",
-                   np.where(done, ser.values("max_db"), np.nan), th.deviation_db))
-    panels.append((f"max |change| phase {spec.parameter} (deg)",
-                   np.where(done, ser.values("max_deg"), np.nan), th.deviation_deg))
+        panels.append(Panel("resonance shift (kHz)", shift / 1e3,
+                            th.resonance_shift_hz / 1e3 if th.resonance_shift_hz else None,
+                            signed=True))
+        panels.append(Panel("worst in-band SWR", np.where(done, ser.values("worst_swr"),
+                                                          np.nan), th.worst_swr))
+    panels.append(Panel(f"max |change| |{spec.parameter}| (dB)",
+                        np.where(done, ser.values("max_db"), np.nan), th.deviation_db))
+    panels.append(Panel(f"max |change| phase {spec.parameter} (deg)",
+                        np.where(done, ser.values("max_deg"), np.nan), th.deviation_deg))
     where = {int(s): float(t) for s, t in zip(ser.seq, t_s, strict=True)}
-    fault_t = np.array([where[f["seq"]] for f in faults if f["seq"] in where], dtype=float)
+
+    def times(rows: list[dict[str, Any]]) -> np.ndarray:
+        """Where each event sits: at its sweep, else at its journalled time."""
+        found = []
+        for row in rows:
+            if row.get("seq") in where:
+                found.append(where[row["seq"]])
+            elif start_epoch and row.get("time_utc"):
+                with contextlib.suppress(ValueError):
+                    found.append(_epoch(row["time_utc"]) - start_epoch)
+        return np.array(found, dtype=float)
+
     missed = t_s[np.array([s == "missed" for s in ser.state], dtype=bool)] \
         if ser.seq.size else np.array([])
-    return drift_plot(folder / "drift.png", panels, t_s, _alarm_times(alarms, ser, t_s),
-                      fault_t, missed, f"{title}: drift from the reference")
+    events = Events(
+        alarms=[(t, LABELS.get(m, m)) for t, m in _alarm_times(alarms, ser, t_s)],
+        faults=times([f for f in faults if f.get("kind") != "restart"]),
+        restarts=times([f for f in faults if f.get("kind") == "restart"]),
+        missed=missed)
+    return drift_plot(folder / "drift.png", panels, t_s, events,
+                      f"{title}: drift from the reference")
 
 
 def _allan(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
            title: str) -> Path:
     points: list[dict[str, Any]] = []
-    tau0 = _tau0(spec, ser, t_s)
-    if spec.reflection and ser.seq.size and tau0 > 0:
-        points = [p.to_dict() for p in adev_curve(_resonance_by_index(ser), tau0)]
+    note = "the soak tracks a transmission: no resonance"
+    if spec.reflection:
+        found = _allan_points(ser, spec, t_s)
+        if isinstance(found, str):
+            note = found
+        else:
+            points = [p.to_dict() for p in found]
     return allan_plot(folder / "allan.png", points, spec.alarms.resonance_adev_hz,
-                      f"{title}: stability of the resonance")
+                      f"{title}: stability of the resonance", note)
+
+
+def _allan_points(ser: history.Series, spec: SoakSpec,
+                  t_s: np.ndarray) -> list[AllanPoint] | str:
+    y = _resonance_by_index(ser)
+    times = np.full(y.size, np.nan)
+    times[ser.seq] = np.where(ser.done_mask(), t_s, np.nan)
+    return allan_points(y, times, _tau0(spec, ser, t_s), spec.minimums)
 
 
 def _deviation(folder: Path, deviation: tuple[np.ndarray, ...], spec: SoakSpec,
@@ -172,7 +238,7 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
               else "until cancelled")
     facts: dict[str, Any] = {
         "job": job.id, "plan": plan.name, "resource": job.resource,
-        "run": f"run {run['id']} in {job.output_dir / 'journal.sqlite'}",
+        "run": f"run {run['id']} in {job.output_dir / JOURNAL_NAME}",
         "started": run.get("started_utc"), "ended": run.get("ended_utc"),
         "state": job.read_state().get("state"), "run_state": run.get("state"),
         "schedule": f"{every}, {extent}" + (f" ({sched.total()} planned)" if sched.total()
@@ -182,14 +248,58 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
                    f"{states.get('pending', 0)} pending"),
         "verdicts": ", ".join(f"{n} {v}" for v, n in sorted(verdicts.items())) or "no checks",
         "drift": _drift_lines(spec, ser, t_s, done, deviation),
-        "alarms": [f"{a['time_utc']} sweep {a['seq']}: {a['message']}" for a in alarms],
-        "faults_by_kind": ", ".join(f"{k} {n}" for k, n in
+        "alarms": [f"{a['time_utc'][11:19]} UTC, sweep {a['seq']}: {a['message']}"
+                   for a in alarms],
+        "faults_by_kind": ", ".join(f"{FAULT_WORDS.get(k, k)}: {n}" for k, n in
                                     Counter(f["kind"] for f in faults).most_common()),
-        "faults": [f"{f['time_utc']} sweep {f['seq'] if f['seq'] is not None else '-'} "
-                   f"{f['kind']}: {f['message']} -> {f['action']}" for f in faults],
+        "faults": [fault_sentence(f) for f in faults],
         "data_dir": str(job.data_dir),
+        "instrument": _instruments(ser, run, job.resource),
+        "calibration": _calibrations(ser, plan),
+        "kept": [(int(q), Path(p)) for q, p, st in zip(ser.seq, ser.touchstone, ser.state,
+                                                       strict=True) if p and st == "stored"],
     }
     return facts
+
+
+def _instruments(ser: history.Series, run: dict[str, Any], resource: str) -> list[str]:
+    """Each instrument identity the sweeps were taken with, and over which sweeps."""
+    spans: list[list[Any]] = []  # [identity, first seq, last seq]
+    for seq, who in zip(ser.seq, ser.instrument, strict=True):
+        if not who:
+            continue
+        if spans and spans[-1][0] == who:
+            spans[-1][2] = int(seq)
+        else:
+            spans.append([who, int(seq), int(seq)])
+    if not spans:
+        who = run.get("instrument")
+        return [f"{who} at {resource}" if who else f"at {resource} (identity not recorded)"]
+    return [f"{who} at {resource}, sweeps {a}..{b}" for who, a, b in spans]
+
+
+def _calibrations(ser: history.Series, plan: Any) -> list[str]:
+    """Each calibration used: its id, method, when made and its age while in use."""
+    from acquire.calibration.calset import SUFFIX, read_header
+    from acquire.measure import cal_dir_for
+
+    ages: dict[str, list[float]] = {}
+    for cal_id, age in zip(ser.cal_id, ser.cal_age_s, strict=True):
+        if cal_id:
+            ages.setdefault(cal_id, []).extend([float(age)] if age is not None else [])
+    if not ages:
+        return ["none: the sweeps are uncorrected (raw instrument data)"]
+    lines = []
+    for cal_id, seen in ages.items():
+        detail = ""
+        with contextlib.suppress(Exception):  # a missing or unreadable file: id and age only
+            header = read_header(cal_dir_for(plan) / f"{cal_id}{SUFFIX}")
+            detail = (f", method {header.get('method', 'unknown')}, made "
+                      f"{header.get('created_utc', 'at an unknown time')}")
+        age = (f", {format_duration(min(seen))} old at the first sweep and "
+               f"{format_duration(max(seen))} at the last" if seen else "")
+        lines.append(f"{cal_id}{detail}{age}")
+    return lines
 
 
 def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.ndarray,
@@ -215,10 +325,9 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
             lines.append(f"resonance: reference {format_frequency(ref)}, last shift "
                          f"{_signed(shift[ok][-1])}, largest {_signed(shift[i])} at sweep "
                          f"{ser.seq[i]}")
-            if ok.sum() >= 3 and np.ptp(t_s[ok]) > 0:
-                slope = np.polyfit(t_s[ok], shift[ok], 1)[0]  # least squares, Hz/s
-                lines.append(f"resonance trend (least-squares line): {_signed(slope * 3600)}"
-                             "/h")
+            trend = trend_per_hour(t_s, np.where(ok, shift, np.nan), spec.minimums)
+            lines.append("resonance trend (least-squares line): " + (
+                trend if isinstance(trend, str) else f"{_signed(trend)}/h"))
         swr = np.where(done, ser.values("worst_swr"), np.nan)
         rise = np.where(done, ser.values("worst_swr_rise"), np.nan)
         if np.isfinite(swr).any():
@@ -226,13 +335,10 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
             ref = swr[np.isfinite(swr)][0] - rise[np.isfinite(swr)][0]
             lines.append(f"worst in-band SWR: reference {ref:.4f}, largest {swr[i]:.4f} at "
                          f"sweep {ser.seq[i]}")
-        tau0 = _tau0(spec, ser, t_s)
-        if tau0 > 0:
-            curve = adev_curve(_resonance_by_index(ser), tau0)
-            if curve:
-                shown = "; ".join(f"tau {format_duration(p.tau_s)}: {format_frequency(p.adev)}"
-                                  for p in curve[:6])
-                lines.append(f"Allan deviation of the resonance: {shown}")
+        curve = _allan_points(ser, spec, t_s)
+        shown = curve if isinstance(curve, str) else "; ".join(
+            f"tau {format_duration(p.tau_s)}: {format_frequency(p.adev)}" for p in curve[:6])
+        lines.append(f"Allan deviation of the resonance: {shown}")
     if deviation is not None and deviation[1].size:
         freq, _seq, db, _deg = deviation
         env = np.abs(db).max(axis=0)
@@ -242,51 +348,9 @@ def _drift_lines(spec: SoakSpec, ser: history.Series, t_s: np.ndarray, done: np.
     return lines
 
 
+def _epoch(utc: str) -> float:
+    return parse_utc(utc).timestamp()
+
+
 def _signed(hz: float) -> str:
     return f"{'+' if hz >= 0 else '-'}{format_frequency(abs(hz))}"
-
-
-def _text(f: dict[str, Any]) -> str:
-    lines = [
-        f"Soak report {f['job']}: plan {f['plan']} on {f['resource']}",
-        f"state: {f['state']} (journal {f['run']}: {f['run_state']})",
-        f"started {f['started']}, ended {f['ended'] or 'not yet'}",
-        f"schedule: {f['schedule']}",
-        f"sweeps: {f['sweeps']}",
-        f"verdicts: {f['verdicts']}",
-        "drift from the reference:",
-        *(f"  {line}" for line in f["drift"]),
-        f"alarms: {len(f['alarms'])}",
-        *(f"  {line}" for line in f["alarms"][-20:]),
-        f"faults: {len(f['faults'])}" + (f" ({f['faults_by_kind']})" if f["faults"] else ""),
-        *(f"  {line}" for line in f["faults"][-20:]),
-        f"files: {f['data_dir']}",
-    ]
-    return "\n".join(lines)
-
-
-def _html(f: dict[str, Any], pictures: dict[str, Path]) -> str:
-    e = html.escape
-    rows = "".join(f"<tr><th>{e(k)}</th><td>{e(str(v))}</td></tr>" for k, v in (
-        ("plan", f["plan"]), ("instrument", f["resource"]), ("state", f["state"]),
-        ("started", f["started"]), ("ended", f["ended"] or "not yet"),
-        ("schedule", f["schedule"]), ("sweeps", f["sweeps"]), ("verdicts", f["verdicts"]),
-        ("journal", f["run"]), ("files", f["data_dir"])))
-
-    def items(lines: list[str]) -> str:
-        return "<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>" if lines \
-            else "<p>none</p>"
-
-    images = "".join(f'<h2>{e(name)}</h2><img src="{e(path.name)}" alt="{e(name)}">'
-                     for name, path in pictures.items())
-    return (
-        "<!DOCTYPE html>\n<html><head><meta charset=\"utf-8\">"
-        f"<title>soak {e(f['job'])}</title><style>body{{font-family:sans-serif;"
-        "max-width:1100px;margin:1em auto}th{text-align:left;padding-right:1em}"
-        "img{max-width:100%}</style></head><body>"
-        f"<h1>Soak report {e(f['job'])}</h1><table>{rows}</table>"
-        f"<h2>Drift from the reference</h2>{items(f['drift'])}"
-        f"<h2>Alarms ({len(f['alarms'])})</h2>{items(f['alarms'])}"
-        f"<h2>Faults ({len(f['faults'])})</h2>{items(f['faults'][-200:])}"
-        f"{images}</body></html>\n"
-    )

@@ -1,7 +1,8 @@
 """The soak report's pictures (headless matplotlib, no pyplot), readable in grey.
 
-- ``drift.png``: the tracked metrics against time since the start, alarms as dashed
-  vertical lines with their metric named, faults as crosses and missed sweeps as ticks
+- ``drift.png``: the tracked metrics against time since the start with their alarm
+  thresholds (both signs for a shift), alarms as dashed vertical lines named in words,
+  restarts of the daemon as wide grey lines, faults as crosses and missed sweeps as ticks
   along the bottom.
 - ``allan.png``: the overlapping Allan deviation of the resonance against τ on log-log
   axes, with guide slopes −½ (white noise) and +1 (linear drift) through the first point
@@ -13,6 +14,7 @@
 from __future__ import annotations
 
 import io
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -28,13 +30,13 @@ GRID = "#c8c8c8"
 DPI = 110
 
 
-def time_axis(t_s: np.ndarray) -> tuple[np.ndarray, str]:
-    """Times in the unit that suits their span, and the axis label."""
+def time_axis(t_s: np.ndarray) -> tuple[float, str]:
+    """The unit (seconds per unit) that suits the times' span, and the axis label."""
     span = float(np.nanmax(t_s)) if np.isfinite(t_s).any() else 0.0
     for factor, unit in ((3600.0, "h"), (60.0, "min")):
         if span >= 3 * factor:
-            return t_s / factor, f"time since start ({unit})"
-    return t_s, "time since start (s)"
+            return factor, f"time since start ({unit})"
+    return 1.0, "time since start (s)"
 
 
 def _save(fig: Any, path: Path) -> Path:
@@ -49,50 +51,89 @@ def _style(ax: Any, ylabel: str) -> None:
     ax.tick_params(labelsize=9)
 
 
-def drift_plot(path: Path, panels: list[tuple[str, np.ndarray, float | None]],
-               t_s: np.ndarray, alarms: list[tuple[float, str]], faults: np.ndarray,
-               missed: np.ndarray, title: str) -> Path:
-    """``panels`` = (label, values per sweep, threshold or None), all on ``t_s``."""
+@dataclass(frozen=True)
+class Panel:
+    """One drift quantity: its axis label, a value per sweep and its alarm threshold.
+    A ``signed`` quantity (a shift) alarms on its magnitude: both +/- lines are drawn."""
+
+    label: str
+    values: np.ndarray
+    threshold: float | None = None
+    signed: bool = False
+
+
+@dataclass(frozen=True)
+class Events:
+    """What happened along the time axis (seconds since the start)."""
+
+    alarms: list[tuple[float, str]]  # (time, human label)
+    faults: np.ndarray
+    restarts: np.ndarray
+    missed: np.ndarray
+
+
+def drift_plot(path: Path, panels: list[Panel], t_s: np.ndarray, events: Events,
+               title: str) -> Path:
+    """``drift.png`` (see :func:`drift_figure`)."""
+    return _save(drift_figure(panels, t_s, events, title), path)
+
+
+def drift_figure(panels: list[Panel], t_s: np.ndarray, events: Events, title: str) -> Any:
+    """The drift quantities against time, thresholds and events marked (text kept inside
+    the figure: legends and labels sit in the axes, the layout makes room for them)."""
     from matplotlib.figure import Figure
 
-    x, xlabel = time_axis(t_s)
-    scale = (t_s / x)[np.isfinite(x) & (x != 0)]
-    factor = float(scale[0]) if scale.size else 1.0
+    factor, xlabel = time_axis(t_s)
+    x = t_s / factor
     fig = Figure(figsize=(11.0, 2.2 + 2.0 * len(panels)), layout="constrained")
     axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
-    for ax, (label, values, threshold) in zip(axes, panels, strict=True):
+    for ax, panel in zip(axes, panels, strict=True):
         # nan values (missed sweeps) break the line, so a gap never looks like data
-        ax.plot(x, values, color=INK, linewidth=1.0, marker=".", markersize=3)
-        if threshold is not None:
-            ax.axhline(threshold, color=MID, linestyle=(0, (6, 3)), linewidth=1.0)
-            ax.annotate("alarm threshold", (1.0, threshold), xycoords=("axes fraction", "data"),
-                        ha="right", va="bottom", fontsize=8, color=MID)
-        for when, _metric in alarms:
+        ax.plot(x, panel.values, color=INK, linewidth=1.0, marker=".", markersize=3)
+        if panel.threshold is not None:
+            levels = (panel.threshold, -panel.threshold) if panel.signed else (panel.threshold,)
+            for level in levels:
+                ax.axhline(level, color=MID, linestyle=(0, (6, 3)), linewidth=1.0)
+            ax.text(0.995, 0.97, "alarm threshold" + (" (+/-)" if panel.signed else ""),
+                    transform=ax.transAxes, ha="right", va="top", fontsize=8, color=MID,
+                    bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.85, "pad": 1})
+        for when, _label in events.alarms:
             ax.axvline(when / factor, color=INK, linestyle=(0, (2, 2)), linewidth=0.9)
-        _style(ax, label)
-    bottom = axes[-1]
-    if faults.size:
-        bottom.plot(faults / factor, np.zeros_like(faults), linestyle="none", marker="x",
-                    color=INK, markersize=7, transform=bottom.get_xaxis_transform(),
-                    clip_on=False, label=f"faults ({faults.size})")
-    if missed.size:
-        bottom.plot(missed / factor, np.zeros_like(missed), linestyle="none", marker="|",
-                    color=LIGHT, markersize=12, transform=bottom.get_xaxis_transform(),
-                    clip_on=False, label=f"missed sweeps ({missed.size})")
-    if alarms:
-        bottom.plot([], [], color=INK, linestyle=(0, (2, 2)), label=f"alarms ({len(alarms)})")
-    if faults.size or missed.size or alarms:
-        bottom.legend(loc="upper left", fontsize=8, framealpha=0.9)
-    for when, metric in alarms[:12]:
-        axes[0].annotate(metric, (when / factor, 1.0), xycoords=("data", "axes fraction"),
-                         rotation=90, ha="right", va="top", fontsize=7, color=INK)
-    bottom.set_xlabel(xlabel)
+        for when in events.restarts:
+            ax.axvline(when / factor, color=LIGHT, linestyle="-", linewidth=2.0, alpha=0.7)
+        _style(ax, panel.label)
+    _mark_events(axes, events, factor)
+    axes[-1].set_xlabel(xlabel)
     fig.suptitle(title, fontsize=12, fontweight="bold")
-    return _save(fig, path)
+    return fig
+
+
+def _mark_events(axes: Any, events: Events, factor: float) -> None:
+    bottom = axes[-1]
+    on_axis = {"linestyle": "none", "transform": bottom.get_xaxis_transform(), "clip_on": True}
+    if events.faults.size:
+        bottom.plot(events.faults / factor, np.full(events.faults.size, 0.04), marker="x",
+                    color=INK, markersize=7, label=f"faults ({events.faults.size})", **on_axis)
+    if events.missed.size:
+        bottom.plot(events.missed / factor, np.full(events.missed.size, 0.02), marker="|",
+                    color=LIGHT, markersize=10, label=f"missed sweeps ({events.missed.size})",
+                    **on_axis)
+    if events.restarts.size:
+        bottom.plot([], [], color=LIGHT, linewidth=2.0,
+                    label=f"restarts of the daemon ({events.restarts.size})")
+    if events.alarms:
+        bottom.plot([], [], color=INK, linestyle=(0, (2, 2)),
+                    label=f"alarms ({len(events.alarms)})")
+    if events.faults.size or events.missed.size or events.alarms or events.restarts.size:
+        bottom.legend(loc="upper left", fontsize=8, framealpha=0.9)
+    for when, label in events.alarms[:12]:
+        axes[0].annotate(label, (when / factor, 0.97), xycoords=("data", "axes fraction"),
+                         rotation=90, ha="right", va="top", fontsize=7, color=INK,
+                         annotation_clip=True)
 
 
 def allan_plot(path: Path, points: list[dict[str, Any]], threshold_hz: float | None,
-               title: str) -> Path:
+               title: str, note: str = "not enough data") -> Path:
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(8.0, 5.5), layout="constrained")
@@ -114,15 +155,16 @@ def allan_plot(path: Path, points: list[dict[str, Any]], threshold_hz: float | N
             ax.annotate(f"n={p['terms']}", (t, a), textcoords="offset points", xytext=(4, 4),
                         fontsize=7, color=MID)
     else:
-        ax.text(0.5, 0.5, "not enough sweeps for an Allan deviation", ha="center",
-                va="center", transform=ax.transAxes)
+        ax.text(0.5, 0.5, "Allan deviation: " + note, ha="center", va="center",
+                transform=ax.transAxes, wrap=True, fontsize=9)
     if threshold_hz is not None:
         ax.axhline(threshold_hz, color=INK, linestyle=(0, (2, 2)), linewidth=1.0,
                    label="alarm threshold")
     ax.grid(True, which="both", color=GRID, linewidth=0.5)
     ax.set_xlabel("averaging time tau (s)")
     ax.set_ylabel("Allan deviation of the resonance (Hz)")
-    ax.legend(fontsize=8, loc="best")
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(fontsize=8, loc="best")
     fig.suptitle(title, fontsize=12, fontweight="bold")
     return _save(fig, path)
 

@@ -18,6 +18,7 @@
         command: "logger -t sweepd-alarm"   # optional, run per alarm (no shell)
       faults: {retries: 2, backoff_first: 0.5 s, backoff_max: 30 s, give_up: 2 h}
       disk_reserve: 200 MB      # stop capturing when less is free
+      statistics: {min_sweeps: 20, min_span: 10 min}   # before trends and Allan deviation
 
 Errors are one line naming the plan file and key path, as everywhere else.
 """
@@ -32,6 +33,7 @@ from pathlib import Path
 
 from acquire.errors import PlanError
 from acquire.plan import Plan
+from acquire.soak.statistics import Minimums
 from acquire.yamlfile import Node, show
 
 REFLECTIONS = ("S11", "S22")
@@ -113,6 +115,7 @@ class SoakSpec:
     alarms: Thresholds = field(default_factory=Thresholds)
     faults: FaultPolicy = field(default_factory=FaultPolicy)
     disk_reserve_bytes: int = DEFAULT_RESERVE
+    minimums: Minimums = field(default_factory=Minimums)
 
     @property
     def reflection(self) -> bool:
@@ -132,7 +135,7 @@ def parse_soak(plan: Plan) -> SoakSpec:
     if soak is None:
         return SoakSpec(schedule, parameter=plan.measure[0])
     soak.mapping(("reference", "parameter", "band", "keep", "alarms", "faults",
-                  "disk_reserve"))
+                  "disk_reserve", "statistics"))
     parameter = soak["parameter"].text(plan.measure[0], choices=plan.measure)
     return SoakSpec(
         schedule=schedule,
@@ -143,6 +146,17 @@ def parse_soak(plan: Plan) -> SoakSpec:
         alarms=_alarms(soak["alarms"], parameter),
         faults=_faults(soak["faults"]),
         disk_reserve_bytes=_size(soak["disk_reserve"], DEFAULT_RESERVE),
+        minimums=_minimums(soak["statistics"]),
+    )
+
+
+def _minimums(node: Node) -> Minimums:
+    node.mapping(("min_sweeps", "min_span"), optional=True)
+    base = Minimums()
+    return Minimums(
+        min_sweeps=node["min_sweeps"].integer(base.min_sweeps, lo=3, hi=10_000_000),
+        min_span_s=node["min_span"].quantity("time", base.min_span_s, lo=0.0,
+                                             hi=366 * 86400.0),
     )
 
 

@@ -7,7 +7,8 @@ far, last fault, alarms) from the status file the worker rewrites while it runs.
     {"spool": PATH, "daemon": {"running": BOOL, "pid": INT|null},
      "jobs": [{"id", "plan", "resource", "state", "note", "submitted_utc",
                "started_utc", "ended_utc", "run_id",
-               "sweeps": {"planned", "done", "kept", "missed", "failed", "pending"},
+               "sweeps": {"planned", "done", "kept", "missed", "failed", "pending",
+                          "interrupted"},
                "last_sweep": {"index", "utc", "verdict", "kept"}|null,
                "last_fault": {"utc", "seq", "kind", "message", "action"}|null,
                "next_sweep": {"index", "due_utc"}|null, "eta_utc",
@@ -22,13 +23,14 @@ from __future__ import annotations
 from typing import Any
 
 from acquire.errors import JournalError
+from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
-from acquire.soak.daemon import resource_key
 from acquire.soak.progress import clock_text, drift_text, sweeps_text
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from drivers.errors import SweepdError
+from drivers.resources import resource_key
 
-COUNTERS = ("done", "kept", "missed", "failed", "pending")
+COUNTERS = ("done", "kept", "missed", "failed", "pending", "interrupted")
 
 
 def spool_view(spool: Spool, only: list[Job] | None = None) -> dict[str, Any]:
@@ -59,8 +61,8 @@ def job_view(job: Job, *, daemon_running: bool) -> dict[str, Any]:
     if job.cancel_requested and name in ACTIVE_STATES:
         note = "cancel requested"
     view: dict[str, Any] = {
-        "id": job.id, "plan": job.plan_name, "resource": job.resource, "state": name,
-        "note": note, "submitted_utc": job.submitted_utc,
+        "id": job.id, "uid": job.uid or None, "plan": job.plan_name,
+        "resource": job.resource, "state": name, "note": note, "submitted_utc": job.submitted_utc,
         "started_utc": state.get("started_utc"), "ended_utc": state.get("ended_utc"),
         "run_id": state.get("run_id"),
         "sweeps": {**dict.fromkeys(COUNTERS, 0), **(live.get("sweeps") or {}),
@@ -69,10 +71,11 @@ def job_view(job: Job, *, daemon_running: bool) -> dict[str, Any]:
         "next_sweep": live.get("next_sweep") if name in ("running", "held") else None,
         "eta_utc": live.get("eta_utc") if name in ACTIVE_STATES else None,
         "drift": live.get("drift") or {"reference": None, "parameter": None, "latest": None,
-                                       "worst": {}, "allan_resonance": []},
+                                       "worst": {}, "allan_resonance": [],
+                                       "statistics": "not enough data (not started)"},
         "alarms": {"count": 0, "active": [], "last": None, **(live.get("alarms") or {})},
         "files": live.get("files") or {"data_dir": str(job.data_dir),
-                                       "journal": str(job.output_dir / "journal.sqlite")},
+                                       "journal": str(job.output_dir / JOURNAL_NAME)},
     }
     _merge_journal(job, view)
     return view
@@ -97,25 +100,25 @@ def _merge_journal(job: Job, view: dict[str, Any]) -> None:
     if not run_id:
         return
     try:
-        query, close = history.open_for_job(job.output_dir)
+        journal = history.open_for_job(job.output_dir)
     except JournalError:
         return
     try:
-        counts = history.counts(query, int(run_id))
+        counts = history.counts(journal, int(run_id))
         view["sweeps"].update(counts.to_dict())
-        last = history.last_sweep(query, int(run_id))
+        last = history.last_sweep(journal, int(run_id))
         if last is not None:
             previous = view.get("last_sweep") or {}
             view["last_sweep"] = {"index": last["seq"], "utc": last["time_utc"],
                                   "verdict": last["verdict"], "kept": last["state"] == "stored"}
             if previous.get("index") == last["seq"] and previous.get("utc"):
                 view["last_sweep"]["utc"] = previous["utc"]
-        faults = history.faults(query, int(run_id), limit=1)
+        faults = history.faults(journal, int(run_id), limit=1)
         if faults:
             f = faults[-1]
             view["last_fault"] = {"utc": f["time_utc"], "seq": f["seq"], "kind": f["kind"],
                                   "message": f["message"], "action": f["action"]}
-        alarms = history.alarms(query, int(run_id))
+        alarms = history.alarms(journal, int(run_id))
         view["alarms"] = {**(view.get("alarms") or {"active": []}), "count": len(alarms)}
         if alarms:
             a = alarms[-1]
@@ -125,7 +128,7 @@ def _merge_journal(job: Job, view: dict[str, Any]) -> None:
     except JournalError:
         pass
     finally:
-        close()
+        journal.close()
 
 
 def format_view(view: dict[str, Any]) -> str:
@@ -169,7 +172,10 @@ def _details(job: dict[str, Any]) -> list[str]:
         last = alarms.get("last") or {}
         active = ", ".join(alarms.get("active") or []) or "none active"
         out.append(f"    alarms {alarms['count']} ({active}); last: {last.get('message', '-')}")
-    allan = (job.get("drift") or {}).get("allan_resonance") or []
+    drift = job.get("drift") or {}
+    allan = drift.get("allan_resonance") or []
+    if not allan and drift.get("statistics") not in (None, "ready"):
+        out.append(f"    statistics: {drift['statistics']}")
     if allan:
         from acquire.units import format_duration, format_frequency
 

@@ -22,25 +22,27 @@ import math
 import os
 import shutil
 import threading
-from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from acquire.journal import Journal, utc_text
+from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
+from acquire.jsonsafe import json_safe, json_text
 from acquire.measure import (
     Capture,
     Stored,
+    cal_dir_for,
     capture,
     journal_stored,
     plan_path,
     store,
+    stored_fields,
     worst_margin,
 )
 from acquire.soak import history
 from acquire.soak.alarms import AlarmBook
-from acquire.soak.allan import AllanPoint, adev_curve
+from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import DeviationFile
 from acquire.soak.drift import (
     Reference,
@@ -50,10 +52,13 @@ from acquire.soak.drift import (
     reference_from_file,
 )
 from acquire.soak.link import Backoff, InstrumentLink, fault_kind
+from acquire.soak.ownership import check_job_paths
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job
+from acquire.soak.statistics import allan_points
 from acquire.soak.timeline import Clock, Timeline
 from acquire.storage import sweep_stale_temps
+from acquire.utc import epoch_text, parse_utc, utc_text
 from drivers.errors import InstrumentError, ScpiErrorQueue, SweepdError
 
 log = logging.getLogger(__name__)
@@ -95,7 +100,7 @@ class SoakWorker:
         self.job = job
         self.stop = stop or StopSignal()
         self.clock = clock or Clock()
-        self.journal: Journal | None = None
+        self.journal: JournalStore | None = None
         self.link: InstrumentLink | None = None
         self.devfile: DeviationFile | None = None
         self.reference: Reference | None = None
@@ -108,6 +113,7 @@ class SoakWorker:
         self.alarm_count = 0
         self.last_alarm: dict[str, Any] | None = None
         self.allan: list[AllanPoint] = []
+        self.stats_note: str | None = "not enough data (no sweep yet)"
         self.state = "running"
         self.reason: str | None = None
         self.next_index = 0
@@ -140,15 +146,18 @@ class SoakWorker:
             plan = dataclasses.replace(plan, output=dataclasses.replace(
                 plan.output, name=plan.output.name + "-{index}"))
         self.plan = plan
-        job.data_dir.mkdir(parents=True, exist_ok=True, mode=0o700)
+        check_job_paths(job.output_dir, job.data_dir, cal_dir_for(plan),
+                        self.spec.alarms.command)
+        job.claim_data_dir()
         sweep_stale_temps(job.data_dir)
-        self.journal = journal = Journal.in_folder(job.output_dir)
+        self.journal = journal = journal_in(job.output_dir)
         state = job.read_state()
-        run = history.find_run(journal.query, job.id)
+        run = history.find_run(journal, job)
         now = self.clock.now()
         if run is None:
             self.run_id = journal.start_run("soak", plan.name, plan_path=str(job.plan_source),
-                                            resource=job.resource, job_id=job.id)
+                                            resource=job.resource, job_id=job.id,
+                                            job_uid=job.uid or None)
         else:
             self.run_id = int(run["id"])
         start = float(state.get("start_epoch") or now)
@@ -167,19 +176,18 @@ class SoakWorker:
         job.write_state(state="running", run_id=self.run_id, start_epoch=start,
                         started_utc=state.get("started_utc") or utc_text(), reason=None,
                         pid=os.getpid())
-        counts = history.counts(journal.query, self.run_id)
+        counts = history.counts(journal, self.run_id)
         self.tally = dict(counts.by_state)
         self.next_index = counts.next_seq
         self._persisted_alarms = sorted(state.get("alarms_active", []))
         self.alarms = AlarmBook(self.spec.alarms, job.id, set(self._persisted_alarms),
                                 on_command_failure=self._alarm_command_failed)
-        self.alarm_count = len(history.alarms(journal.query, self.run_id))
+        self.alarm_count = len(history.alarms(journal, self.run_id))
         self._load_reference()
         # stored rows without metrics: adopted now, or adopted by an earlier start that was
         # itself killed before it could fill them in
-        unfilled = [int(r["id"]) for r in journal.query(
-            "SELECT id FROM measurements WHERE run_id = ? AND state = 'stored' "
-            "AND metrics_json IS NULL ORDER BY seq", (self.run_id,))]
+        unfilled = [r for r in journal.run_measurements(self.run_id, ("stored",))
+                    if r["metrics_json"] is None]
         if unfilled:
             self._fill_adopted(unfilled)
         self._load_series()
@@ -323,16 +331,9 @@ class SoakWorker:
                 self.reference = None  # the next good sweep becomes the reference
         else:
             verdict = cap.verdict
-            journal.record_measured(
-                self.run_id, k, metrics=verdict.metrics,
-                verdict=verdict.verdict if verdict.results else None,
-                exit_code=verdict.exit_code if verdict.results else None,
-                worst_margin=worst_margin(verdict),
-                cal_id=cap.sweep.meta.get("cal_id") if cap.corrected else None,
-                cal_age_s=cap.sweep.meta.get("cal_age_s") if cap.corrected else None,
-                instrument=cap.sweep.meta.get("instrument"),
-                note=verdict.summary_line() if verdict.results else None,
-            )
+            journal.record_measured(self.run_id, k, stored_fields(
+                cap, note=verdict.summary_line() if verdict.results else None,
+                with_verdict_json=False))
             self._count("measured")
         for alarm in raised:
             journal.record_alarm(self.run_id, alarm.metric, alarm.message, seq=k,
@@ -395,16 +396,7 @@ class SoakWorker:
             return
         journal = self.journal
         assert journal is not None
-        when = utc_text()
-        added = 0
-        with journal.transaction() as db:
-            for seq in range(lo, hi):
-                cur = db.execute(
-                    "INSERT INTO measurements(run_id, seq, time_utc, state, note) "
-                    "VALUES (?, ?, ?, 'missed', ?) ON CONFLICT(run_id, seq) DO NOTHING",
-                    (self.run_id, seq, when, reason),
-                )
-                added += cur.rowcount
+        added = journal.record_missed(self.run_id, range(lo, hi), reason)
         self._count("missed", added)
         span = f"sweep {lo}" if hi == lo + 1 else f"sweeps {lo}..{hi - 1}"
         log.warning("job %s: %s missed: %s", self.job.id, span, reason)
@@ -548,9 +540,7 @@ class SoakWorker:
             return  # read from its file at the first sweep (resampled onto the sweep grid)
         journal = self.journal
         assert journal is not None
-        rows = journal.query(
-            "SELECT seq, touchstone FROM measurements WHERE run_id = ? AND state = 'stored' "
-            "ORDER BY seq LIMIT 1", (self.run_id,))
+        rows = journal.run_measurements(self.run_id, ("stored",), limit=1)
         if rows and rows[0]["touchstone"]:
             from acquire.touchstone import read_touchstone
 
@@ -558,16 +548,14 @@ class SoakWorker:
             self.reference = make_reference(sweep, self.spec.parameter, self.spec.band_hz,
                                             f"sweep {rows[0]['seq']}")
 
-    def _fill_adopted(self, ids: list[int]) -> None:
+    def _fill_adopted(self, rows: list[dict[str, Any]]) -> None:
         """Metrics for sweeps whose files were complete but whose rows were not finished."""
         from acquire.checks import evaluate_checks
         from acquire.touchstone import read_touchstone
 
         journal = self.journal
         assert journal is not None
-        for mid in ids:
-            row = journal.query_one("SELECT seq, touchstone, time_utc FROM measurements "
-                                    "WHERE id = ?", (mid,))
+        for row in rows:
             sweep = read_touchstone(row["touchstone"]).to_sweep()
             if self.reference is None:
                 self._load_reference()
@@ -575,7 +563,7 @@ class SoakWorker:
                     continue
             drift, delta_db, delta_deg = measure_drift(self.reference, sweep)
             verdict = evaluate_checks(list(self.plan.checks), sweep)
-            t_s = _epoch(row["time_utc"]) - self.timeline.start
+            t_s = parse_utc(row["time_utc"]).timestamp() - self.timeline.start
             metrics = {**verdict.metrics, "soak": {**drift.to_dict(), "t_s": round(t_s, 6),
                                                    "kept": ["adopted after a restart"]}}
             # files written before the kill are complete (atomic): the journal owns them too
@@ -583,18 +571,17 @@ class SoakWorker:
             summary = ts.with_suffix(".json")
             raw = ts.with_name(f"{ts.stem}.raw{ts.suffix}")
             self._devfile().append(int(row["seq"]), delta_db, delta_deg)  # before the row
-            with journal.transaction() as db:
-                db.execute("UPDATE measurements SET metrics_json=?, verdict=?, exit_code=?, "
-                           "worst_margin=?, summary=?, raw_touchstone=? WHERE id=?",
-                           (json_dumps(metrics), verdict.verdict if verdict.results else None,
-                            verdict.exit_code if verdict.results else None,
-                            worst_margin(verdict),
-                            str(summary) if summary.is_file() else None,
-                            str(raw) if raw.is_file() else None, mid))
+            journal.fill_measurement(
+                int(row["id"]), metrics_json=json_text(metrics),
+                verdict=verdict.verdict if verdict.results else None,
+                exit_code=verdict.exit_code if verdict.results else None,
+                worst_margin=worst_margin(verdict),
+                summary=str(summary) if summary.is_file() else None,
+                raw_touchstone=str(raw) if raw.is_file() else None)
 
     def _load_series(self) -> None:
         """The drift so far, from the journal (after a restart)."""
-        ser = history.series(self.journal.query, self.run_id)
+        ser = history.series(self.journal, self.run_id)
         done = ser.done_mask()
         if not done.any():
             return
@@ -635,10 +622,10 @@ class SoakWorker:
         if not force and now - self._allan_at < ALLAN_EVERY_S:
             return
         self._allan_at = now
-        y = self._resonance[: self.next_index + 1]
-        if np.count_nonzero(np.isfinite(y)) < 2:
-            return
-        self.allan = adev_curve(y, self._tau0())
+        n = self.next_index + 1
+        found = allan_points(self._resonance[:n], self._t_s[:n], self._tau0(),
+                             self.spec.minimums)
+        self.allan, self.stats_note = ([], found) if isinstance(found, str) else (found, None)
         watched = self.spec.alarms.resonance_adev_hz
         if watched is not None and self.allan:
             worst = max(p.adev for p in self.allan)
@@ -679,7 +666,7 @@ class SoakWorker:
         in_plan = self.state == "running" and self.timeline.in_plan(k, now) and \
             self.reason is None
         done = sum(self.tally.get(s, 0) for s in history.DONE_STATES)
-        return _clean({
+        return json_safe({
             "job": self.job.id,
             "state": self.state,
             "reason": self.reason,
@@ -688,27 +675,29 @@ class SoakWorker:
             "updated_utc": utc_text(),
             "schedule": {"every_s": schedule.every_s, "count": schedule.count,
                          "duration_s": schedule.duration_s, "planned": schedule.total(),
-                         "start_utc": _utc(self.timeline.start),
-                         "end_utc": _utc(self.timeline.end_time())},
+                         "start_utc": epoch_text(self.timeline.start),
+                         "end_utc": epoch_text(self.timeline.end_time())},
             "sweeps": {"done": done, "kept": self.tally.get("stored", 0),
                        "missed": self.tally.get("missed", 0),
-                       "failed": self.tally.get("failed", 0)},
+                       "failed": self.tally.get("failed", 0),
+                       "interrupted": self.tally.get("interrupted", 0)},
             "last_sweep": self.last_sweep,
             "last_fault": self.last_fault,
-            "next_sweep": {"index": k, "due_utc": _utc(max(self.timeline.due(k), now))}
+            "next_sweep": {"index": k, "due_utc": epoch_text(max(self.timeline.due(k), now))}
             if in_plan else None,
-            "eta_utc": _utc(self._eta(now, done)),
+            "eta_utc": epoch_text(self._eta(now, done)),
             "drift": {
                 "reference": self.reference.source if self.reference else None,
                 "parameter": self.spec.parameter,
                 "latest": self.latest.to_dict() if self.latest else None,
                 "worst": dict(self.worst),
                 "allan_resonance": [p.to_dict() for p in self.allan],
+                "statistics": self.stats_note or "ready",
             },
             "alarms": {"count": self.alarm_count, "active": sorted(self.alarms.active),
                        "last": self.last_alarm},
             "files": {"data_dir": str(self.job.data_dir),
-                      "journal": str(self.job.output_dir / "journal.sqlite")},
+                      "journal": str(self.job.output_dir / JOURNAL_NAME)},
         })
 
     def _eta(self, now: float, done: int) -> float | None:
@@ -730,30 +719,3 @@ class SoakWorker:
                 f"{self.tally.get('missed', 0)} missed, {self.tally.get('failed', 0)} failed")
 
 
-def _utc(epoch: float | None) -> str | None:
-    if epoch is None or not math.isfinite(epoch):
-        return None
-    return utc_text(datetime.fromtimestamp(epoch, timezone.utc))
-
-
-def _epoch(text: str) -> float:
-    return datetime.fromisoformat(text.replace("Z", "+00:00")).timestamp()
-
-
-def json_dumps(value: Any) -> str:
-    import json
-
-    return json.dumps(_clean(value))
-
-
-def _clean(value: Any) -> Any:
-    """JSON-safe: NaN and infinities become None, numpy scalars plain numbers."""
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    if isinstance(value, (np.floating, np.integer)):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value

@@ -12,11 +12,11 @@ Modules (small on purpose):
 - ``golden`` and ``schedule``: comparing the golden unit with its reference, and when the
   line is stopped or a golden check is due (from the journal).
 - ``counters``, ``stats``, ``records``, ``report``, ``export``, ``summary``: yield,
-  statistics with Cpk, per-measurement values, the summary text, the CSV export, and
+  statistics with Ppk and Cpk, per-measurement values, the summary text, the CSV export, and
   reading an output folder for ``sweepd summary``.
 - ``terminal``, ``display``, ``interrupts``, ``loop``: the operator's terminal loop.
-- ``driver``: a program standing in for the operator (pipe or pseudo-terminal), for the
-  demo and tests; ``demo``: the demo's simulated shift; ``errors``: the error classes.
+- ``errors``: the error classes. (The demo's shift and its stand-in operator live in
+  ``acquire.demo``; the pseudo-terminal driver for tests in ``tests/station_driver.py``.)
 
 Importing this package is light; the modules import numpy where they need it.
 """

@@ -16,6 +16,11 @@
         every: 4 h                    # ... or this much time since the last good check
         band: [2.40 GHz, 2.50 GHz]    # compare only here (default: the whole sweep)
         tolerance: {magnitude: 0.5 dB, phase: 5 deg, vector: 0.05, min_level: -40 dB}
+      hooks:                          # commands on pass, fail, line_stopped, line_resumed
+        fail: [/opt/line/stacklight, red, "{serial}"]      # (acquire.station.hooks)
+      indeterminate:                  # a unit within the guard band (plan decision: guarded)
+        action: retest                # retest (default): reseat and measure again; or hold
+        retests: 1                    # re-measurements before the unit goes on hold (0-5)
 
 Everything is optional; a plan without the section gets the default serial rule
 (letters, digits and ``. _ + -``, starting with a letter or digit, at most 40 long).
@@ -25,80 +30,42 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 from acquire.plan import Plan
+from acquire.station.errors import StationError
+from acquire.station.golden import (
+    DEFAULT_MIN_LEVEL_DB,
+    GoldenSpec,
+    Tolerance,
+    load_reference,
+)
+from acquire.station.hooks import Hooks, parse_hooks
 from acquire.station.pattern import PatternError, compile_pattern
+from acquire.station.serials import (
+    DEFAULT_MAX_LENGTH,
+    DEFAULT_PATTERN,
+    MAX_LENGTH_LIMIT,
+    SerialRule,
+    unsafe_reason,
+)
+from acquire.units import format_frequency
 from acquire.yamlfile import Node, show
 
-DEFAULT_PATTERN = r"[A-Za-z0-9][A-Za-z0-9._+-]*"
-DEFAULT_MAX_LENGTH = 40
-MAX_LENGTH_LIMIT = 128
 STATION_ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]{0,31}")
-# Golden-check defaults: our own choice for a reflection check (not from a standard).
-# Magnitude and phase are judged only where the reference is above min_level, since
-# both are ill-conditioned near a deep match; the vector difference holds everywhere.
-DEFAULT_TOLERANCE_DB = 0.5
-DEFAULT_TOLERANCE_DEG = 5.0
-DEFAULT_MIN_LEVEL_DB = -40.0
 
 
 @dataclass(frozen=True)
-class SerialRule:
-    """What a scanned serial must look like."""
+class IndeterminateRule:
+    """What the station does with an indeterminate unit (guarded acceptance)."""
 
-    pattern: str = DEFAULT_PATTERN
-    max_length: int = DEFAULT_MAX_LENGTH
-
-    @property
-    def regex(self) -> Any:
-        """The pattern compiled with RE2 (linear-time matching; see station/pattern.py)."""
-        return compile_pattern(self.pattern)
-
-
-@dataclass(frozen=True)
-class Tolerance:
-    """Allowed point-by-point difference between the golden unit and its reference."""
-
-    magnitude_db: float | None = DEFAULT_TOLERANCE_DB
-    phase_deg: float | None = DEFAULT_TOLERANCE_DEG
-    vector: float | None = None  # |S_measured - S_reference|, linear
-    min_level_db: float = DEFAULT_MIN_LEVEL_DB
+    action: str = "retest"  # retest | hold
+    retests: int = 1
 
     def describe(self) -> str:
-        parts = []
-        if self.magnitude_db is not None:
-            parts.append(f"{self.magnitude_db:g} dB")
-        if self.phase_deg is not None:
-            parts.append(f"{self.phase_deg:g} deg")
-        if self.vector is not None:
-            parts.append(f"|dS| {self.vector:g}")
-        return ", ".join(parts)
-
-
-@dataclass(frozen=True)
-class GoldenSpec:
-    """The reference unit, its stored Touchstone file, the schedule and the tolerance."""
-
-    serial: str
-    reference: Path
-    at_start: bool = True
-    every_units: int | None = None
-    every_s: float | None = None
-    band_hz: tuple[float, float] | None = None
-    tolerance: Tolerance = field(default_factory=Tolerance)
-
-    def describe(self) -> str:
-        when = ["at start"] if self.at_start else []
-        if self.every_units:
-            when.append(f"every {self.every_units} units")
-        if self.every_s:
-            from acquire.units import format_duration
-
-            when.append(f"every {format_duration(self.every_s)}")
-        return (f"golden unit {self.serial} ({', '.join(when) or 'on request'}; "
-                f"tolerance {self.tolerance.describe()})")
+        if self.action == "hold" or self.retests == 0:
+            return "indeterminate units go on hold"
+        return f"indeterminate units are retested up to {self.retests} time(s), then held"
 
 
 @dataclass(frozen=True)
@@ -107,6 +74,8 @@ class StationConfig:
     serial: SerialRule = field(default_factory=SerialRule)
     band_hz: tuple[float, float] | None = None
     golden: GoldenSpec | None = None
+    hooks: Hooks = field(default_factory=Hooks)
+    indeterminate: IndeterminateRule = field(default_factory=IndeterminateRule)
 
 
 def station_config(plan: Plan) -> StationConfig:
@@ -118,7 +87,7 @@ def station_config(plan: Plan) -> StationConfig:
 
 
 def parse_station(node: Node, plan: Plan) -> StationConfig:
-    node.mapping(("id", "serial", "band", "golden"))
+    node.mapping(("id", "serial", "band", "golden", "indeterminate", "hooks"))
     station_id = node["id"].text(None)
     if station_id is not None:
         check_station_id(station_id, node["id"])
@@ -127,7 +96,20 @@ def parse_station(node: Node, plan: Plan) -> StationConfig:
         serial=_serial(node["serial"]),
         band_hz=_band(node["band"], plan) if node["band"].present else None,
         golden=_golden(node["golden"], plan) if node["golden"].present else None,
+        hooks=parse_hooks(node["hooks"]),
+        indeterminate=_indeterminate(node["indeterminate"]),
     )
+
+
+def _indeterminate(node: Node) -> IndeterminateRule:
+    """``indeterminate: hold`` or ``{action: retest, retests: 2}``."""
+    if not node.present:
+        return IndeterminateRule()
+    if isinstance(node.value, str):
+        return IndeterminateRule(node.text(choices=("retest", "hold")))
+    node.mapping(("action", "retests"))
+    return IndeterminateRule(node["action"].text("retest", choices=("retest", "hold")),
+                             node["retests"].integer(1, lo=0, hi=5))
 
 
 def check_station_id(text: str, node: Node | None = None) -> str:
@@ -138,8 +120,6 @@ def check_station_id(text: str, node: Node | None = None) -> str:
                f"letter or digit), got {text!r}")
     if node is not None:
         node.fail(message)
-    from acquire.station.errors import StationError
-
     raise StationError(message)
 
 
@@ -159,8 +139,6 @@ def _serial(node: Node) -> SerialRule:
 
 
 def _band(node: Node, plan: Plan) -> tuple[float, float]:
-    from acquire.units import format_frequency
-
     items = node.elements(min_len=2)
     if len(items) != 2:
         node.fail(f"must be a pair [low, high], got {len(items)} values")
@@ -181,8 +159,6 @@ def _golden(node: Node, plan: Plan) -> GoldenSpec:
     node.mapping(("serial", "reference", "at_start", "every_units", "every", "band",
                   "tolerance"), required=("reference",))
     serial = node["serial"].text("GOLDEN")
-    from acquire.station.serials import unsafe_reason
-
     why = unsafe_reason(serial, DEFAULT_MAX_LENGTH)
     if why:
         node["serial"].fail(why)
@@ -199,8 +175,6 @@ def _golden(node: Node, plan: Plan) -> GoldenSpec:
         band_hz=_band(node["band"], plan) if node["band"].present else None,
         tolerance=_tolerance(node["tolerance"]),
     )
-    from acquire.station.golden import load_reference
-
     load_reference(spec, plan, node["reference"])
     return spec
 

@@ -16,26 +16,74 @@ Magnitude in dB as in Pozar, Microwave Engineering, 4th ed., ch. 2.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from acquire.checks import CheckResult, Verdict
+from acquire.errors import TouchstoneError
 from acquire.plan import Plan
-from acquire.station.config import GoldenSpec
 from acquire.station.errors import GoldenError
 from acquire.sweep import Sweep
-from acquire.units import format_frequency
+from acquire.touchstone import read_touchstone
+from acquire.units import format_duration, format_frequency
 from acquire.yamlfile import Node
 
+# Golden-check defaults: our own choice for a reflection check (not from a standard).
+# Magnitude and phase are judged only where the reference is above min_level, since
+# both are ill-conditioned near a deep match; the vector difference holds everywhere.
+DEFAULT_TOLERANCE_DB = 0.5
+DEFAULT_TOLERANCE_DEG = 5.0
+DEFAULT_MIN_LEVEL_DB = -40.0
 GRID_RTOL = 1e-9  # frequencies written in a file with fewer digits still count as equal
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """Allowed point-by-point difference between the golden unit and its reference."""
+
+    magnitude_db: float | None = DEFAULT_TOLERANCE_DB
+    phase_deg: float | None = DEFAULT_TOLERANCE_DEG
+    vector: float | None = None  # |S_measured - S_reference|, linear
+    min_level_db: float = DEFAULT_MIN_LEVEL_DB
+
+    def describe(self) -> str:
+        parts = []
+        if self.magnitude_db is not None:
+            parts.append(f"{self.magnitude_db:g} dB")
+        if self.phase_deg is not None:
+            parts.append(f"{self.phase_deg:g} deg")
+        if self.vector is not None:
+            parts.append(f"|dS| {self.vector:g}")
+        return ", ".join(parts)
+
+
+@dataclass(frozen=True)
+class GoldenSpec:
+    """The reference unit, its stored Touchstone file, the schedule and the tolerance."""
+
+    serial: str
+    reference: Path
+    at_start: bool = True
+    every_units: int | None = None
+    every_s: float | None = None
+    band_hz: tuple[float, float] | None = None
+    tolerance: Tolerance = field(default_factory=Tolerance)
+
+    def describe(self) -> str:
+        when = ["at start"] if self.at_start else []
+        if self.every_units:
+            when.append(f"every {self.every_units} units")
+        if self.every_s:
+            when.append(f"every {format_duration(self.every_s)}")
+        return (f"golden unit {self.serial} ({', '.join(when) or 'on request'}; "
+                f"tolerance {self.tolerance.describe()})")
 
 
 def load_reference(spec: GoldenSpec, plan: Plan, node: Node | None = None) -> Sweep:
     """Read the golden reference and check it fits the plan (ports, frequency grid)."""
-    from acquire.errors import TouchstoneError
-    from acquire.touchstone import read_touchstone
-
     def fail(message: str) -> Any:
         if node is not None:
             node.fail(message)
@@ -81,6 +129,9 @@ class GoldenResult:
     magnitude_db: Worst | None = None
     phase_deg: Worst | None = None
     vector: Worst | None = None
+    limits: tuple[float | None, float | None, float | None] = (None, None, None)
+    reference: str = ""
+    serial: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -148,7 +199,42 @@ def compare(measured: Sweep, reference: Sweep, spec: GoldenSpec,
         message = (f"golden unit {spec.serial} within tolerance ({tol.describe()}): worst "
                    + ", ".join(_shown(w, u) for w, u in ((worst_db, " dB"), (worst_deg, " deg"),
                                                          (worst_vec, "")) if w is not None))
-    return GoldenResult(not over, message, points, worst_db, worst_deg, worst_vec)
+    return GoldenResult(not over, message, points, worst_db, worst_deg, worst_vec,
+                        (tol.magnitude_db, tol.phase_deg, tol.vector), spec.reference.name,
+                        spec.serial)
+
+
+WORST_KINDS = (("magnitude_db", "magnitude", " dB"), ("phase_deg", "phase", " deg"),
+               ("vector", "|dS|", ""))
+
+
+def golden_check(result: GoldenResult) -> CheckResult:
+    """The golden comparison as a check result: worst deviation of each kind, where it is
+    and its limit (the verdict of a golden capture)."""
+    worst: dict[str, Any] = {}
+    parts = []
+    for (key, label, unit), limit in zip(WORST_KINDS, result.limits, strict=True):
+        found: Worst | None = getattr(result, key)
+        if found is None:
+            worst[key] = None
+            continue
+        worst[key] = {**found.to_dict(), "limit": limit}
+        bound = f"limit {limit:g}{unit}" if limit is not None else "no limit"
+        parts.append(f"{label} {found.value:.3g}{unit} at {found.parameter} "
+                     f"{format_frequency(found.freq_hz)} ({bound})")
+    name = f"golden {result.serial}".strip()
+    summary = f"{name} vs {result.reference}: " + (", ".join(parts) or result.message)
+    return CheckResult("golden", name, "pass" if result.passed else "fail", summary,
+                       details={"reference": result.reference, "points": result.points,
+                                "worst": worst})
+
+
+def golden_verdict(unit: Verdict, result: GoldenResult) -> Verdict:
+    """A golden capture's verdict: the golden comparison decides it; the plan's own
+    checks on the golden unit are kept in ``metrics.unit_checks`` for information."""
+    metrics = {**unit.metrics, "golden_check": result.to_dict(),
+               "unit_checks": [r.to_dict() for r in unit.results]}
+    return Verdict((golden_check(result),), unit.sweep_info, metrics)
 
 
 def _worst(values: np.ndarray, valid: np.ndarray, freq: np.ndarray,

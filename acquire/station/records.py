@@ -2,7 +2,7 @@
 
 Values come from what was stored with each measurement: the key metrics and key figures
 (``metrics_json``) and the check results (``verdict_json``). Limits come from the checks
-themselves, so Cpk is always taken against the limits the unit was judged by:
+themselves, so Ppk and Cpk are always taken against the limits the unit was judged by:
 
 - a mask segment with one flat limit: its worst value against that limit (USL for an
   upper limit, LSL for a lower one); a sloped or two-sided segment: its worst margin
@@ -18,6 +18,8 @@ import json
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
+
+from acquire.journal import JournalStore
 
 # key, label, unit, path into metrics_json
 BASE_METRICS: tuple[tuple[str, str, str, tuple[str, ...]], ...] = (
@@ -36,7 +38,9 @@ BASE_METRICS: tuple[tuple[str, str, str, tuple[str, ...]], ...] = (
 WORST_MARGIN = ("worst_margin", "worst mask margin", "")
 
 COLUMNS = ("id", "run_id", "plan", "station", "time_utc", "serial", "attempt", "golden",
-           "state", "verdict", "worst_margin", "cal_id", "instrument", "touchstone", "summary")
+           "state", "verdict", "judged", "worst_margin", "cal_id", "instrument", "touchstone",
+           "summary")
+DERIVED = ("judged",)  # 1 when the measurement has a verdict, 0 when it is unjudged
 
 
 @dataclass(frozen=True)
@@ -59,26 +63,15 @@ class Record:
         return self.fields[key]
 
 
-def query_records(journal: Any, *, since_utc: str | None = None, plan: str | None = None
+def query_records(journal: JournalStore, *, since_utc: str | None = None, plan: str | None = None
                   ) -> list[Record]:
     """Every measurement row (all states), oldest first, as records."""
-    where, params = [], []
-    if since_utc is not None:
-        where.append("m.time_utc >= ?")
-        params.append(since_utc)
-    if plan is not None:
-        where.append("r.plan = ?")
-        params.append(plan)
-    sql = ("SELECT m.id, m.run_id, r.plan, r.station, m.time_utc, m.serial, m.attempt, "
-           "m.golden, m.state, m.verdict, m.worst_margin, m.cal_id, m.instrument, "
-           "m.touchstone, m.summary, m.metrics_json, m.verdict_json FROM measurements m "
-           "JOIN runs r ON r.id = m.run_id"
-           + (" WHERE " + " AND ".join(where) if where else "") + " ORDER BY m.time_utc, m.id")
-    return [record(row) for row in journal.query(sql, tuple(params))]
+    return [record(row) for row in journal.measurements(since_utc=since_utc, plan=plan)]
 
 
 def record(row: Any) -> Record:
-    rec = Record({name: row[name] for name in COLUMNS})
+    rec = Record({name: row[name] for name in COLUMNS if name not in DERIVED})
+    rec.fields["judged"] = int(row["verdict"] not in (None, "none"))
     metrics = _json(row["metrics_json"])
     for key, label, unit, path in BASE_METRICS:
         value = _dig(metrics, path)

@@ -11,11 +11,12 @@ and survives restarts.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import datetime, timezone
+from datetime import datetime
 
-from acquire.journal import Journal, utc_text
-from acquire.station.config import GoldenSpec
+from acquire.journal import JournalStore
+from acquire.station.golden import GoldenSpec
 from acquire.units import format_duration
+from acquire.utc import parse_utc, utc_now, utc_text
 
 
 @dataclass(frozen=True)
@@ -28,23 +29,11 @@ class LineState:
     anchor_utc: str | None = None  # last good golden check, or the releasing cal
 
 
-def parse_utc(text: str) -> datetime:
-    """A journal or cal-set timestamp (ISO 8601, ``Z``) as an aware datetime."""
-    return datetime.fromisoformat(text.replace("Z", "+00:00")).astimezone(timezone.utc)
-
-
-def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
+def line_state(journal: JournalStore, plan: str, spec: GoldenSpec, *,
                cal_created: datetime | None = None, now: datetime | None = None) -> LineState:
     """The line's golden-check state for ``plan`` (see the module docstring)."""
-    last = journal.query_one(
-        "SELECT g.time_utc, g.passed, g.message FROM golden_checks g JOIN runs r "
-        "ON r.id = g.run_id WHERE r.plan = ? ORDER BY g.time_utc DESC, g.id DESC LIMIT 1",
-        (plan,),
-    )
-    last_pass = journal.query_one(
-        "SELECT MAX(g.time_utc) FROM golden_checks g JOIN runs r ON r.id = g.run_id "
-        "WHERE r.plan = ? AND g.passed = 1", (plan,),
-    )[0]
+    last = journal.last_golden(plan)
+    last_pass = journal.last_good_golden_utc(plan)
     cal_text = utc_text(cal_created) if cal_created is not None else None
     anchor = last_pass
     if last is not None and not last["passed"]:
@@ -54,17 +43,12 @@ def line_state(journal: Journal, plan: str, spec: GoldenSpec, *,
         anchor = cal_text  # released by a calibration made after the failed check
     if anchor is None:
         return LineState(due=True, due_reason=f"no golden check on record for plan {plan}")
-    # ">=": journal times have millisecond resolution, and a unit journalled in the same
-    # millisecond as the check (or the releasing cal) came after it.
-    units = int(journal.query_one(
-        "SELECT COUNT(*) FROM measurements m JOIN runs r ON r.id = m.run_id WHERE r.plan = ? "
-        "AND m.golden = 0 AND m.state = 'stored' AND m.time_utc >= ?", (plan, anchor),
-    )[0])
+    units = journal.units_since(plan, anchor)
     if spec.every_units and units >= spec.every_units:
         return LineState(due=True, due_reason=f"{units} units since the last good golden "
                          f"check (every {spec.every_units})", units_since=units,
                          anchor_utc=anchor)
-    elapsed = ((now or datetime.now(timezone.utc)) - parse_utc(anchor)).total_seconds()
+    elapsed = ((now or utc_now()) - parse_utc(anchor)).total_seconds()
     if spec.every_s and elapsed >= spec.every_s:
         return LineState(due=True, due_reason=f"{format_duration(elapsed)} since the last "
                          f"good golden check (every {format_duration(spec.every_s)})",

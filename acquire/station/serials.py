@@ -11,11 +11,30 @@ stray escape sequence cannot upset the operator's terminal.
 
 from __future__ import annotations
 
-from acquire.station.config import SerialRule
-from acquire.station.errors import SerialRefused
+from dataclasses import dataclass
+from typing import Any
 
+from acquire.station.errors import SerialRefused
+from acquire.station.pattern import compile_pattern
+
+DEFAULT_PATTERN = r"[A-Za-z0-9][A-Za-z0-9._+-]*"
+DEFAULT_MAX_LENGTH = 40
+MAX_LENGTH_LIMIT = 128
 SCANNER_BLANKS = " \t\r\n"
 SHOWN_MAX = 40
+
+
+@dataclass(frozen=True)
+class SerialRule:
+    """What a scanned serial must look like."""
+
+    pattern: str = DEFAULT_PATTERN
+    max_length: int = DEFAULT_MAX_LENGTH
+
+    @property
+    def regex(self) -> Any:
+        """The pattern compiled with RE2 (linear-time matching; see station/pattern.py)."""
+        return compile_pattern(self.pattern)
 
 
 def shown(text: str) -> str:

@@ -8,12 +8,13 @@ every outcome, errors included (``RESULT_KEYS``; see README "sweepd measure").
 
 from __future__ import annotations
 
+import contextlib
 import shlex
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from acquire.journal import Journal
+from acquire.journal import journal_in
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
@@ -54,23 +55,19 @@ class Outcome:
         return self.result.exit_code
 
 
-def measure_one(plan: Plan, request: Request) -> Outcome:
-    """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure."""
+def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
+    """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure.
+
+    ``session`` is an open ``Session`` for this plan on the request's instrument (the
+    measurement service keeps one open between calls); without it one is opened and
+    closed here.
+    """
     from acquire.measure import choose_calibration
     from acquire.runner import Session
 
     config = station_config(plan)
     golden = config.golden
-    if request.golden:
-        if golden is None:
-            raise StationError(f"plan {plan.source}: --golden needs station.golden in the plan")
-        serial = golden.serial
-    else:
-        if not request.serial:
-            raise StationError("measure: give --serial SERIAL (or --golden)")
-        serial = check_serial(request.serial, config.serial)
-        if golden is not None and serial == golden.serial:
-            raise StationError(f"serial {serial} is the golden unit's: use --golden")
+    serial = unit_serial(plan, request)
     station_id = request.station_id or config.station_id or ""
     if station_id:
         check_station_id(station_id)
@@ -81,25 +78,18 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
         reference = load_reference(golden, plan)
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with Journal.in_folder(out_dir) as journal:
+    with journal_in(out_dir) as journal:
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
                                    station=station_id or None, resource=resource)
         try:
-            with Session(plan, resource) as session:
+            with contextlib.nullcontext(session) if session is not None \
+                    else Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
                 cal = choose_calibration(plan, session)
                 line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
                             reference)
                 if golden is not None and not request.golden:
-                    created = cal.calset.created if cal.calset is not None else None
-                    state = line_state(journal, plan.name, golden, cal_created=created)
-                    golden_run = golden_command(plan, request)
-                    if state.stopped:
-                        raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
-                                          f"pass a golden re-check: run `{golden_run}`")
-                    if state.due:
-                        raise LineStopped(f"golden check due: {state.due_reason}; run "
-                                          f"`{golden_run}` first")
+                    _check_line_open(journal, plan, golden, cal, request)
                 result = measure_unit(line, serial, golden=request.golden)
         except SweepdError as exc:
             journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
@@ -109,7 +99,37 @@ def measure_one(plan: Plan, request: Request) -> Outcome:
             journal.end_run(run_id, "stopped", note="interrupted")
             raise
         journal.end_run(run_id)
-        return Outcome(result, journal.path, run_id, resource)
+        return Outcome(result, Path(journal.where), run_id, resource)
+
+
+def unit_serial(plan: Plan, request: Request) -> str:
+    """The serial to measure: the request's, checked against the plan's rule, or the
+    golden unit's; ``StationError`` saying why not (before any instrument is touched)."""
+    config = station_config(plan)
+    golden = config.golden
+    if request.golden:
+        if golden is None:
+            raise StationError(f"plan {plan.source}: --golden needs station.golden in the plan")
+        return golden.serial
+    if not request.serial:
+        raise StationError("measure: give --serial SERIAL (or --golden)")
+    serial = check_serial(request.serial, config.serial)
+    if golden is not None and serial == golden.serial:
+        raise StationError(f"serial {serial} is the golden unit's: use --golden")
+    return serial
+
+
+def _check_line_open(journal: Any, plan: Plan, golden: Any, cal: Any,
+                     request: Request) -> None:
+    """``LineStopped`` while the line is stopped or a golden check is due."""
+    created = cal.calset.created if cal.calset is not None else None
+    state = line_state(journal, plan.name, golden, cal_created=created)
+    golden_run = golden_command(plan, request)
+    if state.stopped:
+        raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
+                          f"pass a golden re-check: run `{golden_run}`")
+    if state.due:
+        raise LineStopped(f"golden check due: {state.due_reason}; run `{golden_run}` first")
 
 
 def golden_command(plan: Plan, request: Request) -> str:

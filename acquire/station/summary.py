@@ -3,14 +3,15 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import datetime, timedelta, timezone
+from datetime import datetime, timedelta
 from pathlib import Path
 from typing import Any
 
-from acquire.journal import JOURNAL_NAME, Journal, utc_text
+from acquire.journal import JOURNAL_NAME, open_journal
 from acquire.station.errors import StationError
 from acquire.station.records import Record, query_records
 from acquire.station.report import PlanSummary, summarise, summary_lines
+from acquire.utc import parse_iso, utc_now, utc_text
 
 MAX_SINCE_S = 100 * 365.25 * 86400.0  # a duration back of at most a century
 
@@ -30,9 +31,9 @@ def parse_since(text: str, now: datetime | None = None) -> str:
         if not 0 <= seconds <= MAX_SINCE_S:
             raise StationError(f"--since {shown}: a duration back must be from 0 s to "
                                f"{MAX_SINCE_S / 86400 / 365.25:g} years")
-        return utc_text((now or datetime.now(timezone.utc)) - timedelta(seconds=seconds))
+        return utc_text((now or utc_now()) - timedelta(seconds=seconds))
     try:
-        moment = datetime.fromisoformat(value.replace("Z", "+00:00").replace(" ", "T", 1))
+        moment = parse_iso(value)
         if moment.tzinfo is None:
             moment = moment.astimezone()  # naive: the machine's local time
         return utc_text(moment)
@@ -85,23 +86,9 @@ def load_selection(folder: Path, *, since_utc: str | None = None, plan: str | No
     if not path.is_file():
         raise StationError(f"summary {folder}: no journal ({JOURNAL_NAME}) there; nothing "
                            "was measured into this folder")
-    with Journal(path) as journal:
+    with open_journal(path) as journal:
         records = query_records(journal, since_utc=since_utc, plan=plan)
-        golden = _golden_rows(journal, since_utc, plan)
+        golden = journal.golden_checks(since_utc=since_utc, plan=plan)
     return Selection(folder, path, since_utc, records,
                      summarise(records, golden, all_attempts=all_attempts))
 
-
-def _golden_rows(journal: Journal, since_utc: str | None, plan: str | None) -> list[Any]:
-    where, params = [], []
-    if since_utc is not None:
-        where.append("g.time_utc >= ?")
-        params.append(since_utc)
-    if plan is not None:
-        where.append("r.plan = ?")
-        params.append(plan)
-    return journal.query(
-        "SELECT r.plan, g.passed FROM golden_checks g JOIN runs r ON r.id = g.run_id"
-        + (" WHERE " + " AND ".join(where) if where else "") + " ORDER BY g.id",
-        tuple(params),
-    )

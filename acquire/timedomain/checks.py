@@ -30,7 +30,8 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 from acquire.checks import Check, CheckResult
-from acquire.errors import MaskError
+from acquire.errors import ConfigError, MaskError
+from acquire.library import find_config
 from acquire.sweep import Sweep
 from acquire.timedomain.peaks import Peak, find_peaks
 from acquire.timedomain.spec import SETTING_KEYS, DtfSpec, parse_spec
@@ -154,9 +155,6 @@ def parse_distance_check(node: Node) -> DistanceCheck:
     if node["zones"].present == node["mask"].present:
         node.fail("needs exactly one of zones (limits here) or mask (a distance mask file)")
     if node["mask"].present:
-        from acquire.errors import ConfigError
-        from acquire.library import find_config
-
         try:
             path = find_config("masks", node["mask"].text(), node.base_dir)
         except ConfigError as exc:

@@ -17,7 +17,6 @@ from typing import Any
 
 import numpy as np
 
-from acquire.plaintext import plain_text
 from acquire.storage import replace_atomic
 from acquire.timedomain.checks import Zone
 from acquire.timedomain.distance import DistanceProfile
@@ -33,9 +32,8 @@ class DtfPlotError(SweepdError):
     """The picture cannot be made as asked."""
 
 
-# User text (titles, zone names) is drawn exactly as typed: passed through plain_text
-# (no math markup), and no TeX.
-PLAIN = {"usetex": False}
+# User text (titles, zone names) is drawn exactly as typed: no math markup, no TeX.
+PLAIN = {"parse_math": False, "usetex": False}
 
 
 def write_plot(profile: DistanceProfile, peaks: list[Peak], path: Path | str, *,
@@ -68,7 +66,7 @@ def render(profile: DistanceProfile, peaks: list[Peak], *, zones: tuple[Zone, ..
     axes[-1].set_xlabel("distance (m), velocity factor "
                         f"{profile.line.velocity_factor:g}")
     axes[-1].set_xlim(0.0, profile.shown_range_m)
-    fig.suptitle(plain_text(title or "distance to fault"), fontsize=12, fontweight="bold", **PLAIN)
+    fig.suptitle(title or "distance to fault", fontsize=12, fontweight="bold", **PLAIN)
     return fig
 
 
@@ -90,7 +88,7 @@ def _level_panel(ax: Any, profile: DistanceProfile, peaks: list[Peak],
     ax.set_ylim(top, max(float(np.nanmin(rl)) - 3.0, -5.0))  # small RL (bad) at the top
     ax.set_ylabel("return loss (dB)")
     ax.grid(True, color=GRID, linewidth=0.5)
-    ax.set_title(plain_text(_axis_note(profile)), fontsize=9, loc="left", **PLAIN)
+    ax.set_title(_axis_note(profile), fontsize=9, loc="left", **PLAIN)
 
 
 def _zone_limit(ax: Any, zone: Zone, shown_m: float, top: float) -> None:
@@ -99,7 +97,7 @@ def _zone_limit(ax: Any, zone: Zone, shown_m: float, top: float) -> None:
     ax.plot([zone.from_m, to], [limit_rl, limit_rl], color=LIMIT, linewidth=1.4)
     ax.fill_between([zone.from_m, to], limit_rl, min(limit_rl, -5.0) - 10.0, facecolor="none",
                     edgecolor=HATCH, hatch="///", linewidth=0.0)
-    ax.annotate(plain_text(zone.name), (zone.from_m, limit_rl), textcoords="offset points",
+    ax.annotate(zone.name, (zone.from_m, limit_rl), textcoords="offset points",
                 xytext=(2, 3), fontsize=7, color=LIMIT, **PLAIN)
 
 

@@ -1,11 +1,8 @@
-"""Driving ``sweepd station`` the way an operator does, from a program (demo, tests).
-
-The station runs as its own process (``python -m acquire.cli station ...``) with its
-input and output on a pipe or on a pseudo-terminal (a real terminal interface, as over
-ssh). ``expect`` waits until the station shows one of its prompts (``serial> ``,
-``golden> ``, ...) and returns what it printed since; ``send`` types a line and Enter.
-Nothing is simulated here: the station reads real bytes and talks to a real instrument
-(or the simulator) over TCP or a serial line.
+"""A program standing in for the station operator: ``sweepd station`` in its own process
+with its terminal on a pipe. ``expect`` waits until the station shows one of its prompts
+(``serial> ``, ``golden> ``, ...) and returns what it printed since; ``send`` types a
+line and Enter; ``wait`` reads until the station exits. Nothing is simulated here: the
+station reads real bytes and talks to the simulator over TCP.
 """
 
 from __future__ import annotations
@@ -15,7 +12,6 @@ import contextlib
 import os
 import re
 import selectors
-import signal
 import subprocess
 import sys
 import time
@@ -28,13 +24,12 @@ PROMPTS = ("serial> ", "golden> ", "stopped> ", "cal> ", "instrument> ", "statio
 ANSI = re.compile(r"\x1b\[[0-9;]*m")
 
 
-class StationProcess:
-    """A station subprocess with a pipe or pseudo-terminal for its terminal."""
+class Operator:
+    """A station subprocess whose terminal is a pipe, driven line by line."""
 
-    def __init__(self, args: Sequence[str], *, pty: bool = False, echo: TextIO | None = None,
+    def __init__(self, args: Sequence[str], *, echo: TextIO | None = None,
                  env: dict[str, str] | None = None, cwd: str | None = None) -> None:
         self.args = list(args)
-        self.use_pty = pty
         self.echo = echo
         self.env = dict(os.environ if env is None else env, PYTHONUNBUFFERED="1")
         self.cwd = cwd
@@ -46,24 +41,19 @@ class StationProcess:
         self._fd = -1
         self._write_fd = -1
 
-    # -- life cycle ------------------------------------------------------------------------
-    def start(self) -> StationProcess:
-        argv = [sys.executable, "-m", "acquire.cli", "station", *self.args]
-        if self.use_pty:
-            master, slave = os.openpty()
-            self.proc = subprocess.Popen(argv, stdin=slave, stdout=slave, stderr=slave,
-                                         env=self.env, cwd=self.cwd, start_new_session=True)
-            os.close(slave)
-            self._fd = self._write_fd = master
-        else:
-            self.proc = subprocess.Popen(argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                                         stderr=subprocess.STDOUT, env=self.env, cwd=self.cwd,
-                                         start_new_session=True)
-            self._fd = self.proc.stdout.fileno()
-            self._write_fd = self.proc.stdin.fileno()
+    @property
+    def argv(self) -> list[str]:
+        return [sys.executable, "-m", "acquire.cli", "station", *self.args]
+
+    def start(self) -> Operator:
+        self.proc = subprocess.Popen(self.argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                     stderr=subprocess.STDOUT, env=self.env, cwd=self.cwd,
+                                     start_new_session=True)
+        self._fd = self.proc.stdout.fileno()
+        self._write_fd = self.proc.stdin.fileno()
         return self
 
-    def __enter__(self) -> StationProcess:
+    def __enter__(self) -> Operator:
         return self if self.proc is not None else self.start()
 
     def __exit__(self, *exc: object) -> None:
@@ -81,30 +71,18 @@ class StationProcess:
                 self.proc.kill()
                 self.proc.wait(timeout=5)
         self.drain()
-        if self.use_pty:
-            with contextlib.suppress(OSError):
-                os.close(self._fd)
-        else:
-            for stream in (self.proc.stdin, self.proc.stdout):
-                with contextlib.suppress(OSError):
-                    stream.close()
+        self._close_streams()
         self.proc = None
 
-    # -- talking ---------------------------------------------------------------------------
+    def _close_streams(self) -> None:
+        for stream in (self.proc.stdin, self.proc.stdout):
+            with contextlib.suppress(OSError):
+                stream.close()
+
     def send(self, line: str | bytes) -> None:
         """Type ``line`` and Enter (bytes are sent as they are, plus the line end)."""
         data = line if isinstance(line, bytes) else line.encode("utf-8", "surrogateescape")
         os.write(self._write_fd, data + b"\n")
-
-    def close_input(self) -> None:
-        """End of input (a pipe is closed; a terminal gets Ctrl-D at the start of a line)."""
-        if self.use_pty:
-            os.write(self._write_fd, b"\x04")
-        else:
-            self.proc.stdin.close()
-
-    def signal(self, signum: int = signal.SIGINT) -> None:
-        self.proc.send_signal(signum)
 
     def expect(self, *prompts: str, timeout_s: float = 30.0) -> str:
         """Wait for one of ``prompts`` (default: any station prompt) at the end of the
@@ -120,16 +98,6 @@ class StationProcess:
                                    f"output: {tail!r}")
         text, self._pending = self._pending, ""
         return text
-
-    def until(self, text: str, timeout_s: float = 30.0) -> str:
-        """Wait until ``text`` appears in the output since the last ``expect``."""
-        deadline = time.monotonic() + timeout_s
-        while text not in self._pending:
-            left = deadline - time.monotonic()
-            if left <= 0 or not self._read(left):
-                raise StationError(f"station output lacks {text!r}; last output: "
-                                   f"{self._pending[-600:]!r}")
-        return self._pending
 
     def wait(self, timeout_s: float = 30.0) -> int:
         """Wait for the station to exit (reading its output meanwhile); its exit status."""

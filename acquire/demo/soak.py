@@ -14,18 +14,19 @@ import subprocess
 import sys
 import time
 from pathlib import Path
-from typing import Any
 
 import yaml
 
+from acquire.demo.context import DemoContext
 from acquire.library import library_dir
+from acquire.soak.spool import Spool
 
 SWEEPS = 40
 EVERY_S = 0.15
 CLOCK_RATE = 900.0  # simulated seconds per real second: the 6 s soak covers 1.5 h
 
 
-def soak_plan(ctx: Any) -> Path:
+def soak_plan(ctx: DemoContext) -> Path:
     data = yaml.safe_load((library_dir("plans") / "patch-soak.yaml").read_text())
     data["instrument"]["resource"] = ctx.sim.tcp_resource
     data["instrument"]["timeout"] = "1 s"  # a lost reply costs one second, not five
@@ -41,7 +42,7 @@ def soak_plan(ctx: Any) -> Path:
     return path
 
 
-def demo_step(ctx: Any) -> None:
+def demo_step(ctx: DemoContext) -> None:
     """Submit, serve, watch and report a short soak against the demo's simulator."""
     plan = soak_plan(ctx)
     spool = ctx.root / "spool"
@@ -81,6 +82,4 @@ def demo_step(ctx: Any) -> None:
 
 
 def _job_id(spool: Path) -> str:
-    from acquire.soak.spool import Spool
-
     return Spool(spool).jobs()[-1].id

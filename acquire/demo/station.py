@@ -1,11 +1,11 @@
 """The demo's production shift: ``sweepd station`` driven through its terminal interface.
 
-A program stands in for the operator (``acquire.station.driver``): it answers the
+A program stands in for the operator (``acquire.demo.operator``): it answers the
 station's prompts over a pipe while putting each unit of the simulated lot on the
 fixture before typing its serial. The shift: the station finds no cal set and runs the
 calibration procedure; golden check at the start; twenty units, one malformed label and
 one retest; at the second golden check the fixture has been bumped, the line stops, the
-fixture is put back and the re-check passes; then the summary with Cpk and a CSV export,
+fixture is put back and the re-check passes; then the summary with Ppk, Cpk and a CSV export,
 and one ``sweepd measure --json`` call as an MES would make it.
 """
 
@@ -13,8 +13,12 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
-from typing import Any, TextIO
+from typing import TextIO
 
+import yaml
+
+from acquire.demo.context import DemoContext, DemoError, demo_plan
+from acquire.demo.operator import Operator
 from acquire.library import library_dir
 
 SERIALS = [f"PA-{n:04d}" for n in range(101, 121)]
@@ -39,13 +43,9 @@ class _Indented:
         self.out.flush()
 
 
-def station_plan(ctx: Any) -> Path:
+def station_plan(ctx: DemoContext) -> Path:
     """The shipped patch-station plan, pointed at the demo's simulator."""
-    from acquire.demo import demo_plan
-
     source = library_dir("plans")
-    import yaml
-
     station = yaml.safe_load((source / "patch-station.yaml").read_text())["station"]
     station["id"] = "demo-line-1"
     station["golden"]["reference"] = str(source / "golden" / "patch-station-golden.s1p")
@@ -53,11 +53,8 @@ def station_plan(ctx: Any) -> Path:
     return demo_plan(ctx, "patch-station", ctx.sim.tcp_resource, station=station)
 
 
-def demo_step(ctx: Any) -> None:
+def demo_step(ctx: DemoContext) -> None:
     """Run a short simulated shift and summarise it (see the module docstring)."""
-    from acquire.demo import DemoError
-    from acquire.station.driver import StationProcess
-
     plan = station_plan(ctx)
     out = ctx.root / "results" / "patch-station"
     queue: list[str] = [*SERIALS[:5], MALFORMED, *SERIALS[5:12], "RETEST", *SERIALS[12:]]
@@ -65,7 +62,7 @@ def demo_step(ctx: Any) -> None:
     failed_first: str | None = None
     print(f"  $ sweepd station {plan} --no-color   (an operator program answers the prompts)",
           flush=True)
-    with StationProcess([str(plan), "--no-color"], echo=_Indented(sys.stdout)) as station:
+    with Operator([str(plan), "--no-color"], echo=_Indented(sys.stdout)) as station:
         while True:
             text = station.expect()
             if text.endswith("cal> "):
