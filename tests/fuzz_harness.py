@@ -68,7 +68,7 @@ def _dialect(path: Path) -> None:
 
 
 def _calset(path: Path) -> None:
-    from acquire.calibration.calset import CalSet, find_latest, list_calsets
+    from acquire.calibration import CalSet, find_latest, list_calsets
 
     list_calsets(path.parent)  # the station's and the daemon's lookup: never raises
     find_latest(path.parent, "patch-line-a")

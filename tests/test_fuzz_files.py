@@ -32,6 +32,9 @@ from hypothesis import strategies as st
 
 from acquire.library import find_config
 
+# A failing batch is large; its report names the failing case itself.
+pytestmark = pytest.mark.filterwarnings("ignore::hypothesis.errors.HypothesisWarning")
+
 MEMORY_MB = 1024
 BATCH = 12
 
