@@ -195,7 +195,8 @@ BAD = [
         ":TRAC:DATA? {param}",
         "data.trace_query: template may only use {trace}, found {param}",
     ),
-    ("data.layout", "polar", "data.layout: must be one of re_im, db_deg, lin_deg, got 'polar'"),
+    ("data.layout", "polar", "data.layout: must be one of re_im, db_deg, lin_deg, freq_re_im, "
+     "freq_db_deg, freq_lin_deg, got 'polar'"),
     (
         "data.formats[0].encoding",
         "real16",
