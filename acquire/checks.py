@@ -26,6 +26,7 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any
 
+from acquire.errors import CheckError
 from acquire.jsonsafe import json_safe
 from acquire.masks import EDGE_RTOL, Limit, Mask, MaskResult, Segment, evaluate_mask
 from acquire.sweep import Sweep
@@ -296,10 +297,6 @@ def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
             check, f"{format_frequency(lo)}..{format_frequency(hi)} is not inside the sweep "
             f"{format_frequency(f[0])}..{format_frequency(f[-1])}",
         )
-
-
-class CheckError(SweepdError):
-    """A check cannot judge this sweep."""
 
 
 def _judged(check: Check, margin: float, *, inside: bool = True) -> str:

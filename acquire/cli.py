@@ -20,6 +20,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
     "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
+    "export": ("export", "trace data of a Touchstone file as CSV: frequency plus quantities"),
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
     "measure": ("measure", "measure one unit for MES calls: checks, files, journal (0/1/2)"),
@@ -29,7 +30,14 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "status": ("status", "show every soak job: state, sweeps, faults, next sweep, drift"),
     "cancel": ("cancel", "stop a soak job cleanly after the sweep in flight"),
     "report": ("report", "plots and summary of a soak job: drift, Allan deviation, alarms"),
+    "probe": ("probe", "list the instruments pyvisa-py sees, or identify one and its dialect"),
+    "dialect": ("dialect_check", "check a dialect file offline, or command by command on an "
+                "instrument"),
 }
+# Commands that talk to an instrument get --io-log (drivers.iolog); -vv shows the same.
+IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe", "dialect"}
+IO_LOG_HELP = ("append every message sent to and received from the instrument to FILE, with "
+               "monotonic times and byte counts (binary payloads summarised)")
 
 EXIT_OK, EXIT_FAIL, EXIT_ERROR = 0, 1, 2
 
@@ -48,6 +56,8 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module, help_text) in COMMANDS.items():
         command = sub.add_parser(name, help=help_text, description=help_text)
+        if name in IO_COMMANDS:
+            command.add_argument("--io-log", metavar="FILE", help=IO_LOG_HELP)
         _module(module).add_arguments(command)
         command.set_defaults(_module=module)
     return parser
@@ -65,6 +75,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if getattr(args, "resource", None) is not None and _check_resource(args):
             return EXIT_ERROR
+        _start_io_log(args)
         return int(_module(args._module).run(args))
     except SweepdError as exc:
         _error(str(exc))
@@ -77,8 +88,23 @@ def main(argv: list[str] | None = None) -> int:
         where = f" ({exc.filename})" if exc.filename else ""
         _error(f"{exc.strerror or exc}{where}")
     except Exception as exc:  # anything unforeseen: exit 2, never 1 (1 means "failed")
+        from acquire.errors import internal_error_text
+
         _error(internal_error_text(exc))
+    finally:
+        if "drivers.iolog" in sys.modules:
+            sys.modules["drivers.iolog"].stop()
     return EXIT_ERROR
+
+
+def _start_io_log(args: argparse.Namespace) -> None:
+    """``--io-log FILE`` and ``-vv`` (traffic on stderr) share the I/O log hook."""
+    path = getattr(args, "io_log", None)
+    if path is None and args.verbose < 2:
+        return
+    from drivers import iolog
+
+    iolog.start(path)
 
 
 def _error(message: str) -> None:
@@ -86,17 +112,6 @@ def _error(message: str) -> None:
     from drivers.yamlnode import one_line
 
     print(f"sweepd: error: {one_line(message)}", file=sys.stderr)
-
-
-def internal_error_text(exc: BaseException) -> str:
-    """One line for an unexpected exception; its traceback goes to the log at debug level."""
-    import logging
-
-    logging.getLogger("sweepd").debug("unexpected error", exc_info=exc)
-    detail = " ".join(str(exc).split())
-    detail = detail if len(detail) <= 160 else detail[:157] + "..."
-    return (f"internal error ({type(exc).__name__}{': ' + detail if detail else ''}); "
-            "run with -vv for the traceback")
 
 
 def _check_resource(args: argparse.Namespace) -> bool:

@@ -57,7 +57,7 @@ class OutputSpec:
     """Where results go and how files are named (``{plan}-{serial}-{time}``)."""
 
     dir: Path
-    name: str = "{plan}-{time}"
+    name: str = "{plan}-{serial}-{time}"
     touchstone: TouchstoneSpec = field(default_factory=TouchstoneSpec)
     keep_raw: bool = False
 
@@ -231,7 +231,7 @@ def _measure(node: Node) -> tuple[str, ...]:
 def _output(node: Node, plan_name: str) -> OutputSpec:
     node.mapping(("dir", "name", "touchstone", "keep_raw"), optional=True)
     out_dir = node["dir"].file_path(None) or (node.base_dir or Path()) / "results"
-    name = node["name"].text("{plan}-{time}")
+    name = node["name"].text("{plan}-{serial}-{time}")
     _check_template(node["name"], name)
     ts = node["touchstone"]
     ts.mapping(("version", "format", "frequency_unit", "precision"), optional=True)

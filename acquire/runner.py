@@ -57,7 +57,17 @@ class Session:
         self.applied = self.plan.stimulus
 
     def open(self) -> Session:
-        self.analyzer.open()
+        from drivers.errors import ConnectError
+
+        try:
+            self.analyzer.open()
+        except ConnectError as exc:  # a busy instrument: say who holds it, in words
+            from acquire.holders import busy_message
+
+            words = busy_message(str(exc), self.resource)
+            if words is None:
+                raise
+            raise ConnectError(words) from None
         ident = self.analyzer.identity
         self.identity_text = ",".join(
             (ident.maker, ident.model, ident.serial, ident.firmware)

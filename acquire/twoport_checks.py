@@ -10,7 +10,8 @@ Definitions (Pozar, Microwave Engineering, 4th ed.): insertion loss IL = −20·
 (positive dB for a passive device, ch. 4 and 8), return loss RL = −20·log10|Sii|
 (ch. 2), group delay τ = −dφ/dω (ch. 8); flatness is its peak-to-peak spread over the
 band (common practice). Insertion and return loss are judged as one-segment masks, so
-points between the sweep points at the band ends are caught as for any mask.
+points between the sweep points at the band ends are caught as for any mask. The plan
+entries are read by ``acquire.check_parse``.
 """
 
 from __future__ import annotations
@@ -20,14 +21,11 @@ from typing import Any
 
 import numpy as np
 
-from acquire.check_nodes import freq_pair as _freq_pair
 from acquire.checks import Check, CheckError, CheckResult, _inside_sweep
 from acquire.masks import Limit, Mask, Segment, evaluate_mask
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
-from acquire.yamlfile import Node
 
-KINDS = ("insertion_loss", "return_loss", "group_delay_flatness")
 TRANSMISSION = ("S21", "S12")
 REFLECTION = ("S11", "S22")
 
@@ -160,46 +158,3 @@ def _ports(check: Check, sweep: Sweep) -> None:
         if max(int(name[1]), int(name[2])) > sweep.ports:
             raise CheckError(f"{check.name}: needs {name} but the sweep has {sweep.ports} "
                              "port(s)")
-
-
-def parse_insertion_loss(node: Node) -> Check:
-    node.mapping(["band", "at_most", "parameter"], required=["band", "at_most"])
-    lo, hi = _freq_pair(node["band"])
-    at_most = node["at_most"].quantity("decibel")
-    if at_most < 0:
-        node["at_most"].fail("insertion loss is positive dB for a passive device, e.g. 3 dB")
-    return InsertionLossCheck(lo, hi, at_most, node["parameter"].text("S21",
-                                                                      choices=TRANSMISSION))
-
-
-def parse_return_loss(node: Node) -> Check:
-    node.mapping(["band", "at_least", "parameters"], required=["band", "at_least"])
-    lo, hi = _freq_pair(node["band"])
-    at_least = node["at_least"].quantity("decibel")
-    if at_least <= 0:
-        node["at_least"].fail("return loss is positive dB, e.g. 15 dB")
-    params: tuple[str, ...] = REFLECTION
-    if node["parameters"].present:
-        params = tuple(n.text(choices=REFLECTION) for n in node["parameters"].elements(
-            min_len=1))
-        if len(set(params)) != len(params):
-            node["parameters"].fail(f"lists a parameter twice: {list(params)}")
-    return ReturnLossCheck(lo, hi, at_least, params)
-
-
-def parse_group_delay_flatness(node: Node) -> Check:
-    node.mapping(["band", "at_most", "parameter", "aperture"], required=["band", "at_most"])
-    lo, hi = _freq_pair(node["band"])
-    at_most = node["at_most"].quantity("time", lo=0.0)
-    aperture = node["aperture"].integer(1, lo=1, hi=1001)
-    if aperture % 2 == 0:
-        node["aperture"].fail(f"must be an odd number of points, got {aperture}")
-    return GroupDelayFlatnessCheck(lo, hi, at_most, node["parameter"].text(
-        "S21", choices=TRANSMISSION), aperture)
-
-
-PARSERS = {
-    "insertion_loss": parse_insertion_loss,
-    "return_loss": parse_return_loss,
-    "group_delay_flatness": parse_group_delay_flatness,
-}

@@ -41,7 +41,7 @@ RECV_CHUNK = 65536
 ARM_SLACK_S = 0.01  # a wait may end this much after its deadline
 # pyvisa-py releases whose socket session internals the fast path was tested with
 # (keep in step with the bound in pyproject.toml).
-TESTED_PYVISA_PY = ((0, 7), (0, 8))
+TESTED_PYVISA_PY = ((0, 8),)
 
 
 class LinkTimeout(Exception):
@@ -274,6 +274,8 @@ class VisaLink:
         # pyvisa-py's session object returns (data, status) without raising, so the
         # bytes that did arrive before a timeout are kept for the message.
         self._raw = None if public else getattr(self._lib, "sessions", {}).get(self._session)
+        self._quiet = (constants.StatusCode.success_max_count_read,
+                       constants.StatusCode.success_termination_character_read)
         self._serial = resource.resource_name.upper().startswith("ASRL")
         self._timeout_ms: int | None = None
         self._mode: tuple[str, int] | None = None
@@ -332,7 +334,10 @@ class VisaLink:
             if self._raw is not None:
                 data, status = self._raw.read(count)
             else:
-                data, status = self._lib.read(self._session, count)
+                # A read that fills ``count`` or stops at the terminator is what we asked
+                # for; pyvisa would warn about it (VI_SUCCESS_MAX_CNT, VI_SUCCESS_TERM_CHAR).
+                with self._lib.ignore_warning(self._session, *self._quiet):
+                    data, status = self._lib.read(self._session, count)
         except errors.VisaIOError as exc:
             if exc.error_code == status_code.error_timeout:
                 raise LinkTimeout(partial) from None

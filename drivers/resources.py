@@ -116,3 +116,8 @@ def _shown(resource: object) -> str:
 
 
 __all__ = ["FORMS", "ResourceInfo", "parse_resource", "resource_problem"]
+
+
+def resource_key(resource: str) -> str:
+    """Resources that name the same instrument compare equal (case, spacing)."""
+    return "".join(resource.split()).upper()

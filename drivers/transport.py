@@ -26,6 +26,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, fields
 from typing import Any
 
+from drivers import iolog
 from drivers.blocks import encode_header, parse_header, quote
 from drivers.deadline import Deadline
 from drivers.errors import (
@@ -152,6 +153,7 @@ class Transport:
         self._link: Link | None = None
         self._dirty: str | None = None  # None, 'garbled' or 'timeout'
         self._headers: dict[int, bytes] = {}  # expected payload length -> block header
+        self._header = b""  # the last block header read (for the I/O log)
 
     # -- lifetime ------------------------------------------------------------------
     @property
@@ -178,12 +180,21 @@ class Transport:
             raise
         self._resource = resource
         self._dirty = None
+        self._io("open")
 
     def close(self) -> None:
         """Close the connection (idempotent, never raises for an already broken link)."""
         resource, self._resource, self._link = self._resource, None, None
         if resource is not None:
             _quiet_close(resource)
+            self._io("close")
+
+    def _io(self, what: str, data: bytes | None = None,
+            block: tuple[bytes, int, bytes] | None = None) -> None:
+        """Record an event in the I/O log, when one is open (``drivers.iolog``)."""
+        sink = iolog.sink()
+        if sink is not None:
+            sink.event(self.resource, what, data, block)
 
     def _resolve_host(self) -> None:
         """Name lookup up front: clearer message, and pyvisa-py 0.8 leaks the socket here."""
@@ -260,8 +271,10 @@ class Transport:
     def write(self, command: str) -> None:
         """Send one program message (the write terminator is added)."""
         link = self._ready(command)
+        message = command.encode("ascii") + self.write_termination
+        self._io(">", message)
         try:
-            link.send(command.encode("ascii") + self.write_termination, Deadline(self.timeout_s))
+            link.send(message, Deadline(self.timeout_s))
         except LinkTimeout:
             raise self._send_timeout(command) from None
         except LinkClosed as exc:
@@ -321,8 +334,10 @@ class Transport:
         if header is None:
             header = self._headers[expected] = encode_header(expected)
         message = command.encode("ascii") + self.write_termination
+        self._io(">", message)
         try:
             if link.exchange_block(message, header, into, self.read_termination, deadline):
+                self._io("<", block=(header, expected, self.read_termination))
                 return into
         except LinkTimeout:
             raise self._send_timeout(command) from None
@@ -345,6 +360,7 @@ class Transport:
                 raise ValueError("buffer size differs from the expected payload")
             self._read_payload(prefix, link, target, deadline)
             self._expect_terminator(prefix, link, deadline)
+            self._io("<", block=(self._header, expected, self.read_termination))
             return target
         except BlockError:
             self._dirty = self._dirty or "garbled"
@@ -359,7 +375,10 @@ class Transport:
         """Discard anything already received; returns the start of what was dropped."""
         link = self._require_open("clear input")
         try:
-            return link.discard_input()
+            said = link.discard_input()
+            if said:
+                self._io("drop", said)
+            return said
         except LinkClosed as exc:
             if exc.said:  # e.g. a busy instrument that says so and hangs up
                 self.close()
@@ -378,6 +397,7 @@ class Transport:
         """
         link = self._require_open("resynchronise")
         kind, self._dirty = self._dirty, None
+        self._io(f"resync after a {kind or 'request'}")
         if link.resync_by_reconnect:  # framed protocol: a fresh session is the clean state
             self.close()
             self.open()
@@ -458,6 +478,7 @@ class Transport:
             self._timed_out(command, deadline, exc)
         except LinkClosed as exc:
             self._lost(command, exc)
+        self._io("<", raw)
         # Accept a lone LF where CR LF is expected (CR before LF is whitespace to 488.2).
         if raw.endswith(term):
             return raw[: -len(term)]
@@ -470,11 +491,13 @@ class Transport:
             head += link.read_exact(1, deadline)
             if head[1:].isdigit() and head[1:] != b"0":
                 head += link.read_exact(head[1] - 0x30, deadline)
+        self._header = head
         try:
             _, length = parse_header(head)
         except BlockError as exc:
             if self.read_termination[-1] not in head:
                 head += self._rest_of_line(link, deadline)
+            self._io("<", head)
             detail = str(exc).split(": starts ")[0]
             raise BlockError(f"{prefix} {detail}: starts {quote(head)}") from None
         return length
@@ -532,6 +555,7 @@ class Transport:
 
     def _timed_out(self, command: str, deadline: Deadline, exc: LinkTimeout) -> Any:
         self._dirty = "timeout"
+        self._io(f"timeout after {deadline.seconds:.3g} s", exc.partial)
         got = (
             f"; {len(exc.partial)} bytes arrived: starts {quote(exc.partial)}"
             if exc.partial
@@ -543,6 +567,7 @@ class Transport:
         ) from None
 
     def _lost(self, command: str, exc: LinkClosed) -> Any:
+        self._io(f"lost ({exc.args[0]})")
         self.close()
         raise ConnectionLost(
             f"instrument {self.resource}: connection lost during '{command}': {exc.args[0]}"

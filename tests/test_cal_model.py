@@ -1,8 +1,10 @@
 """Error models: solve, correct, embed; response variants; transmission tracking.
 
-Oracles: scikit-rf 2.2 ``OnePort`` and ``TwelveTerm`` (tests only), the closed forms and
-the response-calibration table of the one-port model (R. B. Marks, 50th ARFTG Digest,
-1997; table computed from that model).
+Oracles: scikit-rf 2.2 ``OnePort`` and ``TwelveTerm`` (tests only), the closed forms of
+the one-port error model, and a worst-case table of response calibrations whose values are
+recalled from a published comparison (from memory: the attribution to R. B. Marks's
+one-port error-model work, 50th ARFTG Digest, 1997, is uncertain) and reproduced here by
+computing from that model.
 """
 
 from __future__ import annotations
@@ -158,9 +160,10 @@ RESPONSE_TABLE = {  # DUT |Γ|: short only, open only, open/short average, short
 def test_response_calibration_worst_case_table() -> None:
     """Worst |Γ error| over DUT phase for |e00| = 0.05, |e11| = 0.1, |e10e01| = 0.8.
 
-    The table (4 significant digits) does not state the error-term phases; these two
-    (e00 at 176.73°, e11 at 108.93°, tracking at 0°) were found by a least-squares fit to
-    the published numbers, after which all twelve response entries agree to rounding.
+    The table (4 significant digits, values from memory) does not state the error-term
+    phases; these two (e00 at 176.73°, e11 at 108.93°, tracking at 0°) were found by a
+    least-squares fit to the recalled numbers, after which all twelve response entries,
+    computed from the model, agree to rounding. The 3-term column is the model's identity.
     """
     ph = np.linspace(0, 2 * np.pi, 3601)[:-1]
     box = OnePortTerms(0.05 * np.exp(1j * np.radians(176.73)),

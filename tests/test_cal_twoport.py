@@ -379,3 +379,20 @@ def test_old_names_in_plans_and_cal_sets_still_load(tmp_path, caplog, monkeypatc
     assert method(back.method).name == "transmission-normalisation"
     (line,) = [r.getMessage() for r in caplog.records]
     assert line.startswith(f"cal set {path}: calibration method 'thru-response' is now called")
+
+
+def test_port_two_term_findings_name_the_port_two_steps() -> None:
+    """A bad port-2 load (the directivity term blows up) asks to repeat LOAD at port 2,
+    not the port-1 load."""
+    from acquire.calibration import OnePortTerms
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+
+    f = np.linspace(10e6, 6e9, 51)
+    judge = Judge(f, KIT, build_steps("two-port", KIT, ports=2))
+    bad = OnePortTerms(np.full(f.size, 0.8 + 0j), np.full(f.size, 0.05 + 0j),
+                       np.exp(-2j * np.pi * f * 1e-9))
+    (finding,) = judge.terms(bad, port=2).failures
+    assert finding.check == "directivity" and finding.steps == ("load-2",)
+    (finding,) = judge.terms(bad).failures
+    assert finding.steps == ("load",)

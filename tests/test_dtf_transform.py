@@ -4,7 +4,9 @@
   Microwave Engineering, 4th ed., table 4.1 and eq. 2.35), written independently.
 - Resolution and range: the published relations dR = v / (2 B) and
   R_max = v (N - 1) / (2 B) with the shared reference note's check values.
-- Windows: highest sidelobes from F. J. Harris, Proc. IEEE 66(1), 1978, table 1.
+- Windows: highest sidelobes and -6 dB bandwidths from F. J. Harris, Proc. IEEE 66(1),
+  1978, table 1, which prints whole decibels (-13 dB, -32 dB); the decimals checked here
+  (-13.26 dB, -31.5 dB) are computed from the windows' closed-form spectra.
 - scikit-rf (test dependency) as a second transform on the same data.
 """
 
@@ -121,8 +123,8 @@ def test_lowpass_step_reads_the_impedance_of_each_section() -> None:
 
 
 @pytest.mark.parametrize(("name", "sidelobe_db", "tol"), [
-    ("none", -13.26, 0.1),  # Harris 1978, table 1
-    ("hann", -31.5, 0.2),  # Harris 1978, table 1
+    ("none", -13.26, 0.1),  # Harris 1978 table 1: -13 dB; decimals computed (sinc)
+    ("hann", -31.5, 0.2),  # Harris 1978 table 1: -32 dB; decimals computed
     ("kaiser-6", -44.0, 1.5),  # reference note, value from memory
 ])
 def test_window_sidelobes_match_published_levels(name: str, sidelobe_db: float,

@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import contextlib
+import select
 import socket
 import time
 
@@ -11,7 +12,7 @@ import numpy as np
 import pytest
 from hypothesis import example, given, settings
 from hypothesis import strategies as st
-from test_sim_support import RawClient, complex_from_ascii
+from test_sim_support import RawClient, complex_from_ascii, wait_for
 
 from simulators.scpi_errors import TEXT, Status
 from simulators.scpi_parser import Interpreter
@@ -324,32 +325,37 @@ def test_standard_switch_changes_the_fixture(sim, client):
 
 def test_query_interrupted_when_the_client_does_not_read(sim):
     # IEEE Std 488.2: a new message while a response is still pending → −410
-    sock = socket.socket()
-    sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, 4096)
-    sock.connect(("127.0.0.1", sim.tcp.port))
-    sock.settimeout(3.0)
-    sock.sendall(b":SWE:POIN 200001;:FORM REAL,64;:INIT;*OPC?\n")
-    assert sock.recv(10) == b"1\n"
-    sock.sendall(b":TRAC? S11\n")
-    time.sleep(0.3)  # the simulator is blocked on the full socket buffer
-    sock.sendall(b"*ESE 0\n")
-    received = 0
-    sock.settimeout(0.5)
-    with contextlib.suppress(TimeoutError):
-        while chunk := sock.recv(1 << 20):
-            received += len(chunk)
-    assert received < 200001 * 16  # the rest of the reply was discarded
-    sock.settimeout(3.0)
-    sock.sendall(b":SYST:ERR?\n")
-    assert sock.recv(100).startswith(b'-410,"Query INTERRUPTED')
-    sock.close()
+    with socket.socket() as sock:
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, 4096)
+        sock.connect(("127.0.0.1", sim.tcp.port))
+        sock.settimeout(60.0)  # a bound for a loaded machine, not a wait
+        sock.sendall(b":SWE:POIN 200001;:FORM REAL,64;:INIT;*OPC?\n")
+        assert sock.recv(10) == b"1\n"
+        sock.sendall(b":TRAC? S11\n")
+        assert select.select([sock], [], [], 60.0)[0]  # the reply has begun
+        sock.sendall(b"*ESE 0\n")  # ... and is not read: the simulator's writes block
+        assert wait_for(lambda: sim.core.status.count() > 0, 60.0)  # it queued the error
+        received = 0
+        sock.settimeout(0.5)
+        with contextlib.suppress(TimeoutError):
+            while chunk := sock.recv(1 << 20):
+                received += len(chunk)
+        assert received < 200001 * 16  # the rest of the reply was discarded
+        sock.settimeout(10.0)
+        sock.sendall(b":SYST:ERR?\n")
+        assert sock.recv(100).startswith(b'-410,"Query INTERRUPTED')
+
+
+def session_alive(sim: SimServer) -> bool:
+    thread = sim.tcp._session_thread
+    return thread is not None and thread.is_alive()
 
 
 def test_query_unterminated_when_closed_mid_query(sim):
     with RawClient(sim.tcp_resource) as c:
         c.sock.sendall(b"*IDN?")  # no terminator
-        time.sleep(0.05)
-    time.sleep(0.2)
+        assert wait_for(lambda: session_alive(sim), 10.0)  # the simulator took the client
+    assert wait_for(lambda: not session_alive(sim), 10.0)  # ... and has seen it close
     with RawClient(sim.tcp_resource) as c:
         assert c.errors() == [-420]
 
@@ -390,7 +396,7 @@ def test_stop_ends_every_thread_even_while_waiting():
     client = RawClient(sim.tcp_resource)
     client.write(":BAND 1;:SWE:POIN 1000;:INIT;*OPC?")  # a 1000 s sweep
     sim.faults.arm("stall", seconds=60, on="reply", endpoint="serial")
-    time.sleep(0.1)
+    assert wait_for(sim.core.sweeping, 10.0)  # the client's session waits on the sweep
     sim.stop()
     client.close()
     assert [t.name for t in threading.enumerate() if t.name.startswith("sim-")] == []

@@ -10,6 +10,7 @@ import time
 import numpy as np
 import pytest
 import serial
+from test_sim_support import wait_for
 
 from simulators.server import SimServer
 
@@ -57,7 +58,7 @@ def test_pty_survives_reconnects_and_keeps_unread_bytes(sim):
         port.write(b"*IDN?\n")
         assert port.readline().startswith(b"sweepd-sim")
         port.write(b"*TST?\n")  # leave the reply unread, as a crashed client would
-        time.sleep(0.1)
+        assert wait_for(lambda: port.in_waiting >= 2, 10.0)  # the reply is in the line
     fd = os.open(sim.serial.device, os.O_RDWR | os.O_NOCTTY)  # no flush on open
     try:
         assert read_until(fd, 2) == b"0\n"  # the stale reply waits in the line

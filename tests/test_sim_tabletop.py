@@ -2,11 +2,9 @@
 
 from __future__ import annotations
 
-import time
-
 import numpy as np
 import pytest
-from test_sim_support import RawClient
+from test_sim_support import RawClient, wait_for
 
 from simulators.server import SimServer
 from simulators.tabletop import nearest_width
@@ -64,7 +62,7 @@ def test_values_are_db_deg_pairs_of_the_raw_data(sim, client):
 
 
 def test_settle_time_makes_opc_matter(sim, client):
-    sim.time_scale = 1.0  # 25 ms settle
+    sim.time_scale = 20.0  # 0.5 s settle: queried at once, a setting is not settled yet
     client.write("STIM:COUN 11")
     assert client.query("STIM:COUN?") == "201"  # not settled yet
     assert client.query("*OPC?") == "1"
@@ -74,8 +72,7 @@ def test_settle_time_makes_opc_matter(sim, client):
     assert len(client.query("MEAS:AXIS?").split(",")) == 11
     client.write("SWIT:STAN SHORT")
     assert client.query("SWIT:STAN?") == "DUT"
-    time.sleep(0.05)
-    assert client.query("SWIT:STAN?") == "SHORT"
+    assert wait_for(lambda: client.query("SWIT:STAN?") == "SHORT", 10.0)
     assert sim.bench.connected == "short"
 
 

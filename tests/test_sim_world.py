@@ -102,7 +102,8 @@ def _allan(y: np.ndarray, m: int) -> float:
 
 
 def test_allan_helper_check_value():
-    # NIST SP 1065 style check: y = [1, 2, 4, 7, 11], τ0 = 1 s → σ(1 s) = √(30/8)
+    # Worked by hand from the overlapping Allan formula of NIST SP 1065 (not a value
+    # printed there): y = [1, 2, 4, 7, 11], τ0 = 1 s → σ(1 s) = √(30/8)
     assert _allan(np.array([1.0, 2, 4, 7, 11]), 1) == pytest.approx(math.sqrt(30 / 8))
     assert _allan(np.array([1.0, 2, 4, 7, 11]), 2) == pytest.approx(math.sqrt(13))
 

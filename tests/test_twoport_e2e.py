@@ -152,3 +152,62 @@ def test_verification_with_a_two_port_check_device(sim: SimServer, tmp_path: Pat
                                                verify=str(one_port)), stdout=io.StringIO())
     finally:
         sim.bench.set_device("cable-1m")
+
+
+def test_command_backend_is_told_the_port(sim: SimServer, tmp_path: Path) -> None:
+    """A relay program per step, given {standard} and {port}: port-1 standards, port-2
+    standards, loads on both for isolation, the thru on both, the device at the end."""
+    import sys
+
+    host, port = sim.control_address
+    log = tmp_path / "relay.log"
+    relay = tmp_path / "relay.py"
+    relay.write_text(
+        "import sys\n"
+        f"sys.path.insert(0, {str(ROOT)!r})\n"
+        "from simulators.control import main\n"
+        f"with open({str(log)!r}, 'a') as fh:\n"
+        "    fh.write(' '.join(sys.argv[1:]) + '\\n')\n"
+        f"sys.exit(main([{f'{host}:{port}'!r}, 'connect', sys.argv[1]]))\n")
+    plan = _plan_copy(tmp_path, 101)
+    text = plan.read_text().replace(
+        "  isolation: true", "  isolation: true\n  switch: {command: \""
+        f"{sys.executable} {relay} {{standard}} {{port}}\"}}")
+    plan.write_text(text)
+    assert load_plan(plan).calibration.prompt == "command"
+    outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource),
+                        stdout=io.StringIO())
+    assert outcome.exit_code == 0
+    assert log.read_text().splitlines() == [
+        "open 1", "short 1", "load 1", "open 2", "short 2", "load 2", "load both",
+        "thru both", "device both"]
+    truth = _truth(tmp_path, 101)
+    sim.bench.connect("device")
+    from acquire.runner import Session
+
+    with Session(load_plan(plan), sim.tcp_resource) as session:
+        raw = session.measure()
+    assert np.abs(outcome.calset.correct(raw).s - truth.s).max() < 1e-9
+
+
+def test_two_port_through_the_tabletop_personality_over_serial(tmp_path: Path) -> None:
+    """The other personality measures through the same bench, so it shows the same
+    two-port error box. Its ASCII transfer rounds to 1e-6 dB and 1e-6 degree (about
+    1.2e-7 relative per raw value), which bounds the agreement with the truth: < 1e-6."""
+    plan = _plan_copy(tmp_path, 51)
+    plan.write_text(plan.read_text().replace("dialect: scpi-generic", "dialect: tabletop-ascii"))
+    with SimServer(personality="tabletop", tcp_port=None, serial=True, time_scale=0.0,
+                   noise=False) as table:
+        table.bench.set_device("attenuator-10db")
+        outcome = calibrate(load_plan(plan), Options(resource=table.serial_resource,
+                                                     prompt="switch"), stdout=io.StringIO())
+        assert outcome.exit_code == 0
+        table.bench.connect("device")
+        from acquire.runner import Session
+
+        with Session(load_plan(plan), table.serial_resource) as session:
+            raw = session.measure()
+        truth = table.bench.truth(raw.freq_hz)
+    err = np.abs(outcome.calset.correct(raw).s - truth).max()
+    assert err < 1e-6
+    assert np.abs(raw.s - truth).max() > 0.1

@@ -1,10 +1,10 @@
-"""|S21| uncertainty after an enhanced-response calibration.
+"""|S21| uncertainty after a one-path-two-port calibration.
 
 Sources: GUM (JCGM 100:2008) 5.1.2/5.1.3 for the propagation with numerical sensitivity
 coefficients, checked by Monte Carlo per GUM Supplement 1 (JCGM 101:2008) within 10 %
 of U; the coverage of a known bias plus a normal error from the normal distribution
 (Φ(1.96) − Φ(−1.96) = 0.95; Φ(1.645) = 0.95, tables); and the simulator's ground truth
-(an independently written world) after a real enhanced-response calibration.
+(an independently written world) after a real one-path-two-port calibration.
 """
 
 from __future__ import annotations
@@ -99,8 +99,8 @@ def test_s21_uncertainty_agrees_with_monte_carlo(budget: str, device: str) -> No
     assert np.all(np.abs(q - unc.expanded) <= 0.10 * unc.expanded), (q, unc.expanded)
 
 
-def test_enhanced_response_capture_covers_the_simulator_truth(tmp_path: Path) -> None:
-    """A real enhanced-response calibration on the simulator (noise off, standards as
+def test_one_path_two_port_capture_covers_the_simulator_truth(tmp_path: Path) -> None:
+    """A real one-path-two-port calibration on the simulator (noise off, standards as
     modelled): the corrected |S21| and |S11| of a 1 m cable lie within ± U of the
     simulator's truth at every point. The load match the method leaves uncorrected is
     what U must cover here: through the cable it reaches S11 too (Γin = S11 +
@@ -112,7 +112,7 @@ def test_enhanced_response_capture_covers_the_simulator_truth(tmp_path: Path) ->
         "stimulus: {start: 10 MHz, stop: 3 GHz, points: 201, power: -10 dBm, "
         "if_bandwidth: 1 kHz}\n"
         "measure: two-port\n"
-        "calibration: {method: enhanced-response, kit: generic-sma-50}\n"
+        "calibration: {method: one-path-two-port, kit: generic-sma-50}\n"
         f"output: {{dir: {tmp_path / 'out'}}}\n")
     with SimServer(time_scale=0.0, noise=False) as sim:
         sim.bench.set_device("cable-1m")

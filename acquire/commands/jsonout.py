@@ -48,7 +48,7 @@ def run_with_json_errors(args: argparse.Namespace, command: str,
         where = f" ({exc.filename})" if exc.filename else ""
         return _fail(command, f"{exc.strerror or exc}{where}", "OSError", EXIT_ERROR)
     except Exception as exc:  # unforeseen: still one document, exit 2 (never 1)
-        from acquire.cli import internal_error_text
+        from acquire.errors import internal_error_text
 
         return _fail(command, internal_error_text(exc), "InternalError", EXIT_ERROR)
 

@@ -35,4 +35,7 @@ def _run(args: argparse.Namespace) -> int:
         print(json.dumps(result.summary(), sort_keys=True))
     else:
         print(result.one_line())
+        if not args.serial:
+            print("  note: no --serial given; the sweep is recorded without a serial and its "
+                  "file is named with 'unit' (give --serial SERIAL to name it)")
     return result.exit_code

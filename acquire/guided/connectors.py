@@ -5,7 +5,9 @@ The external command comes from the plan (``calibration.switch.command``), is sp
 with ``shlex`` and run without a shell; ``{standard}`` is replaced by one of the fixed
 fixture names (open, short, load, thru, device), or by the site's own name for it from
 ``calibration.switch.names`` (a fixture tool may call the device ``dut``), and nothing
-else. Site names are checked words, so each stays one argument. A non-zero exit status,
+else; an optional ``{port}`` by the port the standard goes to: ``1``, ``2`` or ``both``
+(a thru, loads for isolation, a two-port device). Site names are checked words, so each
+stays one argument. A non-zero exit status,
 a missing program or a hang is a ``FixtureError`` (one line) and the step can be retried.
 """
 
@@ -22,6 +24,7 @@ from drivers.dialect import STANDARDS
 
 COMMAND_TIMEOUT_S = 60.0
 PLACEHOLDER = "{standard}"
+PORT_PLACEHOLDER = "{port}"
 
 
 def check_site_names(names: Mapping[str, str]) -> dict[str, str]:
@@ -45,7 +48,7 @@ class Connector(Protocol):
     manual: bool  # True: the technician connects standards by hand
     description: str
 
-    def connect(self, standard: str) -> None: ...
+    def connect(self, standard: str, port: int = 0) -> None: ...
 
 
 class ManualConnector:
@@ -54,7 +57,7 @@ class ManualConnector:
     manual = True
     description = "by hand"
 
-    def connect(self, standard: str) -> None:
+    def connect(self, standard: str, port: int = 0) -> None:
         _check_name(standard)
 
 
@@ -81,13 +84,15 @@ class CommandConnector:
             shown = ", ".join(f"{ours} as {theirs}" for ours, theirs in self.names.items())
             self.description += f" ({shown})"
 
-    def command(self, standard: str) -> list[str]:
+    def command(self, standard: str, port: int = 0) -> list[str]:
         _check_name(standard)
         name = self.names.get(standard, standard)
-        return [arg.replace(PLACEHOLDER, name) for arg in self.argv]
+        where = str(port) if port in (1, 2) else "both"
+        return [arg.replace(PLACEHOLDER, name).replace(PORT_PLACEHOLDER, where)
+                for arg in self.argv]
 
-    def connect(self, standard: str) -> None:
-        argv = self.command(standard)
+    def connect(self, standard: str, port: int = 0) -> None:
+        argv = self.command(standard, port)
         shown = shlex.join(argv)
         try:
             done = subprocess.run(argv, capture_output=True, text=True, errors="replace",
@@ -120,7 +125,7 @@ class SwitchConnector:
                            "section): use --prompt terminal or a switch command")
         self.description = f"by the analyzer's standard switch ({analyzer.dialect.name})"
 
-    def connect(self, standard: str) -> None:
+    def connect(self, standard: str, port: int = 0) -> None:
         from drivers.errors import DialectError, ScpiErrorQueue, SettingMismatch
 
         _check_name(standard)

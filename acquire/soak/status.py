@@ -23,12 +23,12 @@ from __future__ import annotations
 from typing import Any
 
 from acquire.errors import JournalError
-from acquire.instruments import resource_key
 from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
 from acquire.soak.progress import clock_text, drift_text, sweeps_text
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from drivers.errors import SweepdError
+from drivers.resources import resource_key
 
 COUNTERS = ("done", "kept", "missed", "failed", "pending", "interrupted")
 

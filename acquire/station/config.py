@@ -16,6 +16,8 @@
         every: 4 h                    # ... or this much time since the last good check
         band: [2.40 GHz, 2.50 GHz]    # compare only here (default: the whole sweep)
         tolerance: {magnitude: 0.5 dB, phase: 5 deg, vector: 0.05, min_level: -40 dB}
+      hooks:                          # commands on pass, fail, line_stopped, line_resumed
+        fail: [/opt/line/stacklight, red, "{serial}"]      # (acquire.station.hooks)
       indeterminate:                  # a unit within the guard band (plan decision: guarded)
         action: retest                # retest (default): reseat and measure again; or hold
         retests: 1                    # re-measurements before the unit goes on hold (0-5)
@@ -38,6 +40,7 @@ from acquire.station.golden import (
     Tolerance,
     load_reference,
 )
+from acquire.station.hooks import Hooks, parse_hooks
 from acquire.station.pattern import PatternError, compile_pattern
 from acquire.station.serials import (
     DEFAULT_MAX_LENGTH,
@@ -71,6 +74,7 @@ class StationConfig:
     serial: SerialRule = field(default_factory=SerialRule)
     band_hz: tuple[float, float] | None = None
     golden: GoldenSpec | None = None
+    hooks: Hooks = field(default_factory=Hooks)
     indeterminate: IndeterminateRule = field(default_factory=IndeterminateRule)
 
 
@@ -83,7 +87,7 @@ def station_config(plan: Plan) -> StationConfig:
 
 
 def parse_station(node: Node, plan: Plan) -> StationConfig:
-    node.mapping(("id", "serial", "band", "golden", "indeterminate"))
+    node.mapping(("id", "serial", "band", "golden", "indeterminate", "hooks"))
     station_id = node["id"].text(None)
     if station_id is not None:
         check_station_id(station_id, node["id"])
@@ -92,6 +96,7 @@ def parse_station(node: Node, plan: Plan) -> StationConfig:
         serial=_serial(node["serial"]),
         band_hz=_band(node["band"], plan) if node["band"].present else None,
         golden=_golden(node["golden"], plan) if node["golden"].present else None,
+        hooks=parse_hooks(node["hooks"]),
         indeterminate=_indeterminate(node["indeterminate"]),
     )
 

@@ -11,14 +11,16 @@ its verdict; the counters count an indeterminate unit as not passing.
 
 from __future__ import annotations
 
+from collections.abc import Collection
 from typing import Any
 
-from acquire.station.loop import QUIT, Quit
 from acquire.station.unit import UnitResult
 
 
-def handle_indeterminate(station: Any, serial: str, result: UnitResult) -> None:
-    """Show ``result`` and retest or hold the unit per the station's rule."""
+def handle_indeterminate(station: Any, serial: str, result: UnitResult,
+                         quit_words: Collection[str]) -> bool:
+    """Show ``result`` and retest or hold the unit per the station's rule; False when
+    the operator quits at the ``retest>`` prompt (or input ends)."""
     rule = station.config.indeterminate
     left = rule.retests if rule.action == "retest" else 0
     while result.verdict == "indeterminate" and left > 0:
@@ -29,19 +31,20 @@ def handle_indeterminate(station: Any, serial: str, result: UnitResult) -> None:
                          "again (h = hold it, q = quit)")
         answer = station.term.ask("retest> ")
         word = (answer or "").strip().lower()
-        if answer is None or word in QUIT:
-            raise Quit
+        if answer is None or word in quit_words:
+            return False
         if word == "h":
             break
         left -= 1
         station.term.say(f"measuring {serial} again ...")
         again = station._measure(serial)
         if again is None:
-            return
+            return True
         result = again
     if result.verdict != "indeterminate":
         station._show(result)
-        return
+        return True
     station._show(result, "hold")
     station.term.say(f"HOLD: put {serial} in the hold area for review; it is neither "
                      "passed nor failed")
+    return True

@@ -29,11 +29,15 @@ from acquire.station.config import StationConfig, check_station_id, station_conf
 from acquire.station.counters import run_yield
 from acquire.station.display import banner, unit_lines
 from acquire.station.errors import SerialRefused, StationError
-from acquire.station.interrupts import deferred_interrupt, terminate_as_interrupt
+from acquire.station.figures import worst_violation
+from acquire.station.hold import handle_indeterminate
+from acquire.station.hooks import LineHooks
+from acquire.station.interrupts import QUIT, Quit, deferred_interrupt, terminate_as_interrupt
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
+from acquire.station.swap import SwapGuard, confirm_step
 from acquire.station.terminal import Terminal
-from acquire.station.unit import Line, UnitResult, measure_unit
+from acquire.station.unit import Line, UnitResult, measure_unit, save_fail_plot
 from acquire.storage import sweep_stale_temps
 from acquire.units import format_duration
 from drivers.errors import InstrumentError, SweepdError
@@ -48,13 +52,6 @@ HELP = (
     "  g  golden check now     c  calibrate now     s  counters     ?  this help",
     "  q  quit (end of input and Ctrl-C also end the shift; nothing saved is lost)",
 )
-QUIT = ("q", "quit", "exit")
-
-
-class Quit(Exception):
-    """The operator ended the shift at a prompt."""
-
-
 @dataclass(frozen=True)
 class StationOptions:
     resource: str | None = None
@@ -89,6 +86,8 @@ class Station:
         self.line: Line | None = None
         self.start_check_done = self.config.golden is None or not self.config.golden.at_start
         self.stop_shown = ""  # the stop reason already shown in full
+        self.swap = SwapGuard()  # a unit left on the fixture under a new label
+        self.hooks = LineHooks(self.config.hooks, {"plan": plan.name}, self.term.say)
 
     # -- the shift -------------------------------------------------------------------------
     def run(self) -> int:
@@ -104,6 +103,9 @@ class Station:
                 operator=self.options.operator, resource=self.resource)
             self.line = Line(self.plan, self.config, self.out_dir, journal, run_id, station_id,
                              reference=self.reference)
+            self.hooks.common["station"] = station_id
+            self.hooks.fault = lambda text: journal.record_fault(
+                run_id, "HookFailed", text, action="measuring goes on")
             try:
                 self._shift()
             except KeyboardInterrupt:
@@ -150,6 +152,7 @@ class Station:
         if state.due:
             self._golden(state.due_reason)
             return False
+        self.hooks.line_ready()
         return True
 
     def _answer(self, answer: str | None) -> None:
@@ -187,19 +190,22 @@ class Station:
             self.term.say(f"RETEST: {serial} was measured {before} time(s) before; this is "
                           f"attempt {before + 1}, kept beside the earlier file(s)")
         self.term.say(f"measuring {serial} ...")
-        result = self._measure(serial)
+        result = self._measure(serial, confirm=confirm_step(self.swap, serial, self.term.say,
+                                                            self.term.ask))
+        if result is not None:
+            self.swap.remember(serial, result.capture.sweep)
         if result is not None and result.verdict == "indeterminate":
-            from acquire.station.hold import handle_indeterminate
-
-            handle_indeterminate(self, serial, result)
+            if not handle_indeterminate(self, serial, result, QUIT):
+                raise Quit
         elif result is not None:
             self._show(result)
 
-    def _measure(self, serial: str, *, golden: bool = False) -> UnitResult | None:
+    def _measure(self, serial: str, *, golden: bool = False,
+                 confirm=None) -> UnitResult | None:
         line = self.line
         seq = line.journal.next_seq(line.run_id)
         try:
-            return measure_unit(line, serial, golden=golden)
+            return measure_unit(line, serial, golden=golden, confirm=confirm)
         except KeyboardInterrupt:
             with deferred_interrupt():
                 if line.journal.record_missed(line.run_id, [seq], "interrupted during the "
@@ -226,11 +232,23 @@ class Station:
         failing = [r.summary for r in verdict.results if r.verdict != "pass"]
         stored = result.stored
         files = [str(p) for p in (stored.touchstone, stored.summary) if p is not None]
+        why = worst_violation(verdict) if result.verdict != "pass" else None
+        plot = self._fail_plot(result, why) if result.verdict == "fail" else None
         lines = unit_lines(result.serial, result.verdict, result.attempt,
                            result.figures.worst_margin, result.figures.worst_where,
-                           result.figures.line(), failing, files,
-                           run_yield(self.line.journal, self.line.run_id))
+                           result.figures.line(), failing, files + ([str(plot)] if plot else []),
+                           run_yield(self.line.journal, self.line.run_id), why=why)
         self.term.say(*banner(key, self.term.paint), *lines)
+        self.hooks.unit(serial=result.serial, verdict=result.verdict,
+                        touchstone=stored.touchstone, summary=stored.summary, plot=plot)
+
+    def _fail_plot(self, result: UnitResult, why: str | None) -> Path | None:
+        """The small plot of a failing unit; a plot that cannot be made never stops the line."""
+        try:
+            return save_fail_plot(result, self.plan, why)
+        except (OSError, SweepdError, ValueError) as exc:
+            self.term.say(f"  note: no plot for {result.serial}: {exc}")
+            return None
 
     # -- golden unit -----------------------------------------------------------------------
     def _golden(self, why: str) -> None:
@@ -258,6 +276,7 @@ class Station:
         result = self._measure(golden.serial, golden=True)
         if result is None or result.golden_result is None:
             return
+        self.swap.remember_golden(golden.serial, result.capture.sweep)
         check = result.golden_result
         if check.passed:
             self.start_check_done = True
@@ -269,6 +288,7 @@ class Station:
         self.stop_shown = self._stop_reason()
         self.term.say(*banner("stop", self.term.paint), f"LINE STOPPED: {check.message}",
                       f"  file {result.stored.touchstone}")
+        self.hooks.line_stopped(check.message)
 
     def _stop_reason(self) -> str:
         state = line_state(self.line.journal, self.plan.name, self.config.golden,
@@ -279,6 +299,7 @@ class Station:
         if reason != self.stop_shown:  # the full reason once per stop, then short
             self.term.say(self.term.paint(f"LINE STOPPED: {reason}", "red+bold"))
             self.stop_shown = reason
+        self.hooks.line_stopped(reason)
         self.term.say("  no unit is measured until a good golden re-check or a recalibration:",
                       "  g = re-check the golden unit   c = recalibrate   q = quit")
         answer = self.term.ask("stopped> ")

@@ -10,6 +10,7 @@ leaves half a record; a crash leaves at worst a pending row that ``reconcile`` s
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -64,9 +65,17 @@ class UnitResult:
         return self.capture.verdict.exit_code
 
 
-def measure_unit(line: Line, serial: str, *, golden: bool = False) -> UnitResult:
+# Asked after the sweep, before anything is stored: None keeps the capture, a text
+# refuses it (the reason, journalled with the missed measurement).
+Confirm = Callable[[Capture], "str | None"]
+
+
+def measure_unit(line: Line, serial: str, *, golden: bool = False,
+                 confirm: Confirm | None = None) -> UnitResult | None:
     """Sweep, judge, store and journal one unit; instrument errors propagate unrecorded
-    (the caller journals them as a fault and a missed measurement)."""
+    (the caller journals them as a fault and a missed measurement). ``confirm`` may
+    refuse the capture (a unit that was not swapped): it is journalled as missed, nothing
+    is stored, and None is returned."""
     if line.session is None or line.cal is None:
         raise SweepdError("station: no instrument session or calibration choice is open")
     plan = line.plan
@@ -81,6 +90,12 @@ def measure_unit(line: Line, serial: str, *, golden: bool = False) -> UnitResult
     if golden:
         result = _golden_result(line, cap, serial)
         cap.verdict = golden_verdict(cap.verdict, result)
+    refused = confirm(cap) if confirm is not None else None
+    if refused is not None:
+        with deferred_interrupt():
+            line.journal.record_missed(line.run_id, [seq], f"not stored: {refused}",
+                                       serial=serial)
+        return None
     with deferred_interrupt():
         path = plan_path(cap, plan, line.out_dir, serial=serial, index=seq,
                          station=line.station_id)
@@ -120,3 +135,18 @@ def _store(line: Line, planned: Planned, cap: Capture) -> Stored:
         raise StorageError(f"cannot store {planned.touchstone}: {reason}") from None
     journal_stored(line.journal, planned, cap, stored)
     return stored
+
+
+def save_fail_plot(result: UnitResult, plan: Plan, why: str | None) -> Path:
+    """A small plot of a failing unit with the plan's masks, written as a new PNG beside
+    its Touchstone file (same name, .png); an existing file is never replaced."""
+    from acquire.checks import MaskCheck
+    from acquire.plotting import figure_bytes
+    from acquire.plotting.page import render_compact
+    from acquire.storage import write_new
+
+    masks = [c.mask for c in plan.checks if isinstance(c, MaskCheck)]
+    touchstone = result.stored.touchstone
+    fig = render_compact(result.capture.sweep, masks=masks,
+                         title=f"{plan.name}  {result.verdict.upper()}", note=why)
+    return write_new(touchstone.with_suffix(".png"), figure_bytes(fig, "png", dpi=90))

@@ -1,8 +1,10 @@
 """The uncertainty of one capture: built from its cal set, kit and plan; JSON and comments.
 
 ``sweep_uncertainty`` needs a full one-port correction of the reflection (``one-port``
-or ``enhanced-response``): the other methods leave directivity or source match
-uncorrected, and an uncorrected sweep has no budget at all; then the result says why
+or ``one-path-two-port``, once called ``enhanced-response``): the normalisations leave
+directivity or source match uncorrected, the full two-port methods (``two-port``,
+``two-port-unknown-thru``) are not modelled yet, and an uncorrected sweep has no budget
+at all; then the result says why
 (``unavailable``) and carries no points. Trace noise comes from the cal set's raw load
 reading (``budget.noise_from_load``) scaled to the sweep's IF bandwidth, power and
 averaging, unless the plan states a level; drift grows with the cal set's age.
@@ -23,7 +25,9 @@ from acquire.uncertainty.decision import SIMPLE, DecisionRule
 from acquire.uncertainty.propagate import STANDARDS, ReflectionUncertainty, reflection_uncertainty
 from acquire.units import format_frequency
 
-FULL_REFLECTION = ("one-port", "enhanced-response")
+ONE_PATH = ("one-path-two-port", "enhanced-response")  # the second is the older name
+FULL_REFLECTION = ("one-port", *ONE_PATH)
+NOT_MODELLED = ("two-port", "two-port-unknown-thru")
 _PARAMS = ("S11", "S22", "S33", "S44")
 FORMAT = "sweepd-uncertainty"
 VERSION = 1
@@ -47,7 +51,7 @@ class SweepUncertainty:
         if self.unavailable:
             return self.unavailable
         return (f"no uncertainty model for {parameter} (the corrected reflection has one, and "
-                "S21 after an enhanced-response calibration)")
+                "S21 after a one-path-two-port calibration)")
 
     def interval(self, parameter: str, quantity: str, guard: float = 1.0
                  ) -> tuple[np.ndarray, np.ndarray] | None:
@@ -157,6 +161,9 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
     """The uncertainty of a corrected ``sweep`` from its ``calset`` and cal ``kit``."""
     if calset is None or kit is None:
         return unavailable(sweep, "the sweep is uncorrected")
+    if calset.method in NOT_MODELLED:
+        return unavailable(sweep, f"the uncertainty of a {calset.method} calibration is not "
+                                  "modelled yet")
     if calset.method not in FULL_REFLECTION:
         return unavailable(sweep, f"a {calset.method} calibration leaves directivity or source "
                                   "match uncorrected")
@@ -173,7 +180,7 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
     trans = {}
     if sweep.ports > 1:
         two = calset.model.transmission.get("S21")
-        if calset.method != "enhanced-response" or port != 1 or two is None:
+        if calset.method not in ONE_PATH or port != 1 or two is None:
             return unavailable(sweep, f"a {calset.method} calibration of a two-port "
                                       "measurement leaves port 2's load match unknown")
         from acquire.uncertainty.transmission import with_load_match

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 
 from acquire.errors import MaskError
+from acquire.metrics import bandwidth
 from acquire.uncertainty.capture import SweepUncertainty
 from acquire.uncertainty.decision import (
     FAIL,
@@ -24,6 +25,12 @@ from acquire.uncertainty.decision import (
     runs,
 )
 from acquire.units import format_frequency
+from drivers.errors import SweepdError
+
+
+class GuardError(SweepdError):
+    """A check cannot be judged with a guard band (no uncertainty for its parameter)."""
+
 
 _BIG = 1e300  # stands for an open interval end (RL above a perfect match) in interpolation
 
@@ -97,15 +104,12 @@ def guarded_bandwidth(check: Any, base: Any, sweep: Any, rule: DecisionRule,
     the threshold is surely there, the band where |S| − w does is possibly there; pass
     if the sure band is wide enough, fail if even the possible band is not, else
     indeterminate. Both are taken around the resonance the simple check found."""
-    from acquire.checks import CheckError
-    from acquire.metrics import bandwidth
-
     if base.verdict == "error" or "center_hz" not in base.details:
         return base
     interval = unc.interval(check.parameter, "magnitude_db", rule.guard) if unc else None
     if interval is None:
         why = unc.why_not(check.parameter) if unc else "the sweep has no uncertainty"
-        raise CheckError(f"{check.name}: guarded acceptance needs the uncertainty of "
+        raise GuardError(f"{check.name}: guarded acceptance needs the uncertainty of "
                          f"{check.parameter}, but {why}")
     widths = []
     for level_db in (interval[1], interval[0]):  # sure (upper |S|), then possible (lower)

@@ -1,4 +1,5 @@
-"""Uncertainty of |S21| after an enhanced-response calibration (one-port + thru).
+"""Uncertainty of |S21| after a one-path-two-port calibration (one-port + thru; the
+method was called enhanced-response).
 
 Measurement model (the exact two-port error model of ``acquire.calibration.model``):
 the port-1 one-port is solved from the open, short and load as read (deviations,
@@ -154,7 +155,7 @@ def transmission_uncertainty(setup: TwoPortSetup, budget: Budget, thru_error: fl
                 2 * _H)
             var += (np.real(np.conj(unit) * deriv) * u) ** 2
     bias = np.abs(np.abs(centre) - np.abs(s21))  # exact along |S21|
-    # an unknown S22 (enhanced response does not correct it): worst case of e22·S22
+    # an unknown S22 (one-path two-port does not correct it): worst case of e22·S22
     e11 = setup.box.source_match
     bias = bias + np.abs(s21) * np.abs(setup.load_match) * np.asarray(setup.s22_bound) / np.abs(
         1 - e11 * np.asarray(setup.device[0]))
@@ -163,7 +164,7 @@ def transmission_uncertainty(setup: TwoPortSetup, budget: Budget, thru_error: fl
 
 
 def with_load_match(unc: Any, sweep: Any, e22: np.ndarray) -> Any:
-    """S11 of a two-port after enhanced response: port 2's load match reaches the input
+    """S11 of a two-port after one-path two-port: port 2's load match reaches the input
     through the device, Γin − S11 = S21·S12·e22/(1 − S22·e22), an error the method
     leaves in. Only S21 is corrected, so S12 = S21 (a reciprocal device) and |S22| from
     the raw reading are assumed, and the phase is not trusted: the whole magnitude
