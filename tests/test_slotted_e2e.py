@@ -74,6 +74,10 @@ def test_calibrate_by_its_own_switch(sim: SimServer, tmp_path: Path, link: str) 
 def test_run_a_two_port_plan(sim: SimServer, tmp_path: Path, link: str) -> None:
     sim.bench.set_device("cable-1m")
     path = with_dialect(tmp_path / "cable-line.yaml")
+    data = yaml.safe_load(path.read_text())
+    data["calibration"] = {"method": "none"}  # raw data, to compare with the bench's own
+    data.pop("checks", None)  # raw data fail the cable mask: not what this test is about
+    path.write_text(yaml.safe_dump(data, sort_keys=False))
     code = main(["run", str(path), "--resource", resource(sim, link),
                  "--output", str(tmp_path / "out"), "--serial", "C-0001"])
     assert code == 0
