@@ -247,11 +247,8 @@ class TraceReader:
 
 
 def trace_tokens(dialect: Dialect, name: str) -> dict[str, str]:
-    """The placeholders for trace ``name``: ``{trace}`` and its measurement tokens."""
-    tokens = {"trace": dialect.traces[name]}
-    if dialect.measurement is not None:
-        tokens.update(dialect.measurement.tokens[name])
-    return tokens
+    """The placeholders for trace ``name`` (see ``Dialect.trace_tokens``)."""
+    return dialect.trace_tokens(name)
 
 
 def wait_by_polling(talk: Conversation, timeout_s: float, sweep_time_s: float) -> None:
