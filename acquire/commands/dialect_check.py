@@ -81,8 +81,8 @@ def explain(dialect: Any) -> list[dict[str, str]]:
         for order in ("big", "little"):
             rows.append((f"data.byte_order.{order}.set", d.byte_orders.command(order)[0],
                          f"selects {order}-endian binary values"))
-    rows += [(f"data.traces.{n}", d.trace_query.render(trace=tok),
-              f"reads {n} ({d.layout} pairs per point)") for n, tok in d.traces.items()]
+    rows += [(f"data.traces.{n}", d.trace_query.render(**d.trace_tokens(n)),
+              f"reads {n} ({d.layout} per point)") for n in d.traces]
     rows += [("data.frequency.query", d.frequency_query, "reads the frequency axis"),
              ("trigger.command", d.trigger, f"starts one sweep; then waits by {d.wait}"),
              ("trigger.wai", d.wai, "holds later commands until the sweep is done"),

@@ -18,7 +18,7 @@ from typing import Any
 
 from drivers.dialect import Dialect, SettingSpec
 from drivers.errors import BlockError, InstrumentTimeout, ReplyError
-from drivers.replies import parse_error_entry, parse_flag
+from drivers.replies import parse_error_entry, parse_flag, parse_quantity
 from drivers.templates import format_number
 from drivers.transport import Transport
 
@@ -97,7 +97,8 @@ class Walker:
                                note="the error queue as found, drained"))
         self._queries()
         for name, spec in self.d.settings.items():
-            self._restore_setting(name, spec)
+            if spec.fixed is None:  # a fixed setting has no commands to walk
+                self._restore_setting(name, spec)
         self._formats()
         self._sweep()
         self._switch()
@@ -110,6 +111,8 @@ class Walker:
 
     def _queries(self) -> None:
         for name, spec in self.d.settings.items():
+            if spec.query is None:
+                continue  # fixed by the dialect: nothing to ask
             self.ask(f"settings.{name}.query", spec.query.text)
             if spec.state_query is not None:
                 self.ask(f"settings.{name}.state.query", spec.state_query.text)
@@ -136,10 +139,10 @@ class Walker:
                                    note="its query gave no value to restore"))
             return
         try:
-            value = float(before.split()[0].strip("'\""))
+            value = _sent_value(before, spec, self.d)
             values = {"value": format_number(round(value) if spec.integer else value,
                                              spec.integer)}
-        except (ValueError, IndexError):
+        except (ValueError, IndexError, ReplyError):
             self.steps.append(Step(f"{key}.set", None, ok=False,
                                    note=f"the query's reply {before!r} is no number"))
             return
@@ -216,12 +219,28 @@ class Walker:
             points = None  # counts are then shown, not checked
         if ascii_fmt.set is not None:
             self.send("data.formats[ascii].set", ascii_fmt.set.text, note="to read traces")
+        measurement = d.measurement
+        for name in d.traces if measurement else ():  # slots exist before the sweep
+            for index, template in enumerate(measurement.define):
+                self.send(f"measurement.define[{index}]",
+                          template.render(**d.trace_tokens(name)), note=f"defines {name}")
         self.send("trigger.command", d.trigger.text, note="one sweep at the present settings")
-        self.ask("session.opc_query", d.opc_query.text)
-        for name, token in d.traces.items():
-            self._count(f"data.traces.{name}", d.trace_query.render(trace=token),
+        wait = d.opc_query or (d.poll.query if d.poll else None)
+        if wait is not None:
+            self.ask("session.opc_query" if d.opc_query else "trigger.poll.query", wait.text)
+        for name in d.traces:
+            tokens = d.trace_tokens(name)
+            for index, template in enumerate(measurement.select if measurement else ()):
+                self.send(f"measurement.select[{index}]", template.render(**tokens),
+                          note=f"selects {name}")
+            self._count(f"data.traces.{name}", d.trace_query.render(**tokens),
                         None if points is None else 2 * points)
-        if d.frequency_query is not None:
+        for name in d.traces if measurement else ():
+            for index, template in enumerate(measurement.cleanup):
+                self.send(f"measurement.cleanup[{index}]",
+                          template.render(**d.trace_tokens(name)), note="as found")
+        axis = d.frequency
+        if d.frequency_query is not None and axis is not None and axis.encoding == "ascii":
             self._count("data.frequency.query", d.frequency_query.text, points)
         if ascii_fmt.set is not None:
             self._restore_format(self.read.get("data.format_query"))
@@ -266,6 +285,20 @@ def _same(before: str, after: str, spec: SettingSpec | None) -> bool:
         return a == b
     scale = spec.scale or 1.0
     return abs(a - b) * scale <= spec.absolute + spec.relative * abs(a * scale)
+
+
+def _sent_value(reply: str, spec: SettingSpec, dialect: Dialect) -> float:
+    """The number to send back for a read-back ``reply``, in the set command's unit
+    (the read-back may carry a unit suffix or use another unit, as the dialect says)."""
+    text = reply.strip().strip(" \t\0").strip("'\"")
+    if dialect.quirks.unit_suffixes:
+        value, in_si = parse_quantity(text, "read-back", integer=spec.integer)
+    else:
+        value, in_si = float(text.split()[0]), False
+    if spec.integer:
+        return value
+    si = value if in_si else value * spec.read_scale
+    return si / spec.scale
 
 
 def walk(dialect: Dialect, resource: str, timeout_s: float) -> list[Step]:
