@@ -19,7 +19,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "calibrate": ("calibrate", "guided calibration: prompt each standard, check, save a cal set"),
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
-    "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
+    "plot": ("plot", "match, impedance and Smith chart with masks and markers; overlays"),
     "export": ("export", "trace data of a Touchstone file as CSV: frequency plus quantities"),
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),

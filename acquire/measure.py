@@ -8,6 +8,7 @@ is the whole of ``sweepd run``; station and soak modes call the parts.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import logging
 import shlex
@@ -18,6 +19,8 @@ from typing import Any
 from acquire.checks import Verdict, evaluate_checks
 from acquire.journal import JournalStore, Planned, StoredFields, journal_in
 from acquire.journal import worst_margin as journal_worst_margin
+from acquire.journal.owner import RunOwner, settle_dead_runs
+from acquire.journal.settle import remove_orphans
 from acquire.plan import Plan
 from acquire.runner import Session, capture_path, save_capture
 from acquire.storage import free_path, sweep_stale_temps, write_new
@@ -166,16 +169,21 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
     """
     raw_path = raw_path_for(path) if plan.output.keep_raw and cap.corrected else None
     summary = summary_dict(cap, path, raw_path)
-    summary_path = write_new(path.with_suffix(".json"),
-                             json.dumps(summary, indent=2, allow_nan=False) + "\n",
-                             unique=False)
-    if raw_path is not None:
-        save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
     judged = plan.checks or cap.verdict.results  # a golden capture is judged without them
     comments = tuple(cap.verdict.comment_lines()) if judged else ()
     if cap.uncertainty is not None:
         comments += tuple(cap.uncertainty.comment_lines())
-    final = save_capture(cap.sweep, plan, path, comments, unique=False)
+    try:
+        summary_path = write_new(path.with_suffix(".json"),
+                                 json.dumps(summary, indent=2, allow_nan=False) + "\n",
+                                 unique=False)
+        if raw_path is not None:
+            save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
+        final = save_capture(cap.sweep, plan, path, comments, unique=False)
+    except BaseException:
+        if not path.exists():  # no summary saying PASS for a capture that never landed
+            remove_orphans(path)
+        raise
     return Stored(final, summary_path, raw_path)
 
 
@@ -221,6 +229,34 @@ def stored_fields(cap: Capture, *, note: str | None = None,
         instrument=meta.get("instrument"),
         note=note,
     )
+
+
+def store_journalled(journal: JournalStore, planned: Planned, cap: Capture,
+                     plan: Plan) -> Stored:
+    """Write a planned capture and mark it stored; when its files cannot be written
+    (disk full, permissions) nothing of it is left and the row is marked failed."""
+    from acquire.errors import StorageError
+
+    try:
+        stored = store(cap, plan, planned.touchstone)
+    except (OSError, SweepdError) as exc:
+        reason = getattr(exc, "strerror", None) or str(exc)
+        with contextlib.suppress(SweepdError):  # a full disk may refuse this too
+            journal.fail_measurement(planned, f"not stored: {reason}")
+        if isinstance(exc, SweepdError):
+            raise
+        raise StorageError(f"cannot store {planned.touchstone}: {reason}") from None
+    journal_stored(journal, planned, cap, stored)
+    return stored
+
+
+def record_failure(journal: JournalStore, run_id: int, exc: BaseException,
+                   action: str) -> None:
+    """Journal the error that ended a run, as far as the journal still can (on a full
+    disk it may not: the next start settles the run then)."""
+    with contextlib.suppress(SweepdError):
+        journal.end_run(run_id, "failed", note=str(exc))
+        journal.record_fault(run_id, type(exc).__name__, str(exc), action=action)
 
 
 def worst_margin(verdict: Verdict) -> float | None:
@@ -294,9 +330,11 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
     stored after; faults are journalled with the run marked failed.
     """
     sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
-    with journal_in(out_dir) as journal:
+    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
+        settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
         run_id = journal.start_run(kind, plan.name, plan_path=str(plan.source),
-                                   resource=resource or plan.instrument.resource)
+                                   resource=resource or plan.instrument.resource,
+                                   **owner.fields())
         try:
             with Session(plan, resource) as session:
                 journal.update_run(run_id, instrument=session.identity_text)
@@ -305,11 +343,9 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
             planned = journal.plan_measurement(
                 run_id, 0, plan_path(cap, plan, out_dir, serial=serial), serial=serial
             )
-            stored = store(cap, plan, planned.touchstone)
-            journal_stored(journal, planned, cap, stored)
+            stored = store_journalled(journal, planned, cap, plan)
         except SweepdError as exc:
-            journal.record_fault(run_id, type(exc).__name__, str(exc), action="run stopped")
-            journal.end_run(run_id, "failed", note=str(exc))
+            record_failure(journal, run_id, exc, "run stopped")
             raise
         journal.end_run(run_id)
     return RunResult(cap, stored)

@@ -396,3 +396,34 @@ def test_port_two_term_findings_name_the_port_two_steps() -> None:
     assert finding.check == "directivity" and finding.steps == ("load-2",)
     (finding,) = judge.terms(bad).failures
     assert finding.steps == ("load",)
+
+
+def test_uncertainty_still_accepts_the_renamed_one_path_method() -> None:
+    """The uncertainty budget needs a full reflection correction; the one-path method keeps
+    qualifying under its new name (and cal sets under its old one)."""
+    from acquire.calibration import CalSet
+    from acquire.uncertainty.capture import sweep_uncertainty
+    from drivers.stimulus import Stimulus
+    from simulators.errorbox import measure, reference_plane_terms
+
+    f = np.linspace(1e9, 2e9, 21)
+    terms = reference_plane_terms(f)
+    raw = {}
+    for name in ("open", "short", "load"):
+        s = np.zeros((f.size, 2, 2), complex)
+        s[:, 0, 0] = KIT.reflection(name, f)
+        raw[f"{name}.S11"] = measure(terms, s)[:, 0, 0]
+    thru = np.zeros((f.size, 2, 2), complex)
+    thru[:, 1, 0] = thru[:, 0, 1] = 1.0
+    m = measure(terms, thru)
+    raw["thru.S11"], raw["thru.S21"] = m[:, 0, 0], m[:, 1, 0]
+    model = solve("one-path-two-port", f, raw, KIT).model
+    stim = Stimulus(1e9, 2e9, 21, 0.0, 1e3)
+    dut = np.zeros((f.size, 2, 2), complex)
+    dut[:, 0, 0] = 0.2
+    sweep = Sweep(f, measure(terms, dut))
+    for name in ("one-path-two-port", "enhanced-response"):
+        renamed = type(model)(name, f, model.reflection, model.transmission)
+        cal = CalSet("p", renamed, stim, "x,y,z,1", KIT.name, KIT.sha256, "plane", raw=raw)
+        result = sweep_uncertainty(cal.correct(sweep), cal, KIT)
+        assert result.unavailable is None, (name, result.unavailable)

@@ -59,7 +59,7 @@ def test_a_version_1_journal_opens_migrated_and_reads_back(old: Path) -> None:
         assert j.soak_run("soak-test-001") is None  # resume never matches a short name
         assert j.state_counts(6) == ({"stored": 3, "measured": 9}, 11)
         assert len(j.alarms(6)) == 1
-        assert j.open_runs(("run", "measure")) == [7]
+        assert [r["id"] for r in j.open_runs(("run", "measure"))] == [7]
         # the killed run's pending row: its file never landed
         assert [s for _, s in j.reconcile(run_id=7)] == ["interrupted"]
     assert _plain(old, "PRAGMA user_version") == [(SCHEMA_VERSION,)]

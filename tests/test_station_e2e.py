@@ -332,7 +332,7 @@ def test_sigkill_between_units_and_mid_sweep(sim, tmp_path) -> None:
     assert rows(out, "SELECT state FROM runs")[0][0] == "running"
     with start(plan) as st:  # the next shift closes the dead one, then is killed mid-sweep
         text = golden_ok(st, sim)
-        assert "1 earlier shift(s) ended without closing" in text
+        assert "1 earlier run(s) ended without closing" in text
         unit(st, sim, GOOD[1])
         sim.faults.arm("stall", seconds=30.0)
         sim.bench.select_unit(GOOD[2])

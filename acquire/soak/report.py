@@ -74,6 +74,7 @@ def _gather(job: Job) -> tuple[Any, SoakSpec, dict[str, Any], dict[str, Any], hi
         ser = history.series(journal, run_id)
         faults = history.faults(journal, run_id)
         alarms = history.alarms(journal, run_id)
+        run["holds"] = journal.holds(run_id)
     return plan, spec, state, run, ser, faults, alarms
 
 
@@ -105,6 +106,7 @@ def write_report(job: Job, folder: Path) -> Report:
     if deviation is not None and deviation[1].size:
         pictures["deviation"] = _deviation(folder, deviation, spec, title)
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
+    facts["sweeps"] += _held_text(run.get("holds") or [])
     text = report_text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
     page = replace_atomic(folder / "summary.html", report_html(facts, pictures, folder))
@@ -260,6 +262,17 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
                                                        strict=True) if p and st == "stored"],
     }
     return facts
+
+
+def _held_text(holds: list[dict[str, Any]]) -> str:
+    """The sweeps not taken while held for disk space (one journal row per hold)."""
+    spans = [(int(h["first_seq"]), h["last_seq"]) for h in holds]
+    held = sum(max(0, int(last) - first + 1) for first, last in spans if last is not None)
+    still = any(last is None for _, last in spans)
+    if not spans:
+        return ""
+    return (f", {held} not taken while held for disk space ({len(spans)} hold(s)"
+            + (", one still on" if still else "") + ")")
 
 
 def _instruments(ser: history.Series, run: dict[str, Any], resource: str) -> list[str]:

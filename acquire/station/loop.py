@@ -23,6 +23,7 @@ from datetime import datetime
 from pathlib import Path
 
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
+from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.measure import CalChoice, choose_calibration
 from acquire.plan import Plan
 from acquire.station.config import StationConfig, check_station_id, station_config
@@ -30,6 +31,7 @@ from acquire.station.counters import run_yield
 from acquire.station.display import banner, unit_lines
 from acquire.station.errors import SerialRefused, StationError
 from acquire.station.figures import worst_violation
+from acquire.station.folder_lock import StationLock
 from acquire.station.hold import handle_indeterminate
 from acquire.station.hooks import LineHooks
 from acquire.station.interrupts import QUIT, Quit, deferred_interrupt, terminate_as_interrupt
@@ -91,16 +93,24 @@ class Station:
 
     # -- the shift -------------------------------------------------------------------------
     def run(self) -> int:
+        """The shift, holding the output folder for its whole life (one station per
+        folder; a second one is refused with one line naming the holder)."""
+        given = self.options.station_id or self.config.station_id or ""
+        with StationLock(self.out_dir).acquire(given):
+            return self._run()
+
+    def _run(self) -> int:
         self._intro()
         station_id = self._station_id()
         if station_id is None:
             return 0
         code, state, note = 0, "finished", None
-        with journal_in(self.out_dir) as journal, terminate_as_interrupt():
+        with journal_in(self.out_dir) as journal, RunOwner(self.out_dir) as owner, \
+                terminate_as_interrupt():
             self._recover(journal)
             run_id = journal.start_run(
                 "station", self.plan.name, plan_path=str(self.plan.source), station=station_id,
-                operator=self.options.operator, resource=self.resource)
+                operator=self.options.operator, resource=self.resource, **owner.fields())
             self.line = Line(self.plan, self.config, self.out_dir, journal, run_id, station_id,
                              reference=self.reference)
             self.hooks.common["station"] = station_id
@@ -443,17 +453,12 @@ class Station:
                 self.term.say(f"REFUSED: {exc}")
 
     def _recover(self, journal: JournalStore) -> None:
-        """Close earlier shifts of this plan that never ended (killed, power cut): settle
-        their pending rows and mark them crashed. One station per plan and folder."""
-        stale = journal.open_runs(("station",), self.plan.name)
-        changed = []
-        for run_id in stale:
-            changed += journal.reconcile(run_id=run_id)
-            journal.end_run(run_id, "crashed",
-                            note="ended without closing; settled at the next station start")
+        """Close earlier runs in this folder whose process is gone (killed, power cut):
+        settle their pending rows and mark them crashed."""
+        stale, changed = settle_dead_runs(journal, self.out_dir)
         if stale:
             adopted = sum(1 for _, state in changed if state == "stored")
-            self.term.say(f"journal: {len(stale)} earlier shift(s) ended without closing; "
+            self.term.say(f"journal: {stale} earlier run(s) ended without closing; "
                           f"{len(changed)} pending measurement(s) settled ({adopted} adopted, "
                           f"{len(changed) - adopted} interrupted)")
         sweep_stale_temps(self.out_dir)  # temp files of writers that died mid-write

@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from acquire.journal import journal_in
+from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
@@ -62,7 +63,7 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
     measurement service keeps one open between calls); without it one is opened and
     closed here.
     """
-    from acquire.measure import choose_calibration
+    from acquire.measure import choose_calibration, record_failure
     from acquire.runner import Session
 
     config = station_config(plan)
@@ -78,9 +79,11 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
         reference = load_reference(golden, plan)
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with journal_in(out_dir) as journal:
+    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
+        settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
-                                   station=station_id or None, resource=resource)
+                                   station=station_id or None, resource=resource,
+                                   **owner.fields())
         try:
             with contextlib.nullcontext(session) if session is not None \
                     else Session(plan, resource) as session:
@@ -92,11 +95,11 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
                     _check_line_open(journal, plan, golden, cal, request)
                 result = measure_unit(line, serial, golden=request.golden)
         except SweepdError as exc:
-            journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
-            journal.end_run(run_id, "failed", note=str(exc))
+            record_failure(journal, run_id, exc, "not measured")
             raise
         except KeyboardInterrupt:
-            journal.end_run(run_id, "stopped", note="interrupted")
+            with contextlib.suppress(SweepdError):
+                journal.end_run(run_id, "stopped", note="interrupted")
             raise
         journal.end_run(run_id)
         return Outcome(result, Path(journal.where), run_id, resource)

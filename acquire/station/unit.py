@@ -15,7 +15,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from acquire.journal import JournalStore, Planned
-from acquire.measure import CalChoice, Capture, Stored, capture, journal_stored, plan_path, store
+from acquire.measure import CalChoice, Capture, Stored, capture, plan_path, store_journalled
 from acquire.plan import Plan
 from acquire.runner import Session
 from acquire.station.config import StationConfig
@@ -101,7 +101,7 @@ def measure_unit(line: Line, serial: str, *, golden: bool = False,
                          station=line.station_id)
         planned = line.journal.plan_measurement(line.run_id, seq, path, serial=serial,
                                                 golden=golden)
-        stored = _store(line, planned, cap)
+        stored = store_journalled(line.journal, planned, cap, line.plan)
         if result is not None:
             line.journal.record_golden(
                 line.run_id, serial, result.passed,
@@ -120,21 +120,6 @@ def _golden_result(line: Line, cap: Capture, serial: str) -> GoldenResult:
         return compare(cap.sweep, line.reference, spec, line.plan.measure)
     except GoldenError as exc:
         return GoldenResult(False, str(exc), 0, reference=spec.reference.name, serial=serial)
-
-
-def _store(line: Line, planned: Planned, cap: Capture) -> Stored:
-    from acquire.errors import StorageError
-
-    try:
-        stored = store(cap, line.plan, planned.touchstone)
-    except (OSError, SweepdError) as exc:
-        reason = getattr(exc, "strerror", None) or str(exc)
-        line.journal.fail_measurement(planned, f"not stored: {reason}")
-        if isinstance(exc, SweepdError):
-            raise
-        raise StorageError(f"cannot store {planned.touchstone}: {reason}") from None
-    journal_stored(line.journal, planned, cap, stored)
-    return stored
 
 
 def save_fail_plot(result: UnitResult, plan: Plan, why: str | None) -> Path:
