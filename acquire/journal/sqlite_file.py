@@ -204,7 +204,3 @@ def _retry_busy(step: Callable[[], None], timeout_s: float) -> None:
                 raise
         time.sleep(delay)
         delay = min(delay * 2, 0.2)
-
-
-def text_or_none(value: Any) -> str | None:
-    return None if value is None else str(value)

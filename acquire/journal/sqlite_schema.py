@@ -10,7 +10,7 @@ test (``tests/test_journal_migrations.py``).
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 5
+SCHEMA_VERSION = 6
 
 _V1 = """
 CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -122,4 +122,17 @@ CREATE TABLE holds (
 )
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5}
+# 6: rows of a shared store: the lot a run measured, idempotent keys (a run's ``run_uid``,
+# a capture's ``capture_id``, made before the write so that a retry finds its row), and
+# the station folder (``origin``) a run was journalled from.
+_V6 = """
+ALTER TABLE runs ADD COLUMN lot TEXT;
+ALTER TABLE runs ADD COLUMN run_uid TEXT;
+ALTER TABLE runs ADD COLUMN origin TEXT;
+ALTER TABLE measurements ADD COLUMN capture_id TEXT;
+CREATE UNIQUE INDEX runs_run_uid ON runs(run_uid) WHERE run_uid IS NOT NULL;
+CREATE UNIQUE INDEX measurements_capture_id ON measurements(capture_id)
+    WHERE capture_id IS NOT NULL
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6}

@@ -3,8 +3,8 @@
 Every record of runs, measurements, faults, golden checks and alarms goes through these
 methods; no other module writes or reads the journal's tables. Rows come back as plain
 dicts (column name -> value), so callers never see the backend. The SQLite backend
-(``acquire.journal.sqlite``) is the one shipped; a server database can stand behind the
-same methods.
+(``acquire.journal.sqlite``, one file per output folder) is the default; a shared
+PostgreSQL store (``acquire.journal.postgres``) stands behind the same methods.
 
 Write order is the contract that keeps the journal true after a crash: a capture is
 journalled ``pending`` with its planned file name before any file is written, then the
@@ -25,8 +25,9 @@ from acquire.utc import utc_text
 Row = dict[str, Any]
 
 RUN_FIELDS = ("plan_path", "station", "operator", "instrument", "resource", "job_id",
-              "job_uid", "owner", "pid", "host", "note")
-RUN_UPDATES = ("instrument", "resource", "state", "note", "ended_utc", "station", "operator")
+              "job_uid", "owner", "pid", "host", "note", "lot")
+RUN_UPDATES = ("instrument", "resource", "state", "note", "ended_utc", "station", "operator",
+               "lot")
 FILL_FIELDS = ("metrics_json", "verdict", "exit_code", "worst_margin", "summary",
                "raw_touchstone", "verdict_json", "cal_id", "cal_age_s", "instrument", "note")
 
@@ -41,6 +42,7 @@ class Planned:
     serial: str
     attempt: int
     touchstone: Path
+    capture_id: str = ""  # the idempotent key it was journalled under
 
 
 @dataclass(frozen=True)
@@ -79,8 +81,10 @@ class JournalStore(ABC):
 
     # -- runs --------------------------------------------------------------------------------
     @abstractmethod
-    def start_run(self, kind: str, plan: str, **fields: Any) -> int:
-        """A new run in state ``running``; ``fields`` from ``RUN_FIELDS``."""
+    def start_run(self, kind: str, plan: str, *, run_uid: str | None = None,
+                  **fields: Any) -> int:
+        """A new run in state ``running``; ``fields`` from ``RUN_FIELDS``. Starting it again
+        with the same ``run_uid`` (a retry) returns the same run."""
 
     @abstractmethod
     def update_run(self, run_id: int, **fields: Any) -> None:
@@ -113,8 +117,10 @@ class JournalStore(ABC):
 
     @abstractmethod
     def plan_measurement(self, run_id: int, seq: int, touchstone: Path, *, serial: str = "",
-                         golden: bool = False, attempt: int | None = None) -> Planned:
-        """Journal a measurement as pending before its files are written."""
+                         golden: bool = False, attempt: int | None = None,
+                         capture_id: str | None = None) -> Planned:
+        """Journal a measurement as pending before its files are written. Planning it
+        again under the same ``capture_id`` (a retry) returns the row already there."""
 
     @abstractmethod
     def store_measurement(self, planned: Planned, *, touchstone: Path, summary: Path | None,
