@@ -9,10 +9,26 @@ import threading
 from pathlib import Path
 
 import pytest
+from pg_cluster import pg_cluster, pg_url  # noqa: F401  (fixtures)
 
 from acquire.errors import JournalError
-from acquire.journal import StoredFields, journal_in, open_journal
+from acquire.journal import JournalStore, StoredFields, journal_in, open_journal
 from acquire.journal.sqlite_schema import SCHEMA_VERSION
+
+BACKENDS = ["sqlite", "postgresql"]
+
+
+@pytest.fixture(params=BACKENDS)
+def where(request: pytest.FixtureRequest, tmp_path: Path) -> str:
+    """Where a journal is kept, once per backend: the output folder's SQLite file, or a
+    fresh database on a throwaway PostgreSQL server (see tests/pg_cluster.py)."""
+    if request.param == "sqlite":
+        return str(tmp_path / "journal.sqlite")
+    return request.getfixturevalue("pg_url")
+
+
+def opened(where: str, *, read_only: bool = False) -> JournalStore:
+    return open_journal(where, read_only=read_only)
 
 
 def raw(folder: Path, sql: str, params: tuple = ()) -> list[sqlite3.Row]:
@@ -53,8 +69,8 @@ def test_not_a_database(tmp_path: Path) -> None:
         journal_in(tmp_path)
 
 
-def test_measurement_lifecycle_and_attempts(tmp_path: Path) -> None:
-    with journal_in(tmp_path) as j:
+def test_measurement_lifecycle_and_attempts(tmp_path: Path, where: str) -> None:
+    with opened(where) as j:
         run = j.start_run("station", "patch-line-a", station="bench-3")
         p1 = j.plan_measurement(run, 0, tmp_path / "a.s1p", serial="PA-1")
         assert p1.attempt == 1
@@ -76,8 +92,9 @@ def test_measurement_lifecycle_and_attempts(tmp_path: Path) -> None:
         assert j.attempts("patch-line-a", "PA-1") == 1
 
 
-def test_reconcile_adopts_complete_files_and_marks_the_rest_interrupted(tmp_path: Path) -> None:
-    with journal_in(tmp_path) as j:
+def test_reconcile_adopts_complete_files_and_marks_the_rest_interrupted(
+        tmp_path: Path, where: str) -> None:
+    with opened(where) as j:
         run = j.start_run("soak", "drift")
         done = j.plan_measurement(run, 0, tmp_path / "s0.s1p")
         lost = j.plan_measurement(run, 1, tmp_path / "s1.s1p")
@@ -91,10 +108,11 @@ def test_reconcile_adopts_complete_files_and_marks_the_rest_interrupted(tmp_path
         assert j.state_counts(run) == ({"stored": 1, "interrupted": 1}, 1)
 
 
-def test_missed_means_due_but_never_taken_and_never_overwrites_a_row(tmp_path: Path) -> None:
+def test_missed_means_due_but_never_taken_and_never_overwrites_a_row(
+        tmp_path: Path, where: str) -> None:
     """One meaning for 'missed': a new row for an index that was due and not taken. An
     index already journalled (pending, stored, ...) keeps its row and state."""
-    with journal_in(tmp_path) as j:
+    with opened(where) as j:
         run = j.start_run("soak", "drift")
         p = j.plan_measurement(run, 1, tmp_path / "s1.s1p")
         assert j.record_missed(run, range(0, 3), "instrument unreachable") == 2
@@ -107,8 +125,8 @@ def test_missed_means_due_but_never_taken_and_never_overwrites_a_row(tmp_path: P
         assert j.state_counts(run)[0] == {"missed": 2, "failed": 1}
 
 
-def test_faults_alarms_and_golden_checks(tmp_path: Path) -> None:
-    with journal_in(tmp_path) as j:
+def test_faults_alarms_and_golden_checks(tmp_path: Path, where: str) -> None:
+    with opened(where) as j:
         run = j.start_run("soak", "drift")
         for n in range(3):
             j.record_fault(run, "ConnectionLost", f"link dropped {n}", action="reconnected",
@@ -125,21 +143,22 @@ def test_faults_alarms_and_golden_checks(tmp_path: Path) -> None:
         assert j.golden_checks(plan="other") == []
 
 
-def test_a_failed_write_rolls_back_and_says_which_journal(tmp_path: Path) -> None:
-    with journal_in(tmp_path) as j:
+def test_a_failed_write_rolls_back_and_says_which_journal(tmp_path: Path, where: str) -> None:
+    with opened(where) as j:
         run = j.start_run("run", "p")
         with pytest.raises(ValueError, match="unknown run fields"):
             j.update_run(run, colour="red")
-        with pytest.raises(JournalError, match=r"journal .*journal\.sqlite: .*already"):
+        with pytest.raises(JournalError, match=r"journal .*(journal\.sqlite|sweepd_test).*: "
+                           r".*already"):
             j.record_measured(run, 0, StoredFields())
             j.record_measured(run, 0, StoredFields())
         assert j.state_counts(run)[0] == {"measured": 1}
 
 
-def test_read_only_view_cannot_write(tmp_path: Path) -> None:
-    with journal_in(tmp_path) as j:
+def test_read_only_view_cannot_write(tmp_path: Path, where: str) -> None:
+    with opened(where) as j:
         run = j.start_run("soak", "drift")
-    with journal_in(tmp_path, read_only=True) as view:
+    with opened(where, read_only=True) as view:
         assert view.run(run)["kind"] == "soak"
         with pytest.raises(JournalError, match="read-only"):
             view.record_fault(run, "k", "m")
@@ -147,10 +166,10 @@ def test_read_only_view_cannot_write(tmp_path: Path) -> None:
         journal_in(tmp_path / "nowhere", read_only=True)
 
 
-def test_two_connections_share_the_file(tmp_path: Path) -> None:
+def test_two_connections_share_the_file(tmp_path: Path, where: str) -> None:
     """Another process (here: another connection) reads while a writer writes (WAL)."""
     errors: list[BaseException] = []
-    with journal_in(tmp_path) as writer:
+    with opened(where) as writer:
         run = writer.start_run("soak", "drift")
 
         def write() -> None:
@@ -162,7 +181,7 @@ def test_two_connections_share_the_file(tmp_path: Path) -> None:
 
         t = threading.Thread(target=write)
         t.start()
-        reader = open_journal(tmp_path / "journal.sqlite", read_only=True)
+        reader = opened(where, read_only=True)
         while t.is_alive():
             reader.faults(run)
         t.join()
@@ -171,10 +190,11 @@ def test_two_connections_share_the_file(tmp_path: Path) -> None:
     assert not errors
 
 
-def test_adopted_rows_take_summary_verdict_and_raw_copy_from_their_files(tmp_path: Path) -> None:
+def test_adopted_rows_take_summary_verdict_and_raw_copy_from_their_files(
+        tmp_path: Path, where: str) -> None:
     """Files are written summary, raw copy, Touchstone (last): an adopted capture's
     companions are complete and fill the row."""
-    with journal_in(tmp_path) as j:
+    with opened(where) as j:
         run = j.start_run("station", "patch-line-a")
         p = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1")
         summary = {
@@ -226,12 +246,12 @@ def test_run_refuses_a_journal_link_with_one_line(tmp_path: Path, capsys) -> Non
     assert (tmp_path / "elsewhere").read_bytes() == b""
 
 
-def test_settling_covers_pending_rows_of_runs_that_ended(tmp_path: Path) -> None:
+def test_settling_covers_pending_rows_of_runs_that_ended(tmp_path: Path, where: str) -> None:
     """A run that ended (say failed on a full disk after its files were written) with a
     row still pending: the next start settles that row too; a live run keeps its own."""
     from acquire.journal.owner import RunOwner, settle_dead_runs
 
-    with journal_in(tmp_path) as j:
+    with opened(where) as j:
         ended = j.start_run("run", "p")
         done = j.plan_measurement(ended, 0, tmp_path / "a.s1p")
         (tmp_path / "a.s1p").write_text("complete")
