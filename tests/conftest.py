@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import pytest
 
+# the throwaway PostgreSQL cluster fixtures (pg_cluster, pg_url) of the shared-store tests
+pytest_plugins = ["pg_cluster"]
+
 
 def pytest_addoption(parser: pytest.Parser) -> None:
     parser.addoption(

@@ -9,7 +9,6 @@ import threading
 from pathlib import Path
 
 import pytest
-from pg_cluster import pg_cluster, pg_url  # noqa: F401  (fixtures)
 
 from acquire.errors import JournalError
 from acquire.journal import JournalStore, StoredFields, journal_in, open_journal
