@@ -123,7 +123,7 @@ def test_a_failing_migration_leaves_the_file_as_it_was(old: Path, monkeypatch) -
 
 
 # -- SQL only in the journal package -------------------------------------------------------
-SQL = re.compile(r"\bimport sqlite3\b|\bPRAGMA\b|\bCREATE (TABLE|INDEX)\b|"
+SQL = re.compile(r"\bimport (sqlite3|psycopg)\b|\bPRAGMA\b|\bCREATE (TABLE|INDEX)\b|"
                  r"\b(SELECT|INSERT|UPDATE|DELETE)\b[^\n]*\b(FROM|INTO|SET)\b")
 
 
