@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import json
 import os
+import sqlite3
 import subprocess
 import sys
 from pathlib import Path
@@ -15,32 +16,38 @@ import pytest
 from test_station_support import install_cal, write_plan
 
 from acquire.errors import JournalError
-from acquire.journal import JOURNAL_NAME, journal_in, open_journal
+from acquire.journal import JOURNAL_NAME, journal_in, open_journal, station_origin
+from acquire.journal.outbox import OutboxJournal
 from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.journal.pg_schema import SCHEMA_VERSION
-from acquire.journal.postgres import PostgresJournal, public_url
+from acquire.journal.postgres import public_url
 
 
-def test_sweepd_journal_url_moves_the_journal_to_the_server(pg_url, tmp_path, monkeypatch):
+def test_sweepd_journal_url_sends_the_station_journal_to_the_server(pg_url, tmp_path,
+                                                                   monkeypatch):
+    """A station keeps its own journal file (the outbox) and forwards each write."""
     monkeypatch.setenv("SWEEPD_JOURNAL", pg_url)
     with journal_in(tmp_path / "out") as j:
-        assert isinstance(j, PostgresJournal)
+        assert isinstance(j, OutboxJournal) and j.url == pg_url
         run = j.start_run("measure", "patch-line-a", station="st-1", operator="ana",
                           instrument="sim", lot="LOT-7")
-        row = j.run(run)
+        uid = j.run(run)["run_uid"]
+        assert j.backlog() == 0
+    with open_journal(pg_url, read_only=True) as store:
+        (row,) = [r for r in store.open_runs(["measure"]) if r["run_uid"] == uid]
     assert (row["station"], row["operator"], row["instrument"], row["plan"], row["lot"]) == (
         "st-1", "ana", "sim", "patch-line-a", "LOT-7")
-    assert row["origin"].endswith(str((tmp_path / "out").resolve()))
-    assert not (tmp_path / "out" / JOURNAL_NAME).exists()
-    monkeypatch.delenv("SWEEPD_JOURNAL")
-    with journal_in(tmp_path / "out") as local:  # no URL: the folder's own SQLite file
-        assert local.run(run) is None
+    assert row["origin"] == station_origin(tmp_path / "out")
     assert (tmp_path / "out" / JOURNAL_NAME).is_file()
+    with journal_in(tmp_path / "out", read_only=True) as view:  # readers read the file
+        assert view.run(run)["run_uid"] == uid
 
 
-def test_a_plan_key_names_the_store_too(pg_url, tmp_path):
+def test_a_location_names_the_store_too(pg_url, tmp_path):
     with journal_in(tmp_path, location=pg_url) as j:
-        assert j.where == pg_url and j.schema_version == SCHEMA_VERSION
+        assert isinstance(j, OutboxJournal) and j.url == pg_url
+    with open_journal(pg_url) as store:
+        assert store.where == pg_url and store.schema_version == SCHEMA_VERSION
 
 
 def test_schema_version_table_and_a_newer_schema_is_refused(pg_url):
@@ -73,7 +80,8 @@ def test_stations_opening_a_new_database_at_once_migrate_it_once(pg_url):
         t.join()
     assert not errors
     with psycopg.connect(pg_url) as conn:
-        assert conn.execute("SELECT COUNT(*) FROM sweepd_schema").fetchone()[0] == 1
+        applied = conn.execute("SELECT COUNT(*) FROM sweepd_schema").fetchone()[0]
+        assert applied == SCHEMA_VERSION
 
 
 def test_an_unreachable_server_is_one_line_without_the_password(pg_cluster):
@@ -106,14 +114,14 @@ def test_a_station_settles_only_its_own_runs(pg_url, tmp_path):
     """Station B starting after station A died must not settle A's runs: B cannot see A's
     process (another folder, perhaps another PC). A's own next start does."""
     a, b = tmp_path / "a", tmp_path / "b"
-    with journal_in(a, location=pg_url) as ja:
+    with open_journal(pg_url, origin=station_origin(a)) as ja:
         dead = ja.start_run("measure", "p", station="A")
         ja.plan_measurement(dead, 0, a / "u.s1p", serial="PA-1")
-    with journal_in(b, location=pg_url) as jb, RunOwner(b) as owner:
+    with open_journal(pg_url, origin=station_origin(b)) as jb, RunOwner(b) as owner:
         jb.start_run("measure", "p", station="B", **owner.fields())
         assert settle_dead_runs(jb, b) == (0, [])
         assert jb.run(dead)["state"] == "running"
-    with journal_in(a, location=pg_url) as ja:
+    with open_journal(pg_url, origin=station_origin(a)) as ja:
         runs, changed = settle_dead_runs(ja, a)
         assert runs == 1 and [state for _, state in changed] == ["interrupted"]
         assert ja.run(dead)["state"] == "crashed"
@@ -184,7 +192,17 @@ def _check_store_against_files(pg_url: str, tmp_path: Path) -> None:
         out = tmp_path / f"st{n}" / "out"
         on_disk = {str(p) for p in out.glob("*.s1p") if ".raw." not in p.name}
         assert on_disk == {r["touchstone"] for r in mine}
-        assert not (out / JOURNAL_NAME).exists()
+        assert _local(out, "SELECT COUNT(*) FROM outbox") == [(0,)]  # all forwarded
+        assert sorted(r[0] for r in _local(out, "SELECT capture_id FROM measurements")) == \
+            sorted(r["capture_id"] for r in mine)
         for r in mine:
             summary = json.loads(Path(r["summary"]).read_text())
             assert summary["verdict"] == r["verdict"]
+
+
+def _local(out: Path, sql: str) -> list[tuple]:
+    db = sqlite3.connect(out / JOURNAL_NAME)
+    try:
+        return db.execute(sql).fetchall()
+    finally:
+        db.close()

@@ -6,10 +6,12 @@ shipped backend (one SQLite file per output folder, ``journal.sqlite``).
 
 Open one with ``open_journal(path)`` or ``journal_in(folder)``; code outside this
 package holds a ``JournalStore`` and never sees SQL. A line shares one store: a
-``postgresql://user@host/db`` URL (from ``SWEEPD_JOURNAL``, the plan's or the station's
-``journal`` key, passed as ``location``) opens the PostgreSQL backend instead
-(``acquire.journal.postgres``); its runs are marked with the station folder they came
-from, so that settling after a crash touches only this station's runs.
+``postgresql://user@host/db`` URL (from ``SWEEPD_JOURNAL``, or passed as ``location``
+from a configuration key). ``open_journal(url)`` opens the PostgreSQL backend
+(``acquire.journal.postgres``) directly; ``journal_in(folder)`` keeps the station's own
+file as an outbox that forwards to it (``acquire.journal.outbox``). Runs are marked with
+the station folder they came from, so that settling after a crash touches only that
+station's runs.
 """
 
 from __future__ import annotations
@@ -74,11 +76,19 @@ def journal_location(location: Path | str | None = None) -> str | None:
 
 def journal_in(folder: Path | str, *, read_only: bool = False,
                location: Path | str | None = None) -> JournalStore:
-    """The journal of an output folder: its own ``journal.sqlite``, or the shared store
-    named by ``location`` / ``SWEEPD_JOURNAL`` (see ``journal_location``)."""
+    """The journal of an output folder: its own ``journal.sqlite``, or the journal named by
+    ``location`` / ``SWEEPD_JOURNAL`` (see ``journal_location``). For a shared
+    ``postgresql://`` store the folder's own file is kept too, as the outbox that forwards
+    to the store (``acquire.journal.outbox``), and a read-only view reads it."""
+    from acquire.journal.postgres import is_postgres_url
+
     shared = journal_location(location)
-    if shared is None:
+    if shared is None or (read_only and is_postgres_url(shared)):
         return open_journal(Path(folder) / JOURNAL_NAME, read_only=read_only)
+    if is_postgres_url(shared):
+        from acquire.journal.outbox import OutboxJournal
+
+        return OutboxJournal(folder, shared, origin=station_origin(folder))
     return open_journal(shared, read_only=read_only, origin=station_origin(folder))
 
 

@@ -12,7 +12,7 @@ change the schema: append a migration here, raise ``SCHEMA_VERSION``, and do the
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 # the advisory lock key that serialises migrations ("sweepd" in ASCII)
 MIGRATION_LOCK = 0x737765657064
@@ -121,4 +121,17 @@ CREATE TABLE holds (
 )
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1}
+# 2: rows forwarded from a station's outbox carry the key they had there
+# (``origin#table#local id``), so forwarding them again updates instead of adding.
+_V2 = """
+ALTER TABLE faults ADD COLUMN source_key TEXT;
+ALTER TABLE golden_checks ADD COLUMN source_key TEXT;
+ALTER TABLE alarms ADD COLUMN source_key TEXT;
+ALTER TABLE holds ADD COLUMN source_key TEXT;
+CREATE UNIQUE INDEX faults_source_key ON faults(source_key);
+CREATE UNIQUE INDEX golden_checks_source_key ON golden_checks(source_key);
+CREATE UNIQUE INDEX alarms_source_key ON alarms(source_key);
+CREATE UNIQUE INDEX holds_source_key ON holds(source_key)
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2}

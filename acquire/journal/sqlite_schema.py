@@ -10,7 +10,7 @@ test (``tests/test_journal_migrations.py``).
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 6
+SCHEMA_VERSION = 7
 
 _V1 = """
 CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -135,4 +135,15 @@ CREATE UNIQUE INDEX measurements_capture_id ON measurements(capture_id)
     WHERE capture_id IS NOT NULL
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6}
+# 7: the outbox of a station that journals for a shared store: which rows changed since
+# they were last forwarded, in order (filled by the forwarding connection's own triggers;
+# empty for a station without a store).
+_V7 = """
+CREATE TABLE outbox (
+    seq INTEGER PRIMARY KEY,
+    tbl TEXT NOT NULL,
+    row_id INTEGER NOT NULL
+)
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7}
