@@ -16,7 +16,13 @@ import pytest
 from test_station_support import install_cal, write_plan
 
 from acquire.errors import JournalError
-from acquire.journal import JOURNAL_NAME, journal_in, open_journal, station_origin
+from acquire.journal import (
+    JOURNAL_NAME,
+    StoredFields,
+    journal_in,
+    open_journal,
+    station_origin,
+)
 from acquire.journal.outbox import OutboxJournal
 from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.journal.pg_schema import SCHEMA_VERSION
@@ -145,7 +151,7 @@ for serial in units:
 """
 
 
-def test_eight_stations_measure_into_one_database(pg_url, tmp_path):
+def test_eight_stations_measure_into_one_database(pg_url, tmp_path, capsys):
     """Eight station processes, each with its own simulator and output folder, measure at
     once into one database: every capture on disk has exactly one stored row, every row
     its file, retests count per station, nothing is lost or doubled."""
@@ -175,6 +181,7 @@ def test_eight_stations_measure_into_one_database(pg_url, tmp_path):
         assert p.returncode == 0, err
         assert out.count("EXIT") == UNITS, out + err
     _check_store_against_files(pg_url, tmp_path)
+    _check_summary_across_stations(pg_url, capsys)
 
 
 def _check_store_against_files(pg_url: str, tmp_path: Path) -> None:
@@ -206,3 +213,43 @@ def _local(out: Path, sql: str) -> list[tuple]:
         return db.execute(sql).fetchall()
     finally:
         db.close()
+
+
+def _summary(capsys, *args: str) -> dict:
+    from schema_support import validate
+
+    from acquire.cli import main
+
+    assert main(["summary", *args, "--json"]) == 0
+    return validate(capsys.readouterr().out, "summary")
+
+
+def _check_summary_across_stations(pg_url: str, capsys) -> None:
+    """``sweepd summary URL``: the line in all, each station, and the filters."""
+    line = _summary(capsys, pg_url)
+    assert line["measurements"] == STATIONS * UNITS
+    (plan,) = line["plans"]
+    assert plan["yield"]["tested"] == STATIONS * 3  # the retest is the same unit
+    assert plan["yield"]["retests"] == STATIONS
+    stations = {s["station"]: s["plans"][0] for s in line["stations"]}
+    assert sorted(stations) == [f"st-{n}" for n in range(STATIONS)]
+    assert all(p["measurements"] == UNITS and p["yield"]["tested"] == 3
+               for p in stations.values())
+    one = _summary(capsys, pg_url, "--station", "st-3")
+    assert one["measurements"] == UNITS and [s["station"] for s in one["stations"]] == ["st-3"]
+    firsts = _summary(capsys, pg_url, "--serial", "PA-?001")
+    assert firsts["measurements"] == 2 * STATIONS  # each station's first unit and its retest
+
+
+def test_summary_filters_by_lot_and_refuses_a_dead_store(pg_url, capsys) -> None:
+    from acquire.cli import main
+
+    with open_journal(pg_url) as store:
+        for lot in ("LOT-A", "LOT-B"):
+            run = store.start_run("measure", "p", station="st-1", lot=lot)
+            store.record_measured(run, 0, StoredFields(verdict="pass", exit_code=0))
+    assert _summary(capsys, pg_url, "--lot", "LOT-B")["measurements"] == 1
+    dead = "postgresql://line:pw@127.0.0.1:1/none"
+    assert main(["summary", dead]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "server unreachable" in err and ":pw@" not in err

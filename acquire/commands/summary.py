@@ -21,9 +21,15 @@ yield is over judged units. Against the limits of the checks:
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.formatter_class = argparse.RawDescriptionHelpFormatter
     parser.epilog = EPILOG
-    parser.add_argument("output_dir", metavar="OUTPUT_DIR", help="folder holding journal.sqlite")
+    parser.add_argument("output_dir", metavar="OUTPUT_DIR",
+                        help="folder holding journal.sqlite, or a shared store's "
+                        "postgresql:// URL (all stations, and each station)")
     parser.add_argument("--since", metavar="T", help="only measurements from this time on")
     parser.add_argument("--plan", metavar="NAME", help="only this plan")
+    parser.add_argument("--station", metavar="ID", help="only this station")
+    parser.add_argument("--lot", metavar="LOT", help="only this lot")
+    parser.add_argument("--serial", metavar="PATTERN",
+                        help="only serials matching this pattern (PA-00*, PA-00?7)")
     parser.add_argument("--all-attempts", action="store_true",
                         help="statistics over every measurement, retests included")
     parser.add_argument("--csv", nargs="?", const="-", metavar="FILE",
@@ -45,8 +51,12 @@ def _run(args: argparse.Namespace) -> int:
     from acquire.station.summary import load_selection, parse_since
 
     since = parse_since(args.since) if args.since else None
-    selection = load_selection(Path(args.output_dir), since_utc=since, plan=args.plan,
-                               all_attempts=args.all_attempts)
+    from acquire.journal.postgres import is_postgres_url
+
+    source = args.output_dir if is_postgres_url(args.output_dir) else Path(args.output_dir)
+    selection = load_selection(source, since_utc=since, plan=args.plan,
+                               all_attempts=args.all_attempts, station=args.station,
+                               lot=args.lot, serial=args.serial)
     if args.csv == "-":
         sys.stdout.write(selection.csv())
         return 0

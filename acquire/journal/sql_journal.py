@@ -273,9 +273,13 @@ class SqlJournal(JournalStore):
             params.append(int(limit))
         return self._rows(sql, params)
 
-    def measurements(self, *, since_utc: str | None = None, plan: str | None = None
-                     ) -> list[Row]:
+    def measurements(self, *, since_utc: str | None = None, plan: str | None = None,
+                     station: str | None = None, lot: str | None = None) -> list[Row]:
         where, params = _since_and_plan("m.time_utc", since_utc, plan)
+        for column, value in (("r.station", station), ("r.lot", lot)):
+            if value is not None:
+                where += (" AND " if where else " WHERE ") + f"{column} = ?"
+                params.append(value)
         columns = ", ".join(f"m.{c.strip()}" for c in _MEASUREMENT_COLUMNS.split(","))
         return self._rows(f"SELECT {columns}, r.plan, r.station, r.operator, r.lot, "
                           "r.instrument AS run_instrument FROM measurements m "

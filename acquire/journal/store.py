@@ -172,9 +172,10 @@ class JournalStore(ABC):
         """Rows of one run by sweep index (all columns), optionally of some states."""
 
     @abstractmethod
-    def measurements(self, *, since_utc: str | None = None, plan: str | None = None
-                     ) -> list[Row]:
-        """Every row (all states) with its run's plan and station, oldest first."""
+    def measurements(self, *, since_utc: str | None = None, plan: str | None = None,
+                     station: str | None = None, lot: str | None = None) -> list[Row]:
+        """Every row (all states) with its run's plan, station, operator and lot, oldest
+        first; of one station or lot when given."""
 
     @abstractmethod
     def units_since(self, plan: str, since_utc: str) -> int:

@@ -63,10 +63,16 @@ class Record:
         return self.fields[key]
 
 
-def query_records(journal: JournalStore, *, since_utc: str | None = None, plan: str | None = None
-                  ) -> list[Record]:
-    """Every measurement row (all states), oldest first, as records."""
-    return [record(row) for row in journal.measurements(since_utc=since_utc, plan=plan)]
+def query_records(journal: JournalStore, *, since_utc: str | None = None, plan: str | None = None,
+                  station: str | None = None, lot: str | None = None,
+                  serial: str | None = None) -> list[Record]:
+    """Every measurement row (all states), oldest first, as records; ``serial`` is a
+    shell-style pattern (``PA-00*``), case-sensitive."""
+    from fnmatch import fnmatchcase
+
+    rows = journal.measurements(since_utc=since_utc, plan=plan, station=station, lot=lot)
+    return [record(row) for row in rows
+            if serial is None or fnmatchcase(row["serial"] or "", serial)]
 
 
 def record(row: Any) -> Record:

@@ -44,11 +44,12 @@ def parse_since(text: str, now: datetime | None = None) -> str:
 
 @dataclass
 class Selection:
-    folder: Path
-    journal_path: Path
+    folder: Path | str
+    journal_path: Path | str
     since_utc: str | None
     records: list[Record]
     plans: list[PlanSummary]
+    stations: dict[str, list[PlanSummary]] | None = None  # per station, from a shared store
 
     def lines(self) -> list[str]:
         head = f"journal {self.journal_path}: {len(self.records)} measurement(s)"
@@ -56,12 +57,19 @@ class Selection:
             head += f" since {self.since_utc}"
         if not self.records:
             return [head, "nothing to summarise"]
-        return [head, *summary_lines(self.plans)]
+        lines = [head, *summary_lines(self.plans)]
+        for station, plans in (self.stations or {}).items():
+            lines += ["", f"station {station}:", *summary_lines(plans)]
+        return lines
 
     def to_dict(self) -> dict[str, Any]:
-        return {"format": "sweepd-summary", "version": 1, "journal": str(self.journal_path),
+        data = {"format": "sweepd-summary", "version": 1, "journal": str(self.journal_path),
                 "since_utc": self.since_utc, "measurements": len(self.records),
                 "plans": [p.to_dict() for p in self.plans]}
+        if self.stations is not None:
+            data["stations"] = [{"station": name, "plans": [p.to_dict() for p in plans]}
+                                for name, plans in self.stations.items()]
+        return data
 
     def csv(self) -> str:
         from acquire.station.export import csv_text
@@ -78,8 +86,19 @@ class Selection:
             raise StationError(f"--csv {path}: cannot write ({exc.strerror or exc})") from None
 
 
-def load_selection(folder: Path, *, since_utc: str | None = None, plan: str | None = None,
-                   all_attempts: bool = False) -> Selection:
+def load_selection(folder: Path | str, *, since_utc: str | None = None,
+                   plan: str | None = None, all_attempts: bool = False,
+                   station: str | None = None, lot: str | None = None,
+                   serial: str | None = None) -> Selection:
+    """The summary of an output folder's journal, or of a shared store (a
+    ``postgresql://`` URL: across stations, with one summary per station too)."""
+    from acquire.journal.postgres import is_postgres_url
+
+    if is_postgres_url(folder):
+        return _store_selection(str(folder), since_utc=since_utc, plan=plan,
+                                all_attempts=all_attempts, station=station, lot=lot,
+                                serial=serial)
+    folder = Path(folder)
     if not folder.is_dir():
         raise StationError(f"summary {folder}: no such folder")
     path = folder / JOURNAL_NAME
@@ -87,8 +106,26 @@ def load_selection(folder: Path, *, since_utc: str | None = None, plan: str | No
         raise StationError(f"summary {folder}: no journal ({JOURNAL_NAME}) there; nothing "
                            "was measured into this folder")
     with open_journal(path) as journal:
-        records = query_records(journal, since_utc=since_utc, plan=plan)
+        records = query_records(journal, since_utc=since_utc, plan=plan, station=station,
+                                lot=lot, serial=serial)
         golden = journal.golden_checks(since_utc=since_utc, plan=plan)
     return Selection(folder, path, since_utc, records,
                      summarise(records, golden, all_attempts=all_attempts))
+
+
+def _store_selection(url: str, *, since_utc: str | None, plan: str | None,
+                     all_attempts: bool, station: str | None, lot: str | None,
+                     serial: str | None) -> Selection:
+    with open_journal(url, read_only=True) as journal:
+        records = query_records(journal, since_utc=since_utc, plan=plan, station=station,
+                                lot=lot, serial=serial)
+        golden = journal.golden_checks(since_utc=since_utc, plan=plan)
+        where = journal.where
+    names = sorted({str(r["station"] or "") for r in records})
+    stations = {
+        name or "(none)": summarise([r for r in records if (r["station"] or "") == name],
+                                    all_attempts=all_attempts)
+        for name in names}
+    return Selection(where, where, since_utc, records,
+                     summarise(records, golden, all_attempts=all_attempts), stations)
 
