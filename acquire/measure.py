@@ -332,7 +332,8 @@ def measure_and_save(plan: Plan, out_dir: Path, *, resource: str | None = None,
     stored after; faults are journalled with the run marked failed.
     """
     sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
-    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
+    with journal_in(out_dir, location=plan.output.journal) as journal, \
+            RunOwner(out_dir) as owner:
         settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
         run_id = journal.start_run(kind, plan.name, plan_path=str(plan.source),
                                    resource=resource or plan.instrument.resource,

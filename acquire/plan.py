@@ -60,6 +60,7 @@ class OutputSpec:
     name: str = "{plan}-{serial}-{time}"
     touchstone: TouchstoneSpec = field(default_factory=TouchstoneSpec)
     keep_raw: bool = False
+    journal: str | None = None  # a shared store's postgresql:// URL (else SWEEPD_JOURNAL)
 
 
 @dataclass(frozen=True)
@@ -229,7 +230,7 @@ def _measure(node: Node) -> tuple[str, ...]:
 
 
 def _output(node: Node, plan_name: str) -> OutputSpec:
-    node.mapping(("dir", "name", "touchstone", "keep_raw"), optional=True)
+    node.mapping(("dir", "name", "touchstone", "keep_raw", "journal"), optional=True)
     out_dir = node["dir"].file_path(None) or (node.base_dir or Path()) / "results"
     name = node["name"].text("{plan}-{serial}-{time}")
     _check_template(node["name"], name)
@@ -254,6 +255,7 @@ def _output(node: Node, plan_name: str) -> OutputSpec:
             precision=precision,
         ),
         keep_raw=node["keep_raw"].boolean(False),
+        journal=_journal_url(node["journal"]),
     )
 
 
@@ -362,3 +364,21 @@ def _checks(node: Node, dtf: Node) -> tuple[Any, ...]:
 
         checks = apply_plan_settings(checks, dtf)
     return checks
+
+
+def _journal_url(node: Node) -> str | None:
+    """``output.journal``: a shared store's ``postgresql://`` URL; no password in it (the
+    server's own password file or ``SWEEPD_JOURNAL`` carries that)."""
+    if not node.present:
+        return None
+    from urllib.parse import urlsplit
+
+    from acquire.journal.postgres import is_postgres_url
+
+    url = node.text("")
+    if not is_postgres_url(url):
+        node.fail(f"must be a postgresql://user@host/db URL, got {show(url.split(':')[0])}...")
+    if urlsplit(url).password is not None:
+        node.fail("must not hold a password (use the server's password file or "
+                  "SWEEPD_JOURNAL)")
+    return url

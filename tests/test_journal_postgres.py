@@ -13,6 +13,7 @@ from pathlib import Path
 
 import psycopg
 import pytest
+import yaml
 from test_station_support import install_cal, write_plan
 
 from acquire.errors import JournalError
@@ -166,7 +167,11 @@ def test_eight_stations_measure_into_one_database(pg_url, tmp_path, capsys):
             folder.mkdir()
             install_cal(folder / "out")
             plan = write_plan(folder, sim.tcp_resource, station={"golden": None})
-            env = {**os.environ, "SWEEPD_JOURNAL": pg_url}
+            env = dict(os.environ)
+            if n % 2:  # half the stations name the store in their plan, half by variable
+                _plan_names_store(plan, pg_url)
+            else:
+                env["SWEEPD_JOURNAL"] = pg_url
             procs.append(subprocess.Popen(
                 [sys.executable, "-c", _STATION, str(plan), f"st-{n}", *station_units(n)],
                 env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True))
@@ -182,6 +187,26 @@ def test_eight_stations_measure_into_one_database(pg_url, tmp_path, capsys):
         assert out.count("EXIT") == UNITS, out + err
     _check_store_against_files(pg_url, tmp_path)
     _check_summary_across_stations(pg_url, capsys)
+
+
+def _plan_names_store(plan: Path, url: str) -> None:
+    data = yaml.safe_load(plan.read_text())
+    data["output"]["journal"] = url
+    plan.write_text(yaml.safe_dump(data, sort_keys=False))
+
+
+def test_a_plan_refuses_a_store_url_with_a_password(tmp_path) -> None:
+    from acquire.errors import SweepdError
+    from acquire.plan import load_plan
+
+    plan = write_plan(tmp_path, "TCPIP::127.0.0.1::5025::SOCKET")
+    _plan_names_store(plan, "postgresql://line:s3cret@db/line")
+    with pytest.raises(SweepdError, match=r"output\.journal: must not hold a password") as info:
+        load_plan(plan)
+    assert "s3cret" not in str(info.value) and "\n" not in str(info.value)
+    _plan_names_store(plan, "sqlite:///x")
+    with pytest.raises(SweepdError, match=r"output\.journal: must be a postgresql://"):
+        load_plan(plan)
 
 
 def _check_store_against_files(pg_url: str, tmp_path: Path) -> None:

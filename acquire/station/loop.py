@@ -105,8 +105,8 @@ class Station:
         if station_id is None:
             return 0
         code, state, note = 0, "finished", None
-        with journal_in(self.out_dir) as journal, RunOwner(self.out_dir) as owner, \
-                terminate_as_interrupt():
+        with journal_in(self.out_dir, location=self.plan.output.journal) as journal, \
+                RunOwner(self.out_dir) as owner, terminate_as_interrupt():
             self._recover(journal)
             run_id = journal.start_run(
                 "station", self.plan.name, plan_path=str(self.plan.source), station=station_id,

@@ -79,7 +79,8 @@ def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
         reference = load_reference(golden, plan)
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
+    with journal_in(out_dir, location=plan.output.journal) as journal, \
+            RunOwner(out_dir) as owner:
         settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
         run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
                                    station=station_id or None, resource=resource,
