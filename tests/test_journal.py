@@ -261,3 +261,20 @@ def test_settling_covers_pending_rows_of_runs_that_ended(tmp_path: Path, where: 
             assert settle_dead_runs(j, tmp_path) == (0, [(done.id, "stored")])
             assert j.run_measurements(live)[0]["state"] == "pending"
         assert settle_dead_runs(j, tmp_path) == (1, [(busy.id, "interrupted")])
+
+
+def test_a_retry_after_a_lost_reply_makes_no_duplicate(tmp_path: Path, where: str) -> None:
+    """The capture id and run uid are made before the write: journalling them again (as a
+    writer does when the reply to its first try was lost) returns the same rows."""
+    with opened(where) as j:
+        run = j.start_run("station", "p", run_uid="run-A", station="st-1")
+        assert j.start_run("station", "p", run_uid="run-A", station="st-1") == run
+        first = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1",
+                                   capture_id="cap-1")
+        again = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1",
+                                   capture_id="cap-1")
+        assert again == first and first.capture_id == "cap-1"
+        with pytest.raises(JournalError, match="already journalled"):
+            j.plan_measurement(run, 0, tmp_path / "v.s1p", serial="PA-2", capture_id="cap-2")
+        assert len(j.run_measurements(run)) == 1
+        assert [r["id"] for r in j.open_runs(["station"])] == [run]

@@ -100,23 +100,6 @@ def test_an_unreachable_server_is_one_line_without_the_password(pg_cluster):
     assert "\n" not in text and "s3cret" not in text and "***" in text
 
 
-def test_a_retry_after_a_lost_reply_makes_no_duplicate(pg_url, tmp_path):
-    """The capture id and run uid are made before the write: journalling them again (as a
-    writer does when the reply to its first try was lost) returns the same rows."""
-    with open_journal(pg_url) as j:
-        run = j.start_run("station", "p", run_uid="run-A", station="st-1")
-        assert j.start_run("station", "p", run_uid="run-A", station="st-1") == run
-        first = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1",
-                                   capture_id="cap-1")
-        again = j.plan_measurement(run, 0, tmp_path / "u.s1p", serial="PA-1",
-                                   capture_id="cap-1")
-        assert again == first and first.capture_id == "cap-1"
-        with pytest.raises(JournalError, match="already journalled"):
-            j.plan_measurement(run, 0, tmp_path / "v.s1p", serial="PA-2", capture_id="cap-2")
-        assert len(j.run_measurements(run)) == 1
-        assert [r["id"] for r in j.open_runs(["station"])] == [run]
-
-
 def test_a_station_settles_only_its_own_runs(pg_url, tmp_path):
     """Station B starting after station A died must not settle A's runs: B cannot see A's
     process (another folder, perhaps another PC). A's own next start does."""
