@@ -17,10 +17,10 @@ import numpy as np
 import pytest
 from test_station_support import PLAN
 
+from acquire.capture.records import worst_margin
 from acquire.checks import evaluate_checks
 from acquire.cli import main
 from acquire.journal import StoredFields, journal_in
-from acquire.measure import worst_margin
 from acquire.plan import load_plan
 from acquire.station.errors import StationError
 from acquire.station.figures import key_figures, with_figures

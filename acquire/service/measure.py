@@ -16,7 +16,7 @@ def measure_unit(service: Any, body: MeasureRequest) -> tuple[int, dict[str, Any
     """(HTTP status, measure document) for one request; never raises a ``SweepdError``."""
     from acquire.plan import _RESOURCE
     from acquire.service.statuses import status_for
-    from acquire.station.single import Request, measure_one, result_dict
+    from acquire.station.measure import Request, measure_one, result_dict
 
     plan_name = body.plan
     try:

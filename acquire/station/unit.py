@@ -1,7 +1,7 @@
 """One unit (or the golden unit) measured, judged, filed and journalled.
 
 The same path serves ``sweepd station`` and ``sweepd measure``, and reuses the parts of
-``sweepd run`` (``acquire.measure``): ``capture`` sweeps, corrects and judges; the file
+``sweepd run`` (``acquire.capture``): ``capture`` sweeps, corrects and judges; the file
 name comes from the plan's template with the serial sanitised and made unique; the
 journal gets the measurement as pending before its files are written and marks it
 stored after. Interrupts are held while files and rows are written, so Ctrl-C never
@@ -13,10 +13,13 @@ from __future__ import annotations
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from acquire.capture.calchoice import CalChoice
+from acquire.capture.files import Stored, plan_path, store
+from acquire.capture.judge import Capture, capture
+from acquire.capture.records import journal_stored
+from acquire.capture.session import Session
 from acquire.journal import JournalStore, Planned
-from acquire.measure import CalChoice, Capture, Stored, capture, journal_stored, plan_path, store
 from acquire.plan import Plan
-from acquire.runner import Session
 from acquire.station.config import StationConfig
 from acquire.station.errors import GoldenError
 from acquire.station.figures import KeyFigures, key_figures, with_figures

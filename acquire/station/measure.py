@@ -14,14 +14,17 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from acquire.capture.calchoice import choose_calibration
+from acquire.capture.records import journalled_run
+from acquire.capture.session import Session
 from acquire.journal import journal_in
 from acquire.plan import Plan
-from acquire.station.config import check_station_id, station_config
+from acquire.station.config import StationConfig, check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
+from acquire.station.golden import GoldenSpec, load_reference
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial
 from acquire.station.unit import Line, UnitResult, measure_unit
-from drivers.errors import SweepdError
 
 RESULT_FORMAT = "sweepd-measure"
 RESULT_VERSION = 1
@@ -55,68 +58,68 @@ class Outcome:
         return self.result.exit_code
 
 
-def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
+def measure_one(plan: Plan, request: Request, session: Session | None = None) -> Outcome:
     """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure.
 
     ``session`` is an open ``Session`` for this plan on the request's instrument (the
     measurement service keeps one open between calls); without it one is opened and
     closed here.
     """
-    from acquire.measure import choose_calibration
-    from acquire.runner import Session
-
     config = station_config(plan)
+    serial = _requested_serial(plan, config, request)
+    station_id = request.station_id or config.station_id or ""
+    if station_id:
+        check_station_id(station_id)
+    golden = config.golden
+    reference = load_reference(golden, plan) if golden is not None else None
+    out_dir = request.out_dir or plan.output.dir
+    resource = request.resource or plan.instrument.resource
+    with journal_in(out_dir) as journal, journalled_run(
+            journal, "measure", plan, fault_action="not measured",
+            station=station_id or None, resource=resource) as run, \
+            _opened(session, plan, resource) as session:
+        journal.update_run(run.id, instrument=session.identity_text)
+        cal = choose_calibration(plan, session)
+        line = Line(plan, config, out_dir, journal, run.id, station_id, session, cal,
+                    reference)
+        if golden is not None and not request.golden:
+            _refuse_when_the_line_waits(line, golden, request)
+        result = measure_unit(line, serial, golden=request.golden)
+    return Outcome(result, Path(journal.where), run.id, resource)
+
+
+def _opened(session: Session | None, plan: Plan,
+            resource: str) -> contextlib.AbstractContextManager[Session]:
+    """The caller's open session (left open), or a new one opened and closed here."""
+    return contextlib.nullcontext(session) if session is not None else Session(plan, resource)
+
+
+def _requested_serial(plan: Plan, config: StationConfig, request: Request) -> str:
+    """The serial to measure: the golden unit's, or the request's checked serial."""
     golden = config.golden
     if request.golden:
         if golden is None:
             raise StationError(f"plan {plan.source}: --golden needs station.golden in the plan")
-        serial = golden.serial
-    else:
-        if not request.serial:
-            raise StationError("measure: give --serial SERIAL (or --golden)")
-        serial = check_serial(request.serial, config.serial)
-        if golden is not None and serial == golden.serial:
-            raise StationError(f"serial {serial} is the golden unit's: use --golden")
-    station_id = request.station_id or config.station_id or ""
-    if station_id:
-        check_station_id(station_id)
-    reference = None
-    if golden is not None:
-        from acquire.station.golden import load_reference
+        return golden.serial
+    if not request.serial:
+        raise StationError("measure: give --serial SERIAL (or --golden)")
+    serial = check_serial(request.serial, config.serial)
+    if golden is not None and serial == golden.serial:
+        raise StationError(f"serial {serial} is the golden unit's: use --golden")
+    return serial
 
-        reference = load_reference(golden, plan)
-    out_dir = request.out_dir or plan.output.dir
-    resource = request.resource or plan.instrument.resource
-    with journal_in(out_dir) as journal:
-        run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
-                                   station=station_id or None, resource=resource)
-        try:
-            with contextlib.nullcontext(session) if session is not None \
-                    else Session(plan, resource) as session:
-                journal.update_run(run_id, instrument=session.identity_text)
-                cal = choose_calibration(plan, session)
-                line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
-                            reference)
-                if golden is not None and not request.golden:
-                    created = cal.calset.created if cal.calset is not None else None
-                    state = line_state(journal, plan.name, golden, cal_created=created)
-                    golden_run = golden_command(plan, request)
-                    if state.stopped:
-                        raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
-                                          f"pass a golden re-check: run `{golden_run}`")
-                    if state.due:
-                        raise LineStopped(f"golden check due: {state.due_reason}; run "
-                                          f"`{golden_run}` first")
-                result = measure_unit(line, serial, golden=request.golden)
-        except SweepdError as exc:
-            journal.record_fault(run_id, type(exc).__name__, str(exc), action="not measured")
-            journal.end_run(run_id, "failed", note=str(exc))
-            raise
-        except KeyboardInterrupt:
-            journal.end_run(run_id, "stopped", note="interrupted")
-            raise
-        journal.end_run(run_id)
-        return Outcome(result, Path(journal.where), run_id, resource)
+
+def _refuse_when_the_line_waits(line: Line, golden: GoldenSpec, request: Request) -> None:
+    """``LineStopped`` while the line is stopped or a golden check is due."""
+    cal = line.cal
+    created = cal.calset.created if cal is not None and cal.calset is not None else None
+    state = line_state(line.journal, line.plan.name, golden, cal_created=created)
+    golden_run = golden_command(line.plan, request)
+    if state.stopped:
+        raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
+                          f"pass a golden re-check: run `{golden_run}`")
+    if state.due:
+        raise LineStopped(f"golden check due: {state.due_reason}; run `{golden_run}` first")
 
 
 def golden_command(plan: Plan, request: Request) -> str:

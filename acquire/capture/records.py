@@ -1,0 +1,81 @@
+"""What the journal keeps of a capture, and ``journalled_run``: a run started, its fault
+recorded and its end written, the one way every command journals a run."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass
+
+from acquire.capture.files import Stored
+from acquire.capture.judge import Capture
+from acquire.checks import Verdict
+from acquire.journal import JournalStore, Planned, StoredFields
+from acquire.journal import worst_margin as journal_worst_margin
+from acquire.plan import Plan
+from drivers.errors import SweepdError
+
+
+@dataclass
+class RunRecord:
+    """A journalled run in progress: its id, and how it is to end (``end``)."""
+
+    journal: JournalStore
+    id: int
+    state: str = "finished"
+    note: str | None = None
+
+    def end(self, state: str, note: str | None = None) -> None:
+        """End the run in ``state`` (default ``finished``) when the block exits."""
+        self.state, self.note = state, note
+
+
+@contextmanager
+def journalled_run(journal: JournalStore, kind: str, plan: Plan, *, fault_action: str,
+                   **fields: object) -> Iterator[RunRecord]:
+    """Start a run; on a ``SweepdError`` journal the fault (``fault_action`` says what was
+    done about it) and end the run ``failed``; on Ctrl-C end it ``stopped``; else end it as
+    ``RunRecord.end`` said (``finished``). The error itself goes on to the caller."""
+    run = RunRecord(journal, journal.start_run(kind, plan.name, plan_path=str(plan.source),
+                                               **fields))
+    try:
+        yield run
+    except SweepdError as exc:
+        journal.record_fault(run.id, type(exc).__name__, str(exc), action=fault_action)
+        journal.end_run(run.id, "failed", note=str(exc))
+        raise
+    except KeyboardInterrupt:
+        journal.end_run(run.id, "stopped", note="interrupted")
+        raise
+    journal.end_run(run.id, run.state, run.note)
+
+
+def journal_stored(journal: JournalStore, planned: Planned, cap: Capture,
+                   stored: Stored) -> None:
+    """Mark a planned measurement stored with its verdict, metrics and calibration."""
+    journal.store_measurement(planned, touchstone=stored.touchstone, summary=stored.summary,
+                              raw_touchstone=stored.raw, fields=stored_fields(cap))
+
+
+def stored_fields(cap: Capture, *, note: str | None = None,
+                  with_verdict_json: bool = True) -> StoredFields:
+    """What the journal keeps of a capture: verdict, margin, metrics, calibration."""
+    meta = cap.sweep.meta
+    verdict = cap.verdict
+    return StoredFields(
+        verdict=verdict.verdict if verdict.results else None,
+        exit_code=verdict.exit_code if verdict.results else None,
+        worst_margin=worst_margin(verdict),
+        metrics_json=json.dumps(verdict.metrics),
+        verdict_json=verdict.to_json(indent=None) if with_verdict_json else None,
+        cal_id=meta.get("cal_id") if cap.corrected else None,
+        cal_age_s=meta.get("cal_age_s") if cap.corrected else None,
+        instrument=meta.get("instrument"),
+        note=note,
+    )
+
+
+def worst_margin(verdict: Verdict) -> float | None:
+    """The smallest margin over all mask segments (negative when failing), if any."""
+    return journal_worst_margin(verdict.to_dict())
