@@ -8,6 +8,9 @@ Entries (see ``acquire.checks`` for what each judges)::
       - resonance: {within: [2.43 GHz, 2.47 GHz]}
       - worst_swr: {band: [2.40 GHz, 2.50 GHz], at_most: 1.8}
       - distance: {...}                        # acquire.timedomain.checks
+      - insertion_loss: {band: [10 MHz, 6 GHz], at_most: 2.5 dB}      # two-port limits:
+      - return_loss: {band: [10 MHz, 6 GHz], at_least: 20 dB}         # acquire.twoport_checks
+      - group_delay_flatness: {band: [2.4 GHz, 2.5 GHz], at_most: 0.5 ns, aperture: 5}
 
 Errors name the plan file and key path. A mask file with ``domain: distance`` becomes a
 distance check, so a verdict treats it like any other.
@@ -17,15 +20,23 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from acquire.check_nodes import freq_pair as _freq_pair
 from acquire.checks import BandwidthCheck, Check, MaskCheck, ResonanceCheck, WorstSwrCheck
 from acquire.errors import ConfigError, MaskError
 from acquire.library import find_config
 from acquire.masks import load_mask
 from acquire.timedomain.checks import is_distance_mask, load_distance_mask, parse_distance_check
-from acquire.units import format_frequency
+from acquire.twoport_checks import (
+    REFLECTION,
+    TRANSMISSION,
+    GroupDelayFlatnessCheck,
+    InsertionLossCheck,
+    ReturnLossCheck,
+)
 from acquire.yamlfile import Node, load_yaml, show
 
-CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance")
+CHECK_KINDS = ("mask", "bandwidth", "resonance", "worst_swr", "distance", "insertion_loss",
+               "return_loss", "group_delay_flatness")
 
 
 def parse_checks(node: Node) -> list[Check]:
@@ -95,17 +106,6 @@ def _parse_worst_swr(node: Node) -> Check:
     return WorstSwrCheck(lo, hi, node["at_most"].number(lo=1.0), _reflection(node["parameter"]))
 
 
-def _freq_pair(node: Node) -> tuple[float, float]:
-    items = node.elements(min_len=2)
-    if len(items) != 2:
-        node.fail(f"must be a pair [low, high], got {len(items)} values")
-    lo = items[0].quantity("frequency", lo=0.0)
-    hi = items[1].quantity("frequency", lo=0.0)
-    if hi < lo:
-        node.fail(f"low end {format_frequency(lo)} lies above high end {format_frequency(hi)}")
-    return lo, hi
-
-
 def _reflection(node: Node) -> str:
     text = node.text("S11").strip().upper()
     if len(text) != 3 or text[0] != "S" or not text[1:].isdigit() or text[1] != text[2] \
@@ -114,10 +114,49 @@ def _reflection(node: Node) -> str:
     return text
 
 
+def _parse_insertion_loss(node: Node) -> Check:
+    node.mapping(["band", "at_most", "parameter"], required=["band", "at_most"])
+    lo, hi = _freq_pair(node["band"])
+    at_most = node["at_most"].quantity("decibel")
+    if at_most < 0:
+        node["at_most"].fail("insertion loss is positive dB for a passive device, e.g. 3 dB")
+    return InsertionLossCheck(lo, hi, at_most, node["parameter"].text("S21",
+                                                                      choices=TRANSMISSION))
+
+
+def _parse_return_loss(node: Node) -> Check:
+    node.mapping(["band", "at_least", "parameters"], required=["band", "at_least"])
+    lo, hi = _freq_pair(node["band"])
+    at_least = node["at_least"].quantity("decibel")
+    if at_least <= 0:
+        node["at_least"].fail("return loss is positive dB, e.g. 15 dB")
+    params: tuple[str, ...] = REFLECTION
+    if node["parameters"].present:
+        params = tuple(n.text(choices=REFLECTION) for n in node["parameters"].elements(
+            min_len=1))
+        if len(set(params)) != len(params):
+            node["parameters"].fail(f"lists a parameter twice: {list(params)}")
+    return ReturnLossCheck(lo, hi, at_least, params)
+
+
+def _parse_group_delay_flatness(node: Node) -> Check:
+    node.mapping(["band", "at_most", "parameter", "aperture"], required=["band", "at_most"])
+    lo, hi = _freq_pair(node["band"])
+    at_most = node["at_most"].quantity("time", lo=0.0)
+    aperture = node["aperture"].integer(1, lo=1, hi=1001)
+    if aperture % 2 == 0:
+        node["aperture"].fail(f"must be an odd number of points, got {aperture}")
+    return GroupDelayFlatnessCheck(lo, hi, at_most, node["parameter"].text(
+        "S21", choices=TRANSMISSION), aperture)
+
+
 _PARSERS = {
     "mask": _parse_mask,
     "bandwidth": _parse_bandwidth,
     "resonance": _parse_resonance,
     "worst_swr": _parse_worst_swr,
     "distance": parse_distance_check,
+    "insertion_loss": _parse_insertion_loss,
+    "return_loss": _parse_return_loss,
+    "group_delay_flatness": _parse_group_delay_flatness,
 }

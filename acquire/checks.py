@@ -26,7 +26,8 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass, field
 from typing import Any
 
-from acquire.jsonsafe import json_safe
+from acquire.errors import CheckError
+from acquire.jsonclean import json_safe
 from acquire.masks import EDGE_RTOL, Limit, Mask, MaskResult, Segment, evaluate_mask
 from acquire.metrics import bandwidth, key_metrics, resonance_min_gamma, resonance_reactance
 from acquire.sweep import Sweep
@@ -163,6 +164,16 @@ class BandwidthCheck(Check):
             )
         verdict = _judged(self, margin)
         more = " (at least; band reaches the sweep edge)" if bw.edge_limited else ""
+        return self._result(verdict, bw, band, more, details)
+
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance on the band where |S| ± w is surely / possibly below."""
+        from acquire.uncertainty.guarded import guarded_bandwidth
+
+        return guarded_bandwidth(self, self.evaluate(sweep), sweep, rule, uncertainty)
+
+    def _result(self, verdict: str, bw: Any, band: Any, more: str, details: dict[str, Any]
+                ) -> CheckResult:
         return CheckResult(
             self.kind, self.name, verdict,
             f"{self.name} {verdict}: {format_frequency(bw.width_hz)}{more} "
@@ -281,10 +292,6 @@ def _inside_sweep(check: Check, sweep: Sweep, lo: float, hi: float) -> None:
             check, f"{format_frequency(lo)}..{format_frequency(hi)} is not inside the sweep "
             f"{format_frequency(f[0])}..{format_frequency(f[-1])}",
         )
-
-
-class CheckError(SweepdError):
-    """A check cannot judge this sweep."""
 
 
 def _judged(check: Check, margin: float, *, inside: bool = True) -> str:

@@ -19,17 +19,25 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "calibrate": ("calibrate", "guided calibration: prompt each standard, check, save a cal set"),
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
-    "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
+    "plot": ("plot", "match, impedance and Smith chart with masks and markers; overlays"),
+    "export": ("export", "trace data of a Touchstone file as CSV: frequency plus quantities"),
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
     "measure": ("measure", "measure one unit for MES calls: checks, files, journal (0/1/2)"),
-    "summary": ("summary", "yield and per-metric statistics with Cpk from a journal; CSV"),
+    "summary": ("summary", "yield and per-metric statistics (Ppk, Cpk) from a journal; CSV"),
     "serve": ("serve", "run queued soak jobs in the foreground (for systemd); Ctrl-C stops"),
     "submit": ("submit", "queue a soak job from a plan with schedule: and soak: sections"),
     "status": ("status", "show every soak job: state, sweeps, faults, next sweep, drift"),
     "cancel": ("cancel", "stop a soak job cleanly after the sweep in flight"),
     "report": ("report", "plots and summary of a soak job: drift, Allan deviation, alarms"),
+    "probe": ("probe", "list the instruments pyvisa-py sees, or identify one and its dialect"),
+    "dialect": ("dialect_check", "check a dialect file offline, or command by command on an "
+                "instrument"),
 }
+# Commands that talk to an instrument get --io-log (drivers.iolog); -vv shows the same.
+IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe", "dialect"}
+IO_LOG_HELP = ("append every message sent to and received from the instrument to FILE, with "
+               "monotonic times and byte counts (binary payloads summarised)")
 
 EXIT_OK, EXIT_FAIL, EXIT_ERROR = 0, 1, 2
 
@@ -38,7 +46,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="sweepd",
         description="Unattended, vendor-neutral acquisition of network analyzer sweeps.",
-        epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error.",
+        epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error (also any unexpected "
+               "one), 130 interrupted.",
     )
     parser.add_argument("--version", action=_VersionAction, help="print the version and exit")
     parser.add_argument(
@@ -47,6 +56,8 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module, help_text) in COMMANDS.items():
         command = sub.add_parser(name, help=help_text, description=help_text)
+        if name in IO_COMMANDS:
+            command.add_argument("--io-log", metavar="FILE", help=IO_LOG_HELP)
         _module(module).add_arguments(command)
         command.set_defaults(_module=module)
     return parser
@@ -62,10 +73,12 @@ def main(argv: list[str] | None = None) -> int:
     from drivers.errors import SweepdError
 
     try:
+        if getattr(args, "resource", None) is not None and _check_resource(args):
+            return EXIT_ERROR
+        _start_io_log(args)
         return int(_module(args._module).run(args))
     except SweepdError as exc:
-        print(f"sweepd: error: {exc}", file=sys.stderr)
-        return EXIT_ERROR
+        _error(str(exc))
     except KeyboardInterrupt:
         print("sweepd: interrupted", file=sys.stderr)
         return 130
@@ -73,8 +86,44 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_ERROR
     except OSError as exc:  # disk full, permissions: one line, no traceback
         where = f" ({exc.filename})" if exc.filename else ""
-        print(f"sweepd: error: {exc.strerror or exc}{where}", file=sys.stderr)
-        return EXIT_ERROR
+        _error(f"{exc.strerror or exc}{where}")
+    except Exception as exc:  # anything unforeseen: exit 2, never 1 (1 means "failed")
+        from acquire.errors import internal_error_text
+
+        _error(internal_error_text(exc))
+    finally:
+        if "drivers.iolog" in sys.modules:
+            sys.modules["drivers.iolog"].stop()
+    return EXIT_ERROR
+
+
+def _start_io_log(args: argparse.Namespace) -> None:
+    """``--io-log FILE`` and ``-vv`` (traffic on stderr) share the I/O log hook."""
+    path = getattr(args, "io_log", None)
+    if path is None and args.verbose < 2:
+        return
+    from drivers import iolog
+
+    iolog.start(path)
+
+
+def _error(message: str) -> None:
+    """``sweepd: error: <message>`` on stderr, always one line."""
+    from drivers.yamlnode import one_line
+
+    print(f"sweepd: error: {one_line(message)}", file=sys.stderr)
+
+
+def _check_resource(args: argparse.Namespace) -> bool:
+    """``--resource`` follows the rules plans follow; True when refused (with --json)."""
+    from acquire.commands.jsonout import run_with_json_errors
+    from drivers.resources import parse_resource
+
+    def check() -> int:
+        parse_resource(args.resource, where="--resource")
+        return EXIT_OK
+
+    return run_with_json_errors(args, args.command, check) != EXIT_OK
 
 
 def _module(name: str):
@@ -90,6 +139,21 @@ def _configure_logging(verbosity: int) -> None:
         stream=sys.stderr,
         format="%(asctime)s %(levelname)s %(name)s: %(message)s",
     )
+    _warnings_to_debug_log()
+
+
+def _warnings_to_debug_log() -> None:
+    """Python warnings (numpy's RuntimeWarnings among them) go to the log at debug level,
+    never straight to stderr: a user sees one line per problem, or nothing."""
+    import logging
+    import warnings
+
+    log = logging.getLogger("sweepd.warnings")
+
+    def show(message, category, filename, lineno, file=None, line=None) -> None:
+        log.debug("%s: %s (%s:%s)", category.__name__, message, filename, lineno)
+
+    warnings.showwarning = show
 
 
 class _VersionAction(argparse.Action):

@@ -32,6 +32,10 @@ class CalError(SweepdError):
     """A calibration cannot be made, loaded or applied (stale, mismatched, implausible)."""
 
 
+class CheckError(SweepdError):
+    """A check cannot judge this sweep."""
+
+
 class TouchstoneError(SweepdError):
     """A Touchstone file cannot be read or written; names file and line."""
 
@@ -42,3 +46,14 @@ class StorageError(SweepdError):
 
 class JournalError(SweepdError):
     """The journal database is unreadable, too new, or inconsistent."""
+
+
+def internal_error_text(exc: BaseException) -> str:
+    """One line for an unexpected exception; its traceback goes to the log at debug level."""
+    import logging
+
+    logging.getLogger("sweepd").debug("unexpected error", exc_info=exc)
+    detail = " ".join(str(exc).split())
+    detail = detail if len(detail) <= 160 else detail[:157] + "..."
+    return (f"internal error ({type(exc).__name__}{': ' + detail if detail else ''}); "
+            "run with -vv for the traceback")

@@ -21,17 +21,13 @@ from datetime import datetime, timezone
 from typing import Any
 
 from drivers.errors import SweepdError
+from drivers.resources import resource_key
 
 log = logging.getLogger(__name__)
 
 
 class InstrumentBusy(SweepdError):
     """Another caller holds the instrument past the caller's deadline."""
-
-
-def resource_key(resource: str) -> str:
-    """Resources that name the same instrument compare equal (case, spacing)."""
-    return "".join(resource.split()).upper()
 
 
 @dataclass(frozen=True)

@@ -17,19 +17,17 @@ from typing import Any
 from acquire.errors import ConfigError, PlanError
 from acquire.library import find_config
 from acquire.yamlfile import Node, load_yaml, show
+from drivers.dialect_model import STANDARDS
+from drivers.resources import resource_problem
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 MAX_POINTS = 200_001
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,63}$")
-_RESOURCE = re.compile(
-    r"^(TCPIP\d*::[A-Za-z0-9.\-]+::(\d{1,5}::SOCKET|INSTR|hislip\d+::INSTR|inst\d+::INSTR)"
-    r"|ASRL[^\s:;]+::INSTR)$",
-    re.IGNORECASE,
-)
 ONE_PORT = ("S11",)
 TWO_PORT = ("S11", "S21", "S12", "S22")
 NAME_FIELDS = {"plan", "serial", "time", "verdict", "index", "station"}
 PROMPTS = ("terminal", "command", "switch", "scripted")
+SITE_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.:+-]{0,31}$")
 
 
 @dataclass(frozen=True)
@@ -43,6 +41,7 @@ class InstrumentSpec:
     data_format: str | None = None  # None: the dialect's preferred (binary where allowed)
     byte_order: str | None = None  # None: the dialect's preferred
     baud_rate: int | None = None  # serial resources only
+    max_sweep_time_s: float = 120.0  # an instrument claiming a longer sweep is refused
 
 
 @dataclass(frozen=True)
@@ -58,7 +57,7 @@ class OutputSpec:
     """Where results go and how files are named (``{plan}-{serial}-{time}``)."""
 
     dir: Path
-    name: str = "{plan}-{time}"
+    name: str = "{plan}-{serial}-{time}"
     touchstone: TouchstoneSpec = field(default_factory=TouchstoneSpec)
     keep_raw: bool = False
 
@@ -79,6 +78,7 @@ class CalibrationSpec:
     switch_command: str | None = None
     required: bool = True
     isolation: bool = False  # two-port methods: a step with loads on both ports
+    switch_names: dict[str, str] = field(default_factory=dict)  # ours -> the fixture tool's
 
 
 @dataclass(frozen=True)
@@ -159,15 +159,13 @@ def _decision(node: Node) -> Any:
 def _instrument(node: Node) -> InstrumentSpec:
     node.mapping(
         ("resource", "dialect", "timeout", "connect_timeout", "data_format", "byte_order",
-         "baud_rate"),
+         "baud_rate", "max_sweep_time"),
         required=("resource",),
     )
     resource = node["resource"].text()
-    if not _RESOURCE.match(resource):
-        node["resource"].fail(
-            f"not a supported VISA resource string: {resource!r} (use "
-            "TCPIP::<host>::<port>::SOCKET or ASRL<device>::INSTR)"
-        )
+    problem = resource_problem(resource)
+    if problem is not None:
+        node["resource"].fail(f"not a supported VISA resource string: {resource!r} ({problem})")
     dialect_ref = node["dialect"].text("scpi-generic")
     try:
         dialect = find_config("dialects", dialect_ref, node.base_dir)
@@ -181,6 +179,7 @@ def _instrument(node: Node) -> InstrumentSpec:
         data_format=node["data_format"].text(None, choices=("ascii", "real32", "real64")),
         byte_order=node["byte_order"].text(None, choices=("big", "little")),
         baud_rate=node["baud_rate"].integer(None, lo=50, hi=10_000_000),
+        max_sweep_time_s=node["max_sweep_time"].quantity("time", 120.0, lo=0.001, hi=86_400),
     )
 
 
@@ -232,7 +231,7 @@ def _measure(node: Node) -> tuple[str, ...]:
 def _output(node: Node, plan_name: str) -> OutputSpec:
     node.mapping(("dir", "name", "touchstone", "keep_raw"), optional=True)
     out_dir = node["dir"].file_path(None) or (node.base_dir or Path()) / "results"
-    name = node["name"].text("{plan}-{time}")
+    name = node["name"].text("{plan}-{serial}-{time}")
     _check_template(node["name"], name)
     ts = node["touchstone"]
     ts.mapping(("version", "format", "frequency_unit", "precision"), optional=True)
@@ -294,8 +293,9 @@ def _calibration(node: Node) -> CalibrationSpec | None:
     except ConfigError as exc:
         node["kit"].fail(str(exc))
     switch = node["switch"]
-    switch.mapping(("command",), optional=True)
+    switch.mapping(("command", "names"), optional=True)
     switch_command = switch["command"].text(None)
+    switch_names = _switch_names(switch["names"])
     if switch_command is not None and "{standard}" not in switch_command:
         switch["command"].fail("must contain {standard}, e.g. 'fixturectl connect {standard}'")
     prompt = node["prompt"].text("command" if switch_command else "terminal", choices=PROMPTS)
@@ -316,7 +316,31 @@ def _calibration(node: Node) -> CalibrationSpec | None:
         switch_command=switch_command,
         required=node["required"].boolean(True),
         isolation=_isolation(node["isolation"], METHODS[method]),
+        switch_names=switch_names,
     )
+
+
+def _switch_names(node: Node) -> dict[str, str]:
+    """``calibration.switch.names``: our standard names -> the site fixture tool's."""
+    if not node.present:
+        return {}
+    node.mapping(STANDARDS)
+    names = {}
+    for key, child in node.items():
+        name = child.text()
+        problem = site_name_problem(name)
+        if problem:
+            child.fail(problem)
+        names[key] = name
+    return names
+
+
+def site_name_problem(name: object) -> str | None:
+    """Why ``name`` cannot stand for a fixture position in a switch command, or None."""
+    if isinstance(name, str) and SITE_NAME.match(name):
+        return None
+    return (f"must be 1-32 letters, digits or _ . : + - (starting with a letter or digit), "
+            f"got {name!r}"[:160])
 
 
 def _isolation(node: Node, method: Any) -> bool:

@@ -16,6 +16,7 @@ one lock.
 
 from __future__ import annotations
 
+import logging
 import re
 import threading
 import time
@@ -29,7 +30,7 @@ from drivers.conversation import Conversation
 from drivers.deadline import Deadline
 from drivers.dialect_model import Dialect
 from drivers.error_queue import ErrorQueue
-from drivers.errors import ConnectError, ConnectionLost, ReplyError
+from drivers.errors import ConnectError, ConnectionLost, InstrumentError, ReplyError
 from drivers.format_choice import FormatChoice, check_format, check_order
 from drivers.replies import Identity, parse_identity
 from drivers.settings_io import SettingsIO
@@ -40,7 +41,10 @@ from drivers.transport import SerialSettings, Transport
 
 __all__ = ["Analyzer", "Identity"]
 
+log = logging.getLogger(__name__)
+
 REFUSAL_RETRY_S = 0.05  # pause before trying again when the instrument is still busy
+MAX_SWEEP_TIME_S = 120.0  # default bound on the sweep time an instrument may claim
 
 
 class Analyzer:
@@ -56,8 +60,10 @@ class Analyzer:
         data_format: str | None = None,
         byte_order: str | None = None,
         serial: SerialSettings | Mapping[str, Any] | None = None,
+        max_sweep_time_s: float = MAX_SWEEP_TIME_S,
     ) -> None:
         self.dialect = dialect
+        self.max_sweep_time_s = float(max_sweep_time_s)
         self.transport = Transport(
             resource,
             write_termination=dialect.write_termination,
@@ -80,6 +86,7 @@ class Analyzer:
         self._lock = threading.RLock()
         self._identity: Identity | None = None
         self._applied: Stimulus | None = None
+        self._defined = False  # measurements defined in this session (cleanup on close)
 
     # -- lifetime ------------------------------------------------------------------
     def open(self) -> Analyzer:
@@ -109,7 +116,17 @@ class Analyzer:
                     raise
 
     def close(self) -> None:
+        """Send the dialect's measurement cleanup (when it defined any), then disconnect."""
         with self._lock:
+            if self._defined and self.transport.is_open:
+                try:
+                    self._traces.cleanup_measurements()
+                    left = self._errors.drain()  # also: the cleanup was taken before we go
+                    if left:
+                        log.debug("%s: after the cleanup: %s", self.resource, left)
+                except InstrumentError as exc:  # closing anyway; the link may be gone
+                    log.debug("%s: measurement cleanup failed: %s", self.resource, exc)
+            self._defined = False
             self.transport.close()
             self._traces.sweep_pending = False
 
@@ -159,9 +176,12 @@ class Analyzer:
             raise
         if _REFUSAL.match(reply):  # e.g. '-300,"Device busy"': it serves another client
             raise _Refused(quote(reply.encode("ascii", "replace"), 80))
-        self._identity = parse_identity(reply, self._talk.where(d.identity.text))
+        shape = d.identity_reply
+        self._identity = parse_identity(
+            reply, self._talk.where(d.identity.text), shape.separator, shape.fields
+        )
         for command in d.opening:
-            t.write(command.render())
+            self._talk.write(command.render())
         self._formats.choose()
         self._errors.check("after opening")
 
@@ -174,9 +194,24 @@ class Analyzer:
         entries in the error queue are ``ScpiErrorQueue``.
         """
         with self._lock:
+            self._defined = self.dialect.measurement is not None
+            self._traces.define_measurements()
             self._applied = self._settings.configure(stimulus)
-            self._traces.sweep_time_s = self._settings.sweep_time()
+            self._traces.sweep_time_s = self._bounded_sweep_time()
             return self._applied
+
+    def _bounded_sweep_time(self) -> float:
+        """The instrument's sweep time, refused when above ``max_sweep_time_s``."""
+        seconds = self._settings.sweep_time()
+        if seconds > self.max_sweep_time_s:
+            query = self.dialect.sweep_time_query
+            shown = query.text if query else "sweep time"
+            raise ReplyError(
+                f"instrument {self.resource}: '{shown}' claims a sweep takes {seconds:.6g} s, "
+                f"more than instrument.max_sweep_time ({self.max_sweep_time_s:g} s): refused "
+                "(raise max_sweep_time in the plan if the sweep really is that slow)"
+            )
+        return seconds
 
     def settings_match(self, stimulus: Stimulus) -> bool:
         """True when the instrument still holds ``stimulus`` (e.g. it did not reboot)."""

@@ -16,7 +16,8 @@ from drivers.templates import Template
 SETTING_NAMES: tuple[str, ...] = ("start", "stop", "points", "power", "if_bandwidth", "averaging")
 REQUIRED_SETTINGS: tuple[str, ...] = ("start", "stop", "points", "power", "if_bandwidth")
 STANDARDS: tuple[str, ...] = ("open", "short", "load", "thru", "device")
-WAIT_MODES: tuple[str, ...] = ("wai", "opc")
+WAIT_MODES: tuple[str, ...] = ("wai", "opc", "poll")
+IDENTITY_FIELDS: tuple[str, ...] = ("maker", "model", "serial", "firmware", "skip")
 SWITCH_REPLIES: tuple[str, ...] = ("flag", "token")
 
 
@@ -24,7 +25,8 @@ SWITCH_REPLIES: tuple[str, ...] = ("flag", "token")
 class SettingSpec:
     """How one stimulus setting is sent and read back.
 
-    ``scale`` is SI units per instrument unit (1e6 when the instrument speaks MHz).
+    ``scale`` is SI units per instrument unit (1e6 when the instrument speaks MHz);
+    ``read_scale`` the same for the read-back when the instrument answers in another unit.
     A read-back value matches when ``|read - sent| <= absolute + relative * |sent|`` (SI).
     """
 
@@ -33,6 +35,7 @@ class SettingSpec:
     query: Template
     integer: bool
     scale: float = 1.0
+    read_scale: float = 1.0  # SI units per unit of the read-back (another unit than set)
     absolute: float = 0.0
     relative: float = 0.0
     state_on: str | None = None  # averaging only: token for {state} when averaging > 1
@@ -87,6 +90,71 @@ class SwitchSpec:
 
 
 @dataclass(frozen=True)
+class MeasurementSpec:
+    """Measurements an instrument must define and select before a trace can be read.
+
+    ``tokens[S]`` holds the validated tokens of S-parameter ``S`` (e.g. a measurement
+    number and a name); every template may use them, and ``{trace}`` (``data.traces``).
+    """
+
+    define: tuple[Template, ...]
+    select: tuple[Template, ...]
+    cleanup: tuple[Template, ...]
+    tokens: Mapping[str, Mapping[str, str]]
+
+
+@dataclass(frozen=True)
+class PollSpec:
+    """Completion by polling: ask ``query`` until a status bit is set or a reply says done."""
+
+    query: Template
+    arm: Template | None  # sent once after the trigger (e.g. *OPC to set ESR bit 0 later)
+    done_bit: int | None
+    done_reply: str | None
+    interval_s: float
+    done_when_set: bool = True  # done_bit: done when the bit is set (False: when clear)
+
+
+@dataclass(frozen=True)
+class FrequencyAxis:
+    """Where the frequency axis comes from when not from the settings read back.
+
+    ``list``: ``query`` answers every frequency (ASCII or a binary block of ``encoding``);
+    ``edges``: ``start``, ``stop`` and ``points`` queries give a linear axis;
+    ``trace``: each trace carries its frequencies (a ``freq_`` layout).
+    ``scale`` is Hz per instrument unit.
+    """
+
+    kind: str  # list | edges | trace
+    scale: float
+    query: Template | None = None
+    encoding: str = "ascii"
+    byte_order: str = "big"
+    start: Template | None = None
+    stop: Template | None = None
+    points: Template | None = None
+
+
+@dataclass(frozen=True)
+class Quirks:
+    """Habits seen in the field that the conversation has to allow for."""
+
+    unquote: bool = False  # replies wrapped in "..." or '...'
+    strip_padding: bool = False  # blanks and NUL bytes around replies
+    unit_suffixes: bool = False  # numbers read back as '2.4 GHZ', '-10 DBM'
+    read_request: Template | None = None  # sent after each query before its reply is read
+    delays: tuple[tuple[str, float], ...] = ()  # (command prefix, seconds to wait after it)
+
+
+@dataclass(frozen=True)
+class IdentitySpec:
+    """How the identity reply splits into maker, model, serial and firmware."""
+
+    separator: str = ","
+    fields: tuple[str, ...] = ("maker", "model", "serial", "firmware")
+
+
+@dataclass(frozen=True)
 class Dialect:
     """Everything the analyzer adapter needs to drive one kind of instrument."""
 
@@ -98,7 +166,7 @@ class Dialect:
     identity: Template
     clear: Template | None
     opening: tuple[Template, ...]
-    opc_query: Template
+    opc_query: Template | None  # required by the parser where it is used
     opc_after_setting: bool
     settings: Mapping[str, SettingSpec]
     formats: tuple[DataFormat, ...]
@@ -107,16 +175,20 @@ class Dialect:
     layout: str
     trace_query: Template
     traces: Mapping[str, str]
-    frequency_query: Template | None
-    frequency_scale: float
+    frequency: FrequencyAxis | None
     trigger: Template
-    wait: str  # wai | opc
+    wait: str  # wai | opc | poll
     wai: Template | None
     sweep_time_query: Template | None
     error_query: Template
     error_none_code: int
     error_max_entries: int
     switch: SwitchSpec | None
+    poll: PollSpec | None = None
+    measurement: MeasurementSpec | None = None
+    quirks: Quirks = Quirks()
+    identity_reply: IdentitySpec = IdentitySpec()
+    sweep_time_scale: float = 1.0
 
     @property
     def source(self) -> str:

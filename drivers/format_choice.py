@@ -130,5 +130,5 @@ class FormatChoice:
                 problem = f"'{query.text}' read back {text.strip()!r} after '{command}'"
         entries = self.errors.drain()
         if entries:
-            problem = f"'{command}' raised {format_entries(entries)}"
+            problem = f"'{command}' raised {format_entries(entries, shown=1)}"
         return problem

@@ -13,9 +13,16 @@ Two implementations over a resource opened by pyvisa with the pyvisa-py backend:
   This link receives payloads straight into the caller's buffer (``recv_into``), scans only
   new bytes for the terminator, reports a closed peer at once, and keeps monotonic
   deadlines for reads and writes.
-- ``VisaLink`` for everything else (serial ``ASRL...::INSTR`` through pyserial): reads and
-  writes through the pyvisa-py session, switching the terminator on for line reads and
-  off for exact-length binary reads (a binary payload may hold 0x0A bytes).
+- ``VisaLink`` for everything else (serial ``ASRL...::INSTR`` through pyserial, VXI-11,
+  USB-TMC): reads and writes through the pyvisa-py session, switching the terminator on
+  for line reads and off for exact-length binary reads (a binary payload may hold 0x0A
+  bytes). With ``public=True`` it uses only pyvisa's documented library calls: the
+  fallback for a socket when pyvisa-py's internals are not as tested
+  (``fast_socket_problem``).
+- ``HislipLink`` for HiSLIP: a ``VisaLink`` over pyvisa-py's HiSLIP client. Messages are
+  framed by the protocol (DataEnd ends a reply), so a line read returns at the end of the
+  message; after a fault the transport reconnects rather than draining
+  (``resync_by_reconnect``).
 
 Both raise ``LinkTimeout`` (with the bytes that did arrive) and ``LinkClosed``; the
 transport turns them into messages that name the resource and the command.
@@ -25,12 +32,16 @@ from __future__ import annotations
 
 import errno
 import socket
+import struct
 from typing import Any, Protocol
 
 from drivers.deadline import Deadline
 
 RECV_CHUNK = 65536
 ARM_SLACK_S = 0.01  # a wait may end this much after its deadline
+# pyvisa-py releases whose socket session internals the fast path was tested with
+# (keep in step with the bound in pyproject.toml).
+TESTED_PYVISA_PY = ((0, 8),)
 
 
 class LinkTimeout(Exception):
@@ -61,6 +72,8 @@ class LinkClosed(Exception):
 
 
 class Link(Protocol):
+    resync_by_reconnect: bool
+
     def send(self, data: bytes, deadline: Deadline) -> None: ...
     def read_exact(self, count: int, deadline: Deadline) -> bytes: ...
     def read_into(self, view: memoryview, deadline: Deadline) -> None: ...
@@ -75,6 +88,8 @@ class SocketLink:
     and CPython waits for readiness in C, so the usual path is one wait and one
     ``recv_into`` with no exceptions raised.
     """
+
+    resync_by_reconnect = False
 
     def __init__(self, sock: socket.socket, pending: bytes = b"") -> None:
         self._sock = sock
@@ -248,7 +263,9 @@ class SocketLink:
 class VisaLink:
     """Reads and writes through the pyvisa-py session (serial ports and the rest)."""
 
-    def __init__(self, resource: Any) -> None:
+    resync_by_reconnect = False
+
+    def __init__(self, resource: Any, public: bool = False) -> None:
         from pyvisa import constants
 
         self._c = constants
@@ -256,7 +273,9 @@ class VisaLink:
         self._session = resource.session
         # pyvisa-py's session object returns (data, status) without raising, so the
         # bytes that did arrive before a timeout are kept for the message.
-        self._raw = getattr(self._lib, "sessions", {}).get(self._session)
+        self._raw = None if public else getattr(self._lib, "sessions", {}).get(self._session)
+        self._quiet = (constants.StatusCode.success_max_count_read,
+                       constants.StatusCode.success_termination_character_read)
         self._serial = resource.resource_name.upper().startswith("ASRL")
         self._timeout_ms: int | None = None
         self._mode: tuple[str, int] | None = None
@@ -315,7 +334,10 @@ class VisaLink:
             if self._raw is not None:
                 data, status = self._raw.read(count)
             else:
-                data, status = self._lib.read(self._session, count)
+                # A read that fills ``count`` or stops at the terminator is what we asked
+                # for; pyvisa would warn about it (VI_SUCCESS_MAX_CNT, VI_SUCCESS_TERM_CHAR).
+                with self._lib.ignore_warning(self._session, *self._quiet):
+                    data, status = self._lib.read(self._session, count)
         except errors.VisaIOError as exc:
             if exc.error_code == status_code.error_timeout:
                 raise LinkTimeout(partial) from None
@@ -361,6 +383,57 @@ class VisaLink:
 
     def _set(self, attribute: Any, value: Any) -> None:
         self._lib.set_attribute(self._session, attribute, value)
+
+
+class HislipLink(VisaLink):
+    """HiSLIP through pyvisa-py's client; see the module docstring."""
+
+    resync_by_reconnect = True
+
+    def read_until(self, byte: int, deadline: Deadline, limit: int) -> bytes:
+        out = bytearray()
+        while not out or out[-1] != byte:
+            if len(out) > limit:
+                raise LinkOverflow(bytes(out[:64]))
+            # The client allocates the whole count per call: ask for modest pieces.
+            out += self._read(min(RECV_CHUNK, limit + 1 - len(out)), deadline, bytes(out))
+        return bytes(out)
+
+    def discard_input(self) -> bytes:
+        return b""  # replies are framed; after a fault the transport reconnects
+
+    def _terminator(self, byte: int | None) -> None:
+        return  # DataEnd ends each message; no termination character is involved
+
+    def _read(self, count: int, deadline: Deadline, partial: bytes) -> bytes:
+        try:
+            return super()._read(count, deadline, partial)
+        except (RuntimeError, AssertionError, KeyError, struct.error) as exc:
+            # pyvisa-py's client raises these on a closed channel or a malformed message
+            text = _one_line(exc)
+            if "dropped" in text.lower():
+                raise LinkClosed("the instrument closed the connection") from None
+            raise LinkClosed(f"HiSLIP protocol error: {text}") from None
+
+
+def fast_socket_problem(resource: Any) -> str | None:
+    """Why the raw-socket fast path cannot take over this pyvisa-py session, or None.
+
+    The fast path relies on three internals of pyvisa-py's socket session: the library's
+    ``sessions`` table, the session's ``interface`` (the connected socket) and its
+    ``_pending_buffer`` (bytes read ahead). Any of them missing or changed turns it off.
+    """
+    sessions = getattr(resource.visalib, "sessions", None)
+    if not isinstance(sessions, dict):
+        return "pyvisa-py has no sessions table"
+    session = sessions.get(resource.session)
+    if session is None:
+        return "pyvisa-py's sessions table does not hold the session"
+    if not isinstance(getattr(session, "interface", None), socket.socket):
+        return "pyvisa-py's socket session has no socket in 'interface'"
+    if not isinstance(getattr(session, "_pending_buffer", None), bytearray):
+        return "pyvisa-py's socket session has no '_pending_buffer' bytearray"
+    return None
 
 
 def _os_text(exc: OSError) -> str:

@@ -7,6 +7,7 @@
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 
 from drivers.blocks import quote
@@ -46,6 +47,39 @@ def parse_number(reply: str, where: str, *, integer: bool = False) -> float:
     return value
 
 
+# IEEE Std 488.2 suffix units with their SI multipliers (case-insensitive: "MHZ" is mega-
+# hertz and "MS" milli-second there, as in SCPI-1999 Vol. 1 §7.7.3).
+UNIT_MULTIPLIERS = {
+    "HZ": 1.0, "KHZ": 1e3, "MHZ": 1e6, "GHZ": 1e9, "THZ": 1e12,
+    "S": 1.0, "MS": 1e-3, "US": 1e-6, "NS": 1e-9,
+    "DBM": 1.0, "DB": 1.0,
+}
+_WITH_UNIT = re.compile(r"^\s*([-+0-9.eE]+)\s*([A-Za-z]+)\s*$")
+
+
+def parse_quantity(reply: str, where: str, *, integer: bool = False) -> tuple[float, bool]:
+    """A number with an optional unit suffix (``2.4 GHZ``) as ``(value, in_si_units)``.
+
+    With a known suffix the value is returned in SI units (``True``); a bare number is
+    returned as sent (``False``), for the caller's own unit scale.
+    """
+    match = _WITH_UNIT.match(reply)
+    if match is None:
+        return parse_number(reply, where, integer=integer), False
+    unit = match.group(2).upper()
+    multiplier = UNIT_MULTIPLIERS.get(unit)
+    if multiplier is None:
+        raise ReplyError(
+            f"{where} reply has an unknown unit {match.group(2)[:12]!r}: {_shown(reply)}"
+        )
+    value = parse_number(match.group(1), where) * multiplier
+    if integer:
+        if not float(value).is_integer():
+            raise ReplyError(f"{where} reply is not a whole number: {_shown(reply)}")
+        return int(value), True
+    return value, True
+
+
 def parse_flag(reply: str, where: str) -> bool:
     """A boolean reply: ``1``/``0`` (SCPI answers booleans as numbers), ``ON``/``OFF``."""
     text = reply.strip().upper().lstrip("+")
@@ -56,15 +90,26 @@ def parse_flag(reply: str, where: str) -> bool:
     raise ReplyError(f"{where} reply is not 1/0 or ON/OFF: {_shown(reply)}")
 
 
-def parse_identity(reply: str, where: str) -> Identity:
-    """``maker,model,serial,firmware`` (IEEE Std 488.2 ``*IDN?``: four fields)."""
-    fields = [f.strip() for f in reply.strip().split(",")]
-    if len(fields) != 4 or not fields[0]:
+IDN_FIELDS = ("maker", "model", "serial", "firmware")
+
+
+def parse_identity(
+    reply: str, where: str, separator: str = ",", order: tuple[str, ...] = IDN_FIELDS
+) -> Identity:
+    """``maker,model,serial,firmware`` (IEEE Std 488.2 ``*IDN?``: four fields).
+
+    Other instruments answer another query in another shape: ``order`` names each field
+    of the reply (``skip`` for one to ignore), split at ``separator``.
+    """
+    fields = [f.strip() for f in reply.strip().split(separator)]
+    named = dict(zip(order, fields, strict=False))
+    if len(fields) != len(order) or ("maker" in order and not named["maker"]):
+        shown = ", ".join(order)
         raise ReplyError(
-            f"{where} reply has {len(fields)} fields, expected 4 (maker, model, serial, "
-            f"firmware): {_shown(reply)}"
+            f"{where} reply has {len(fields)} fields, expected {len(order)} ({shown}): "
+            f"{_shown(reply)}"
         )
-    return Identity(*fields)
+    return Identity(*(named.get(name, "") for name in IDN_FIELDS))
 
 
 def parse_error_entry(reply: str, where: str) -> tuple[int, str]:
@@ -92,6 +137,23 @@ def _normal(text: str) -> str:
     return kept.upper().replace(",+", ",").lstrip("+")
 
 
-def format_entries(entries: list[tuple[int, str]] | tuple[tuple[int, str], ...]) -> str:
-    """``-222 "Data out of range"; -113 "Undefined header"``."""
-    return "; ".join(f'{code} "{text}"' for code, text in entries)
+SHOWN_ENTRIES = 5  # entries spelled out in one message; the rest are counted
+SHOWN_TEXT = 80  # characters of each entry's text
+
+
+def format_entries(
+    entries: list[tuple[int, str]] | tuple[tuple[int, str], ...], shown: int = SHOWN_ENTRIES
+) -> str:
+    """``-222 "Data out of range"; -113 "Undefined header"``, bounded in count and length.
+
+    A flooding instrument's queue stays one readable line: the first ``SHOWN_ENTRIES``
+    entries (or ``shown``), each text cut to ``SHOWN_TEXT`` characters, then ``(+N more)``.
+    """
+    parts = []
+    for code, text in entries[:shown]:
+        text = "".join(ch if ch.isprintable() else "?" for ch in text)
+        if len(text) > SHOWN_TEXT:
+            text = text[: SHOWN_TEXT - 3] + "..."
+        parts.append(f'{code} "{text}"')
+    more = len(entries) - len(parts)
+    return "; ".join(parts) + (f" (+{more} more)" if more > 0 else "")

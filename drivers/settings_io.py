@@ -12,7 +12,7 @@ from drivers.conversation import Conversation
 from drivers.dialect_model import SettingSpec
 from drivers.error_queue import ErrorQueue
 from drivers.errors import DialectError, ReplyError, SettingMismatch, StimulusError
-from drivers.replies import parse_flag, parse_number
+from drivers.replies import parse_flag
 from drivers.stimulus import Stimulus
 from drivers.templates import format_number
 
@@ -122,10 +122,7 @@ class SettingsIO:
         return {name: self.read_setting(spec) for name, spec in settings.items()}
 
     def read_setting(self, spec: SettingSpec) -> float:
-        command = spec.query.render()
-        reply = self.talk.query(command)
-        value = parse_number(reply, self.talk.where(command), integer=spec.integer)
-        return value if spec.integer else value * spec.scale
+        return self.talk.number(spec.query.render(), integer=spec.integer, scale=spec.read_scale)
 
     def _check_averaging_state(self, averaging: int) -> None:
         spec = self.talk.dialect.settings.get("averaging")
@@ -156,8 +153,8 @@ class SettingsIO:
 
     def sweep_time(self) -> float:
         """The instrument's own sweep time in seconds (0 when the dialect cannot ask)."""
-        query = self.talk.dialect.sweep_time_query
+        dialect = self.talk.dialect
+        query = dialect.sweep_time_query
         if query is None:
             return 0.0
-        seconds = parse_number(self.talk.query(query.render()), self.talk.where(query.text))
-        return max(0.0, seconds)
+        return max(0.0, self.talk.number(query.render(), scale=dialect.sweep_time_scale))

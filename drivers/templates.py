@@ -14,6 +14,8 @@ import math
 import string
 from dataclasses import dataclass
 
+from drivers.yamlnode import show
+
 _FORMATTER = string.Formatter()
 
 
@@ -36,15 +38,15 @@ class Template:
         try:
             parts = list(_FORMATTER.parse(text))
         except ValueError as exc:
-            raise TemplateProblem(f"unbalanced braces in {text!r} ({exc})") from None
+            raise TemplateProblem(f"unbalanced braces in {show(text)} ({exc})") from None
         for literal, field, spec, conversion in parts:
             if "{" in literal or "}" in literal:
-                raise TemplateProblem(f"literal braces are not allowed in {text!r}")
+                raise TemplateProblem(f"literal braces are not allowed in {show(text)}")
             if field is None:
                 continue
             if spec or conversion:
                 raise TemplateProblem(
-                    f"placeholder {{{field}}} may not carry a format or conversion in {text!r}"
+                    f"placeholder {{{field}}} may not carry a format or conversion in {show(text)}"
                 )
             if field not in allowed:
                 known = ", ".join("{" + a + "}" for a in sorted(allowed))
@@ -61,7 +63,7 @@ class Template:
         """Fill the placeholders; every value must already be a checked string."""
         missing = self.fields - values.keys()
         if missing:
-            raise KeyError(f"template {self.text!r} needs {sorted(missing)}")
+            raise KeyError(f"template {show(self.text)} needs {sorted(missing)}")
         if not self.fields:
             return self.text
         return self.text.format(**{k: v for k, v in values.items() if k in self.fields})
@@ -74,14 +76,14 @@ class Template:
 def check_token(token: object, what: str = "token") -> str:
     """A dialect token (trace name, standard switch address, reply text) or a problem."""
     if not isinstance(token, str) or not token.strip():
-        raise TemplateProblem(f"{what} must be a non-empty string, got {token!r}")
+        raise TemplateProblem(f"{what} must be a non-empty string, got {show(token)}")
     _check_printable(token, what)
     if "{" in token or "}" in token:
-        raise TemplateProblem(f"{what} {token!r} may not contain braces")
+        raise TemplateProblem(f"{what} {show(token)} may not contain braces")
     bare = _outside_quotes(token)
     for char in ";?":
         if char in bare:
-            raise TemplateProblem(f"{what} {token!r} may not contain a bare {char!r}")
+            raise TemplateProblem(f"{what} {show(token)} may not contain a bare {char!r}")
     return token
 
 
@@ -89,21 +91,21 @@ def format_number(value: float | int, integer: bool = False) -> str:
     """A finite number as SCPI ``<NRf>`` text: ``2450000000.0``, ``-10.0``, ``1E-05``."""
     if integer:
         if isinstance(value, float) and not value.is_integer():
-            raise ValueError(f"expected a whole number, got {value!r}")
+            raise ValueError(f"expected a whole number, got {show(value)}")
         return str(int(value))
     number = float(value)
     if not math.isfinite(number):
-        raise ValueError(f"cannot send a non-finite number ({number!r})")
+        raise ValueError(f"cannot send a non-finite number ({show(number)})")
     return repr(number).upper()
 
 
 def _check_printable(text: object, what: str) -> None:
     if not isinstance(text, str) or not text:
-        raise TemplateProblem(f"{what} must be a non-empty string, got {text!r}")
+        raise TemplateProblem(f"{what} must be a non-empty string, got {show(text)}")
     for index, char in enumerate(text):
         if not " " <= char <= "~":
             kind = "a newline" if char in "\r\n" else f"the character {char!r}"
-            raise TemplateProblem(f"{what} {text!r} contains {kind} at position {index}")
+            raise TemplateProblem(f"{what} {show(text)} contains {kind} at position {index}")
 
 
 def _outside_quotes(text: str) -> str:
@@ -119,5 +121,5 @@ def _outside_quotes(text: str) -> str:
         else:
             out.append(char)
     if quote:
-        raise TemplateProblem(f"unterminated quoted string in {text!r}")
+        raise TemplateProblem(f"unterminated quoted string in {show(text)}")
     return "".join(out)

@@ -6,6 +6,7 @@ re/im pairs in the host's byte order), so a sweep costs one buffer per trace.
 
 from __future__ import annotations
 
+import time
 from collections.abc import Callable, Sequence
 from typing import Any
 
@@ -13,9 +14,12 @@ import numpy as np
 
 from drivers.blocks import VALUE_SIZE, check_finite, decode_ascii, decode_binary, surely_finite
 from drivers.conversation import Conversation
-from drivers.errors import BlockError, DialectError, ReplyError
+from drivers.deadline import Deadline
+from drivers.dialect_model import Dialect, FrequencyAxis, PollSpec
+from drivers.errors import BlockError, DialectError, InstrumentTimeout, ReplyError
 from drivers.format_choice import FormatChoice
-from drivers.layouts import VALUES_PER_POINT, to_complex
+from drivers.layouts import FREQ_PREFIX, split_frequency, to_complex, values_per_point
+from drivers.replies import parse_number, same_token
 from drivers.stimulus import S_PARAMETERS, Stimulus
 
 SWEEP_TIME_MARGIN = 2.0  # wait up to twice the reported sweep time on top of the I/O timeout
@@ -32,8 +36,10 @@ class TraceReader:
         self.sweep_time_s = 0.0
         self.sweep_pending = False
         self._scratch = bytearray()
-        self._commands: dict[str, tuple[str, str]] = {}  # checked name -> (chained, query)
+        # checked name -> (select commands, chained trigger + query, query alone)
+        self._commands: dict[str, tuple[tuple[str, ...], str, str]] = {}
         self._grid: tuple[Stimulus, np.ndarray] | None = None
+        self._trace_axis: np.ndarray | None = None  # frequencies sent inside the last trace
 
     def sweep(self, params: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
         """Trigger one sweep, wait for it and read ``params`` (see ``Analyzer.sweep``)."""
@@ -43,12 +49,14 @@ class TraceReader:
         first = 0
         if self.talk.dialect.wait == "wai":
             self.sweep_pending = True
-            self._read_trace(self._command_pair(names[0])[0], data[0])
+            select, chained, _query = self._command_pair(names[0])
+            self._read_trace(select, chained, data[0])
             first = 1
         else:
             self.trigger()
         for index in range(first, len(names)):
-            self._read_trace(self._command_pair(names[index])[1], data[index])
+            select, _chained, query = self._command_pair(names[index])
+            self._read_trace(select, query, data[index])
         return self._frequencies(points), data.T
 
     def trigger(self) -> None:
@@ -58,6 +66,9 @@ class TraceReader:
             assert d.wai is not None
             self.talk.write(f"{d.trigger.render()};{d.wai.render()}")
             self.sweep_pending = True
+        elif d.wait == "poll":
+            self.talk.write(d.trigger.render())
+            wait_by_polling(self.talk, self.sweep_timeout(), self.sweep_time_s)
         else:
             self.talk.write(d.trigger.render())
             self.talk.wait_opc(d.trigger.text, self.sweep_timeout())
@@ -68,7 +79,8 @@ class TraceReader:
         points = self.applied().points
         data = np.empty((len(names), points), dtype=np.complex128)
         for name, row in zip(names, data, strict=True):
-            self._read_trace(self._command_pair(name)[1], row)
+            select, _chained, query = self._command_pair(name)
+            self._read_trace(select, query, row)
         return self._frequencies(points), data.T
 
     def check_params(self, params: Sequence[str]) -> list[str]:
@@ -94,35 +106,62 @@ class TraceReader:
             raise DialectError(f"S-parameters asked for twice: {', '.join(names)}")
         return names
 
-    def _command_pair(self, name: str) -> tuple[str, str]:
-        """(trigger, ``*WAI`` and the query in one message; the query alone) for ``name``."""
+    def _command_pair(self, name: str) -> tuple[tuple[str, ...], str, str]:
+        """The commands that read ``name``: its select commands (sent on their own first),
+        trigger + ``*WAI`` + query in one message, and the query alone."""
         pair = self._commands.get(name)
         if pair is None:
             d = self.talk.dialect
-            query = d.trace_query.render(trace=d.traces[name])
+            tokens = trace_tokens(d, name)
+            query = d.trace_query.render(**tokens)
             chained = f"{d.trigger.render()};{d.wai.render()};{query}" if d.wai else query
-            pair = self._commands[name] = (chained, query)
+            select = d.measurement.select if d.measurement else ()
+            pair = (tuple(t.render(**tokens) for t in select), chained, query)
+            self._commands[name] = pair
         return pair
+
+    def define_measurements(self) -> None:
+        """Send the dialect's define commands once for every trace it lists."""
+        spec = self.talk.dialect.measurement
+        if spec is None:
+            return
+        for name in self.talk.dialect.traces:
+            tokens = trace_tokens(self.talk.dialect, name)
+            for template in spec.define:
+                self.talk.send_setting(template.render(**tokens))
+
+    def cleanup_measurements(self) -> None:
+        """Send the dialect's cleanup commands for every trace (on close)."""
+        spec = self.talk.dialect.measurement
+        if spec is None:
+            return
+        for name in self.talk.dialect.traces:
+            tokens = trace_tokens(self.talk.dialect, name)
+            for template in spec.cleanup:
+                self.talk.write(template.render(**tokens))
 
     def sweep_timeout(self) -> float:
         return self.talk.transport.timeout_s + SWEEP_TIME_MARGIN * self.sweep_time_s
 
-    def _read_trace(self, command: str, row: np.ndarray) -> None:
+    def _read_trace(self, select: tuple[str, ...], command: str, row: np.ndarray) -> None:
         """Send ``command`` and read its trace reply into ``row`` (complex128, n points)."""
+        for line in select:
+            self.talk.write(line)
         timeout = self.sweep_timeout() if self.sweep_pending else None
         self.sweep_pending = False
         fmt = self.formats.format
         if fmt is None:
             raise ReplyError(f"instrument {self.talk.resource}: not opened")
         transport, points = self.talk.transport, row.size
-        count = points * VALUES_PER_POINT
-        what = f"{points} points x {VALUES_PER_POINT} values of {fmt.encoding}"
         layout = self.talk.dialect.layout
+        per_point = values_per_point(layout)
+        count = points * per_point
+        what = f"{points} points x {per_point} values of {fmt.encoding}"
         if fmt.encoding == "ascii":
-            transport.write(command)
-            text = transport.read_line(command, timeout)
+            self.talk.ask(command)
+            text = self.talk.clean(transport.read_line(command, timeout))
             values = self._decode(lambda: decode_ascii(text, count, what), command)
-            to_complex(values, layout, out=row)
+            self._to_row(values, layout, row)
             return
         size = count * VALUE_SIZE[fmt.encoding]
         in_place = self.formats.in_place
@@ -132,7 +171,11 @@ class TraceReader:
             if len(self._scratch) != size:
                 self._scratch = bytearray(size)
             target = memoryview(self._scratch)
-        transport.query_block(command, size, target, timeout, what)
+        if self.talk.quirks.read_request is None:
+            transport.query_block(command, size, target, timeout, what)
+        else:
+            self.talk.ask(command)
+            transport.read_block(command, size, target, timeout, what)
         if in_place:
             flat = row.view(np.float64)
             if not surely_finite(flat):
@@ -142,6 +185,12 @@ class TraceReader:
         values = self._decode(
             lambda: decode_binary(target, fmt.encoding, order, count, what), command
         )
+        self._to_row(values, layout, row)
+
+    def _to_row(self, values: np.ndarray, layout: str, row: np.ndarray) -> None:
+        """Convert into ``row``; keep the frequencies of a ``freq_`` layout for the axis."""
+        if layout.startswith(FREQ_PREFIX):
+            self._trace_axis, values, layout = split_frequency(values, layout)
         to_complex(values, layout, out=row)
 
     def _decode(self, decode: Any, command: str) -> Any:
@@ -151,21 +200,91 @@ class TraceReader:
             raise BlockError(f"instrument {self.talk.resource}: '{command}' {exc}") from None
 
     def _frequencies(self, points: int) -> np.ndarray:
-        dialect = self.talk.dialect
-        query = dialect.frequency_query
+        axis = self.talk.dialect.frequency
         applied = self.applied()
-        if query is None:
+        if axis is None:
             grid = self._grid
             if grid is None or grid[0] is not applied:
                 grid = self._grid = (applied, applied.frequencies())
             return grid[1].copy()
-        command = query.render()
-        text = self.talk.query(command)
-        values = self._decode(lambda: decode_ascii(text, points, f"{points} frequencies"), command)
-        freq = values * dialect.frequency_scale
-        if points > 1 and not np.all(np.diff(freq) > 0):
+        if axis.kind == "edges":
+            return self._axis_from_edges(axis, points)
+        if axis.kind == "trace":
+            assert self._trace_axis is not None  # every trace read sets it
+            return self._increasing(self._trace_axis * axis.scale, "the trace's frequencies")
+        assert axis.query is not None
+        command = axis.query.render()
+        what = f"{points} frequencies"
+        if axis.encoding == "ascii":
+            text = self.talk.query(command)
+            values = self._decode(lambda: decode_ascii(text, points, what), command)
+        else:
+            target = memoryview(bytearray(points * VALUE_SIZE[axis.encoding]))
+            self.talk.ask(command)
+            self.talk.transport.read_block(command, len(target), target, None, what)
+            values = self._decode(
+                lambda: decode_binary(target, axis.encoding, axis.byte_order, points, what),
+                command,
+            )
+        return self._increasing(values * axis.scale, f"'{command}' frequencies")
+
+    def _increasing(self, freq: np.ndarray, what: str) -> np.ndarray:
+        if freq.size > 1 and not np.all(np.diff(freq) > 0):
             raise ReplyError(
-                f"instrument {self.talk.resource}: '{command}' frequencies are not strictly "
-                "increasing"
+                f"instrument {self.talk.resource}: {what} are not strictly increasing"
             )
         return freq
+
+    def _axis_from_edges(self, axis: FrequencyAxis, points: int) -> np.ndarray:
+        assert axis.start and axis.stop and axis.points
+        start = self.talk.number(axis.start.render(), scale=axis.scale)
+        stop = self.talk.number(axis.stop.render(), scale=axis.scale)
+        count = int(self.talk.number(axis.points.render(), integer=True))
+        if count != points or start <= 0 or (points > 1 and not stop > start):
+            raise ReplyError(
+                f"instrument {self.talk.resource}: frequency axis {start:.12g}..{stop:.12g} Hz "
+                f"in {count} points ('{axis.start.text}', '{axis.stop.text}', "
+                f"'{axis.points.text}') does not fit a sweep of {points} points"
+            )
+        return np.linspace(start, stop, points)
+
+
+def trace_tokens(dialect: Dialect, name: str) -> dict[str, str]:
+    """The placeholders for trace ``name``: ``{trace}`` and its measurement tokens."""
+    tokens = {"trace": dialect.traces[name]}
+    if dialect.measurement is not None:
+        tokens.update(dialect.measurement.tokens[name])
+    return tokens
+
+
+def wait_by_polling(talk: Conversation, timeout_s: float, sweep_time_s: float) -> None:
+    """Ask the dialect's poll query until it says done, within ``timeout_s``."""
+    spec = talk.dialect.poll
+    assert spec is not None
+    if spec.arm is not None:
+        talk.write(spec.arm.render())
+    command = spec.query.render()
+    deadline = Deadline(timeout_s)
+    polls = 0
+    while True:
+        reply = talk.query(command)
+        polls += 1
+        if poll_done(spec, reply, talk.where(command)):
+            return
+        if deadline.expired():
+            raise InstrumentTimeout(
+                f"instrument {talk.resource}: '{command}' still not done after {timeout_s:.3g} s "
+                f"({polls} polls; sweep time {sweep_time_s:.3g} s)"
+            )
+        time.sleep(min(spec.interval_s, deadline.remaining() or spec.interval_s))
+
+
+def poll_done(spec: PollSpec, reply: str, where: str) -> bool:
+    """True when ``reply`` to the poll query says the sweep is complete."""
+    if spec.done_reply is not None:
+        return same_token(reply, spec.done_reply)
+    assert spec.done_bit is not None
+    register = parse_number(reply, where, integer=True)
+    if not 0 <= register <= 0xFFFF:
+        raise ReplyError(f"{where} status register {register} is outside 0..65535")
+    return bool((int(register) >> spec.done_bit) & 1) == spec.done_when_set

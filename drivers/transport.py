@@ -1,10 +1,12 @@
 """Message transport to one instrument: pyvisa with the pyvisa-py backend.
 
-Resources are VISA resource strings: raw socket ``TCPIP::host::port::SOCKET`` and serial
-``ASRL<device>::INSTR`` (pyserial). The transport frames messages (terminators, IEEE
-488.2 blocks), keeps connect and I/O deadlines apart (seconds, monotonic clock) and turns
-every pyvisa, pyserial and OS failure into a ``drivers.errors`` exception whose one-line
-message names the resource and the command.
+Resources are VISA resource strings checked by ``drivers.resources``: raw socket
+``TCPIP::host::port::SOCKET``, HiSLIP ``TCPIP::host::hislip0[,port]::INSTR``, VXI-11
+``TCPIP::host[,port]::INSTR``, serial ``ASRL<device>::INSTR`` (pyserial) and USB-TMC.
+The transport frames messages (terminators, IEEE 488.2 blocks), keeps connect and I/O
+deadlines apart (seconds, monotonic clock) and turns every pyvisa, pyserial and OS failure
+into a ``drivers.errors`` exception whose one-line message names the resource and the
+command.
 
 After a timeout or a malformed reply the input may still hold (or later receive) the rest
 of a reply, so the transport resynchronises before the next command (``resync``): it drops
@@ -16,15 +18,15 @@ answer to the next query. Not thread-safe: one owner, one command in flight.
 from __future__ import annotations
 
 import contextlib
+import logging
 import os
-import re
 import socket
-import threading
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass, fields
 from typing import Any
 
+from drivers import iolog
 from drivers.blocks import encode_header, parse_header, quote
 from drivers.deadline import Deadline
 from drivers.errors import (
@@ -35,38 +37,26 @@ from drivers.errors import (
     ReplyError,
 )
 from drivers.links import (
+    HislipLink,
     Link,
     LinkClosed,
     LinkOverflow,
     LinkTimeout,
     SocketLink,
     VisaLink,
+    fast_socket_problem,
 )
+from drivers.resources import parse_resource
+from drivers.visaopen import OpenFailed, describe, open_session, resource_manager
 
-_SOCKET_RESOURCE = re.compile(r"^TCPIP\d*::(?P<host>[^:]+)::(?P<port>\d+)::SOCKET$", re.IGNORECASE)
-_RM: Any = None
-_RM_LOCK = threading.Lock()
+LOG = logging.getLogger("sweepd.transport")
+_WARNED: set[str] = set()
 
 MAX_LINE = 64 * 1024 * 1024  # longest text reply accepted (a 200,001-point ASCII trace is ~8 MB)
 REFUSAL_WAIT_S = 0.05  # how long a refusing instrument gets to say so and hang up
 RESYNC_QUIET_S = 0.1  # input must stay silent this long before the next command after an error
 PARITIES = ("none", "odd", "even", "mark", "space")
 FLOW_CONTROLS = ("none", "xon_xoff", "rts_cts", "dtr_dsr")
-
-
-def resource_manager() -> Any:
-    """The process-wide ``pyvisa.ResourceManager("@py")``, created on first use.
-
-    pyvisa hands every caller the same manager, so other code in the process may close
-    it; a closed one is replaced (its resources were closed with it).
-    """
-    global _RM
-    with _RM_LOCK:
-        if _RM is None or getattr(_RM.visalib, "resource_manager", None) is not _RM:
-            import pyvisa
-
-            _RM = pyvisa.ResourceManager("@py")
-        return _RM
 
 
 @dataclass(frozen=True)
@@ -134,9 +124,9 @@ class Transport:
         timeout_s: float = 5.0,
         connect_timeout_s: float = 5.0,
         serial: SerialSettings | Mapping[str, Any] | None = None,
+        fast_socket: bool = True,
     ) -> None:
-        if not isinstance(resource, str) or not resource.strip():
-            raise ConnectError(f"not a VISA resource string: {resource!r}")
+        info = parse_resource(resource, where="instrument")
         for name, value in (("timeout_s", timeout_s), ("connect_timeout_s", connect_timeout_s)):
             if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
                 raise ConnectError(
@@ -150,7 +140,10 @@ class Transport:
         self.connect_timeout_s = float(connect_timeout_s)
         self.write_termination = write_termination.encode("ascii")
         self.read_termination = read_termination.encode("ascii")
-        self.is_serial = resource.upper().startswith("ASRL")
+        self.kind = info.kind
+        self.host, self.port = info.host, info.port
+        self.is_serial = info.kind == "serial"
+        self.fast_socket = fast_socket
         if isinstance(serial, Mapping):
             serial = SerialSettings.from_mapping(serial, resource)
         elif serial is not None:
@@ -160,6 +153,7 @@ class Transport:
         self._link: Link | None = None
         self._dirty: str | None = None  # None, 'garbled' or 'timeout'
         self._headers: dict[int, bytes] = {}  # expected payload length -> block header
+        self._header = b""  # the last block header read (for the I/O log)
 
     # -- lifetime ------------------------------------------------------------------
     @property
@@ -176,12 +170,9 @@ class Transport:
         else:
             self._resolve_host()
         try:
-            rm = resource_manager()
-            resource = rm.open_resource(self.resource, **kwargs)
-        except Exception as exc:  # pyvisa, pyvisa-py and pyserial raise many kinds here
-            raise ConnectError(
-                f"instrument {self.resource}: cannot open: {_describe(exc)}"
-            ) from None
+            resource = open_session(self.resource, **kwargs)
+        except OpenFailed as exc:
+            raise ConnectError(f"instrument {self.resource}: cannot open: {exc}") from None
         try:
             self._link = self._make_link(resource)
         except BaseException:
@@ -189,44 +180,63 @@ class Transport:
             raise
         self._resource = resource
         self._dirty = None
+        self._io("open")
 
     def close(self) -> None:
         """Close the connection (idempotent, never raises for an already broken link)."""
         resource, self._resource, self._link = self._resource, None, None
         if resource is not None:
             _quiet_close(resource)
+            self._io("close")
+
+    def _io(self, what: str, data: bytes | None = None,
+            block: tuple[bytes, int, bytes] | None = None) -> None:
+        """Record an event in the I/O log, when one is open (``drivers.iolog``)."""
+        sink = iolog.sink()
+        if sink is not None:
+            sink.event(self.resource, what, data, block)
 
     def _resolve_host(self) -> None:
         """Name lookup up front: clearer message, and pyvisa-py 0.8 leaks the socket here."""
-        match = _SOCKET_RESOURCE.match(self.resource)
-        if match is None:
+        if self.host is None:
             return
         try:
-            socket.getaddrinfo(match["host"], int(match["port"]), type=socket.SOCK_STREAM)
+            socket.getaddrinfo(self.host, self.port or 0, type=socket.SOCK_STREAM)
         except (OSError, UnicodeError) as exc:
             reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
             raise ConnectError(
-                f"instrument {self.resource}: cannot open: unknown host {match['host']!r} "
+                f"instrument {self.resource}: cannot open: unknown host {self.host!r} "
                 f"({reason})"
             ) from None
 
     def _make_link(self, resource: Any) -> Link:
         resource.read_termination = None
         resource.write_termination = ""
-        session = getattr(resource.visalib, "sessions", {}).get(resource.session)
-        sock = getattr(session, "interface", None)
-        if isinstance(sock, socket.socket):
-            error = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
-            if error:
-                # pyvisa-py reports a refused connect as success; the socket knows better.
-                raise ConnectError(f"instrument {self.resource}: cannot open: {os.strerror(error)}")
+        if self.kind == "hislip":
+            return HislipLink(resource)
+        if self.kind != "socket":
+            return VisaLink(resource)
+        problem = fast_socket_problem(resource) if self.fast_socket else "turned off"
+        if problem is None:
+            session = resource.visalib.sessions[resource.session]
+            sock = session.interface
+            self._check_connected(sock)
             sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-            pending = getattr(session, "_pending_buffer", None)
-            taken = bytes(pending) if pending else b""
-            if pending:
-                pending.clear()
+            pending = session._pending_buffer
+            taken = bytes(pending)
+            pending.clear()
             return SocketLink(sock, taken)
-        return VisaLink(resource)
+        if self.fast_socket and problem not in _WARNED:
+            _WARNED.add(problem)
+            LOG.warning("fast socket path off (%s); using pyvisa's public read/write "
+                        "path, which is slower", problem)
+        return VisaLink(resource, public=True)
+
+    def _check_connected(self, sock: socket.socket) -> None:
+        error = sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
+        if error:
+            # pyvisa-py reports a refused connect as success; the socket knows better.
+            raise ConnectError(f"instrument {self.resource}: cannot open: {os.strerror(error)}")
 
     def _serial_kwargs(self) -> dict[str, Any]:
         from pyvisa import constants
@@ -261,8 +271,10 @@ class Transport:
     def write(self, command: str) -> None:
         """Send one program message (the write terminator is added)."""
         link = self._ready(command)
+        message = command.encode("ascii") + self.write_termination
+        self._io(">", message)
         try:
-            link.send(command.encode("ascii") + self.write_termination, Deadline(self.timeout_s))
+            link.send(message, Deadline(self.timeout_s))
         except LinkTimeout:
             raise self._send_timeout(command) from None
         except LinkClosed as exc:
@@ -322,8 +334,10 @@ class Transport:
         if header is None:
             header = self._headers[expected] = encode_header(expected)
         message = command.encode("ascii") + self.write_termination
+        self._io(">", message)
         try:
             if link.exchange_block(message, header, into, self.read_termination, deadline):
+                self._io("<", block=(header, expected, self.read_termination))
                 return into
         except LinkTimeout:
             raise self._send_timeout(command) from None
@@ -346,6 +360,7 @@ class Transport:
                 raise ValueError("buffer size differs from the expected payload")
             self._read_payload(prefix, link, target, deadline)
             self._expect_terminator(prefix, link, deadline)
+            self._io("<", block=(self._header, expected, self.read_termination))
             return target
         except BlockError:
             self._dirty = self._dirty or "garbled"
@@ -360,7 +375,10 @@ class Transport:
         """Discard anything already received; returns the start of what was dropped."""
         link = self._require_open("clear input")
         try:
-            return link.discard_input()
+            said = link.discard_input()
+            if said:
+                self._io("drop", said)
+            return said
         except LinkClosed as exc:
             if exc.said:  # e.g. a busy instrument that says so and hangs up
                 self.close()
@@ -379,6 +397,11 @@ class Transport:
         """
         link = self._require_open("resynchronise")
         kind, self._dirty = self._dirty, None
+        self._io(f"resync after a {kind or 'request'}")
+        if link.resync_by_reconnect:  # framed protocol: a fresh session is the clean state
+            self.close()
+            self.open()
+            return
         try:
             link.discard_input()
             if kind == "timeout":
@@ -455,6 +478,7 @@ class Transport:
             self._timed_out(command, deadline, exc)
         except LinkClosed as exc:
             self._lost(command, exc)
+        self._io("<", raw)
         # Accept a lone LF where CR LF is expected (CR before LF is whitespace to 488.2).
         if raw.endswith(term):
             return raw[: -len(term)]
@@ -467,11 +491,13 @@ class Transport:
             head += link.read_exact(1, deadline)
             if head[1:].isdigit() and head[1:] != b"0":
                 head += link.read_exact(head[1] - 0x30, deadline)
+        self._header = head
         try:
             _, length = parse_header(head)
         except BlockError as exc:
             if self.read_termination[-1] not in head:
                 head += self._rest_of_line(link, deadline)
+            self._io("<", head)
             detail = str(exc).split(": starts ")[0]
             raise BlockError(f"{prefix} {detail}: starts {quote(head)}") from None
         return length
@@ -529,6 +555,7 @@ class Transport:
 
     def _timed_out(self, command: str, deadline: Deadline, exc: LinkTimeout) -> Any:
         self._dirty = "timeout"
+        self._io(f"timeout after {deadline.seconds:.3g} s", exc.partial)
         got = (
             f"; {len(exc.partial)} bytes arrived: starts {quote(exc.partial)}"
             if exc.partial
@@ -540,6 +567,7 @@ class Transport:
         ) from None
 
     def _lost(self, command: str, exc: LinkClosed) -> Any:
+        self._io(f"lost ({exc.args[0]})")
         self.close()
         raise ConnectionLost(
             f"instrument {self.resource}: connection lost during '{command}': {exc.args[0]}"
@@ -550,19 +578,9 @@ def _wrong_length(length: int, expected: int, what: str) -> str:
     return f"block holds {length} bytes, expected {expected}" + (f" ({what})" if what else "")
 
 
-def _describe(exc: BaseException) -> str:
-    """One line for an exception from pyvisa, pyvisa-py or pyserial."""
-    description = getattr(exc, "description", None)
-    abbreviation = getattr(exc, "abbreviation", None)
-    if description and abbreviation:
-        return f"{abbreviation}: {description}"
-    text = " ".join(str(exc).split())
-    return text or type(exc).__name__
-
-
 def _quiet_close(resource: Any) -> None:
     with contextlib.suppress(Exception):  # closing a broken link: nothing left to report
         resource.close()
 
 
-__all__ = ["SerialSettings", "Transport", "resource_manager"]
+__all__ = ["SerialSettings", "Transport", "describe", "resource_manager"]

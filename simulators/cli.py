@@ -1,7 +1,8 @@
 """Run the simulator from the command line until SIGINT or SIGTERM.
 
-Prints one line per endpoint as soon as it listens (the VISA resource string), then
-``control 127.0.0.1:PORT``, each flushed, so a parent process can read them.
+Prints one line per endpoint as soon as it listens (the VISA resource string: raw socket,
+then serial, then HiSLIP), then ``control 127.0.0.1:PORT``, each flushed, so a parent
+process can read them.
 """
 
 from __future__ import annotations
@@ -39,15 +40,16 @@ def serve(args: argparse.Namespace, out: Any = None) -> int:
         return write_truth(args, device_params(args.param), out)
     from simulators.server import SimServer
 
+    hislip_port = None if getattr(args, "no_hislip", False) else args.hislip_port
     sim = SimServer(personality=args.personality, tcp_port=None if args.no_tcp else args.port,
-                    serial=args.serial, control_port=args.control_port,
+                    hislip_port=hislip_port, serial=args.serial, control_port=args.control_port,
                     time_scale=args.time_scale, noise=args.noise, seed=args.seed,
                     frozen=args.frozen, kit=args.kit, lot=args.lot, clock_rate=args.clock_rate)
     if args.device != "patch-2g45" or args.param:
         sim.bench.set_device(args.device, **device_params(args.param))
     sim.bench.connect(args.connect)
-    if args.no_tcp and not args.serial:
-        raise SimError("sim: nothing to serve (--no-tcp without --serial)")
+    if args.no_tcp and not args.serial and hislip_port is None:
+        raise SimError("sim: nothing to serve (--no-tcp and --no-hislip without --serial)")
     done = threading.Event()
     previous = {sig: signal.signal(sig, lambda *_: done.set())
                 for sig in (signal.SIGINT, signal.SIGTERM)}

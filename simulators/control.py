@@ -372,8 +372,15 @@ def main(argv: list[str] | None = None, prog: str = "python -m simulators.contro
     except (ControlError, ValueError) as exc:
         print(f"{prog}: error: {str(exc).splitlines()[0]}", file=sys.stderr)
         return 2
-    print(json.dumps(result, indent=2 if op == "state" else None))
+    if result is None:  # an operation with nothing to report: say it was done
+        print(DONE.get(op, f"{op}: done"))
+    else:
+        print(json.dumps(result, indent=2 if op == "state" else None))
     return 0
+
+
+DONE = {"restore": "restore: done; the fixture is back where it was (no disturbance)",
+        "trigger": "trigger: sent"}
 
 
 if __name__ == "__main__":

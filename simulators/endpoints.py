@@ -183,7 +183,7 @@ class Session(ABC):
             self._send(junk + self.terminator)
         elif kind == "truncate":
             cut = max(1, int(len(payload) * float(opts["fraction"])))
-            self._send(payload[:cut])
+            self._send_partial(payload[:cut])
             if opts["then"] == "close":
                 self.drop_link()
 
@@ -196,8 +196,15 @@ class Session(ABC):
             select.select([self._wake_r], [], [], min(remaining, 0.25))
             self._drain_wake()
 
-    def _send(self, payload: bytes) -> None:
-        """Write the reply; a complete new message arriving first interrupts it (−410)."""
+    def _send_partial(self, payload: bytes) -> None:
+        """Send the start of a reply that will never be completed (truncate fault)."""
+        self._send(payload)
+
+    def _send(self, payload: bytes) -> bool:
+        """Write the reply; a complete new message arriving first interrupts it (−410).
+
+        True when every byte went out.
+        """
         view = memoryview(payload)
         fd = self.fileno()
         last_progress = time.monotonic()
@@ -211,17 +218,18 @@ class Session(ABC):
                 last_progress = time.monotonic()
                 continue
             if self._patience() and time.monotonic() - last_progress > self._patience():
-                return  # nobody reads the line: the rest is lost
+                return False  # nobody reads the line: the rest is lost
             readable, _, _ = select.select([fd, self._wake_r], [fd], [], 0.25)
             if fd in readable:
                 if not self._receive():
                     self.closed = True
-                    return
+                    return False
                 if find_message_end(self.inbuf) is not None:
                     self.core.status.push(-410, "new message before the reply was read")
-                    return
+                    return False
             if self._wake_r in readable:
                 self._drain_wake()
+        return not view
 
     def _patience(self) -> float:
         return 0.0
@@ -393,15 +401,19 @@ class TcpEndpoint:
                 conn, _ = self._listener.accept()
             except OSError:
                 continue
-            if self._session_thread is not None and self._session_thread.is_alive():
-                threading.Thread(target=_refuse, args=(conn, BUSY_TEXT + self.terminator),
-                                 name="sim-refuse", daemon=True).start()
-                continue
-            self.session = TcpSession(conn, self.core, self.tree, self.terminator, self.seed)
-            self._session_thread = threading.Thread(target=self.session.serve,
-                                                    name="sim-tcp-session", daemon=True)
-            self._session_thread.start()
+            self._on_connection(conn)
         self._close_listener()
+
+    def _on_connection(self, conn: socket.socket) -> None:
+        """Serve a new client, or refuse it while another one is served."""
+        if self._session_thread is not None and self._session_thread.is_alive():
+            threading.Thread(target=_refuse, args=(conn, BUSY_TEXT + self.terminator),
+                             name="sim-refuse", daemon=True).start()
+            return
+        self.session = TcpSession(conn, self.core, self.tree, self.terminator, self.seed)
+        self._session_thread = threading.Thread(target=self.session.serve,
+                                                name="sim-tcp-session", daemon=True)
+        self._session_thread.start()
 
     def _close_listener(self) -> None:
         if self._listener is not None:

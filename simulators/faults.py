@@ -15,7 +15,8 @@ Kinds and their options (defaults in brackets):
 Each armed fault fires on an event, ``on``: ``data`` (the next reply carrying trace data),
 ``reply`` (the next reply of any query), ``sweep`` (the next sweep start) or ``now`` (at
 once; error and reboot only). Defaults: ``sweep`` for error and reboot, ``data`` for the
-rest. ``count=N`` fires on N events; ``endpoint`` ("tcp"/"serial") restricts where.
+rest. ``count=N`` fires on N events; ``endpoint`` ("tcp"/"serial"/"hislip") restricts
+where.
 ``schedule(every=N, kind=...)`` arms a one-shot fault at every Nth sweep;
 ``schedule(at=[(index, kind), ...])`` at given sweep indices (1 = first sweep after start).
 """
@@ -33,6 +34,7 @@ from simulators.errors import SimError
 KINDS = ("drop", "stall", "garbage", "truncate", "wrong_count", "error", "reboot")
 REPLY_KINDS = ("drop", "stall", "garbage", "truncate")
 EVENTS = ("data", "reply", "sweep", "now")
+ENDPOINTS = ("tcp", "serial", "hislip")
 _OPTIONS: dict[str, dict[str, Any]] = {
     "drop": {},
     "stall": {"seconds": 2.0},
@@ -202,8 +204,9 @@ def make_fault(kind: str, count: int, on: str | None, endpoint: str | None,
         raise SimError(f"fault {kind}: only error and reboot can happen 'now'")
     if kind == "wrong_count" and event != "data":
         raise SimError("fault wrong_count: only on=data")
-    if endpoint not in (None, "tcp", "serial"):
-        raise SimError(f"fault {kind}: endpoint must be tcp or serial, got {endpoint!r}")
+    if endpoint not in (None, *ENDPOINTS):
+        raise SimError(f"fault {kind}: endpoint must be one of {', '.join(ENDPOINTS)}, "
+                       f"got {endpoint!r}")
     try:
         count = int(count)
         for key, default in defaults.items():

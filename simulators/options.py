@@ -13,9 +13,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--port", type=int, default=0, metavar="N",
                         help="TCP port on 127.0.0.1 (0 picks a free one; default 0)")
     parser.add_argument("--no-tcp", action="store_true", help="do not listen on TCP")
+    parser.add_argument("--hislip-port", type=int, default=0, metavar="N",
+                        help="HiSLIP port on 127.0.0.1 (0 picks a free one; default 0)")
+    parser.add_argument("--no-hislip", action="store_true", help="do not serve HiSLIP")
     parser.add_argument("--serial", action="store_true",
                         help="also serve on a pseudo-terminal (ASRL/dev/pts/N::INSTR)")
-    parser.add_argument("--personality", default="generic", choices=("generic", "tabletop"),
+    parser.add_argument("--personality", default="generic",
+                        choices=("generic", "tabletop", "slotted"),
                         help="command set (default generic)")
     parser.add_argument("--control-port", type=int, default=0, metavar="N",
                         help="control channel port on 127.0.0.1 (0 picks a free one)")

@@ -30,7 +30,11 @@ class SimProcess:
 
     @property
     def tcp_resource(self) -> str | None:
-        return next((r for r in self.resources if r.upper().startswith("TCPIP")), None)
+        return next((r for r in self.resources if r.upper().endswith("::SOCKET")), None)
+
+    @property
+    def hislip_resource(self) -> str | None:
+        return next((r for r in self.resources if "::HISLIP" in r.upper()), None)
 
     @property
     def serial_resource(self) -> str | None:

@@ -4,6 +4,7 @@
     with SimServer(personality="generic", serial=True, time_scale=0.0, noise=False) as sim:
         sim.tcp_resource        # "TCPIP::127.0.0.1::<port>::SOCKET"
         sim.serial_resource     # "ASRL/dev/pts/<n>::INSTR" (None without serial=True)
+        sim.hislip_resource     # "TCPIP::127.0.0.1::hislip0,<port>::INSTR" (with hislip_port)
         sim.control_address     # ("127.0.0.1", port)
         sim.bench.connect("open")
         sim.faults.arm("drop")
@@ -18,7 +19,7 @@ from pathlib import Path
 from types import ModuleType
 from typing import Any
 
-from simulators import generic, tabletop
+from simulators import generic, slotted, tabletop
 from simulators.bench import Bench
 from simulators.calkit import DEFAULT_KIT
 from simulators.clock import SimClock
@@ -27,14 +28,16 @@ from simulators.errors import SimError
 from simulators.faults import Fault, Faults
 from simulators.instrument import AnalyzerCore
 
-PERSONALITIES: dict[str, ModuleType] = {"generic": generic, "tabletop": tabletop}
+PERSONALITIES: dict[str, ModuleType] = {"generic": generic, "tabletop": tabletop,
+                                         "slotted": slotted}
 
 
 class SimServer:
     """A running simulated analyzer (see the module docstring)."""
 
     def __init__(self, personality: str = "generic", tcp_port: int | None = 0,
-                 serial: bool = False, control_port: int | None = 0, time_scale: float = 0.0,
+                 serial: bool = False, hislip_port: int | None = None,
+                 control_port: int | None = 0, time_scale: float = 0.0,
                  noise: bool = False, seed: int = 1, frozen: bool = False,
                  kit: str | Path = DEFAULT_KIT, device: str = "patch-2g45",
                  lot: str = "patch-2g45", clock_rate: float = 1.0) -> None:
@@ -46,6 +49,8 @@ class SimServer:
             raise SimError(f"sim: time scale must be >= 0, got {time_scale}")
         if tcp_port is not None and not 0 <= tcp_port <= 65535:
             raise SimError(f"sim: TCP port must be 0..65535, got {tcp_port}")
+        if hislip_port is not None and not 0 <= hislip_port <= 65535:
+            raise SimError(f"sim: HiSLIP port must be 0..65535, got {hislip_port}")
         self.personality = personality
         self.clock = SimClock(clock_rate)
         self.bench = Bench(kit, seed, noise, self.clock, device, lot)
@@ -59,6 +64,8 @@ class SimServer:
         self._tcp_port, self._serial, self._control_port = tcp_port, serial, control_port
         self.tcp: TcpEndpoint | None = None
         self.serial: SerialEndpoint | None = None
+        self._hislip_port = hislip_port
+        self.hislip: Any = None
         self.control: Any = None
         self._started = False
 
@@ -75,6 +82,12 @@ class SimServer:
             if self._serial:
                 self.serial = SerialEndpoint(self.core, self.tree, self.terminator, self._seed)
                 self.serial.start()
+            if self._hislip_port is not None:
+                from simulators.hislip import HislipEndpoint
+
+                self.hislip = HislipEndpoint(self.core, self.tree, self.terminator,
+                                             self._hislip_port, seed=self._seed)
+                self.hislip.start()
             if self._control_port is not None:
                 from simulators.control import ControlServer
 
@@ -88,7 +101,7 @@ class SimServer:
     def stop(self) -> None:
         """Close every endpoint and join the threads (a few hundred ms at most)."""
         self.core.stop()
-        for part in (self.control, self.tcp, self.serial):
+        for part in (self.control, self.tcp, self.serial, self.hislip):
             if part is not None:
                 part.stop()
 
@@ -108,11 +121,15 @@ class SimServer:
         return self.serial.resource if self.serial else None
 
     @property
+    def hislip_resource(self) -> str | None:
+        return self.hislip.resource if self.hislip else None
+
+    @property
     def control_address(self) -> tuple[str, int] | None:
         return self.control.address if self.control else None
 
     def resources(self) -> list[str]:
-        return [r for r in (self.tcp_resource, self.serial_resource) if r]
+        return [r for r in (self.tcp_resource, self.serial_resource, self.hislip_resource) if r]
 
     # -- knobs -------------------------------------------------------------------------
     @property
@@ -148,7 +165,7 @@ class SimServer:
 
     # -- internals -----------------------------------------------------------------------
     def _on_reboot(self, down_s: float) -> None:
-        for endpoint in (self.tcp, self.serial):
+        for endpoint in (self.tcp, self.serial, self.hislip):
             if endpoint is not None:
                 endpoint.on_reboot()
 

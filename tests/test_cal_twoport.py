@@ -276,3 +276,154 @@ def test_old_names_still_solve_with_one_warning(old: str, new: str,
     lines = [r.getMessage() for r in caplog.records]
     assert lines == [f"calibration method '{old}' is now called '{new}'; the old name still "
                      "works but is deprecated"]
+
+
+# -- guided checks of a two-port calibration ---------------------------------------------
+
+
+def _held(freq: np.ndarray, placement: dict[str, tuple[str, str]]) -> dict:
+    """Readings of the simulator's error box: step -> (standard at port 1, at port 2)."""
+    from simulators.errorbox import measure, reference_plane_terms
+
+    terms = reference_plane_terms(freq)
+    held = {}
+    for step, (p1, p2) in placement.items():
+        s = np.zeros((freq.size, 2, 2), complex)
+        s[:, 0, 0] = KIT.reflection(p1, freq)
+        s[:, 1, 1] = KIT.reflection(p2, freq)
+        m = measure(terms, s)
+        held[step] = {"S11": m[:, 0, 0], "S22": m[:, 1, 1]}
+    return held
+
+
+def test_standards_put_on_the_wrong_port_are_called_swapped_ports() -> None:
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+
+    f = np.linspace(10e6, 6e9, 101)
+    steps = build_steps("two-port", KIT, ports=2)
+    judge = Judge(f, KIT, steps)
+    right = _held(f, {"open": ("open", "open"), "short": ("short", "open"),
+                      "load": ("load", "open")})
+    assert judge.readings(right).passed
+    wrong = _held(f, {"open": ("open", "open"), "short": ("open", "short"),
+                      "load": ("open", "load")})  # port 1 left open, standards at port 2
+    (finding,) = judge.readings(wrong).failures
+    assert finding.check == "ports-swapped" and set(finding.steps) == {"open", "short", "load"}
+    assert "they went to port 2" in finding.message
+    # the port-2 steps the same way round
+    held = {**right, **{f"{k}-2": v for k, v in _held(f, {
+        "open": ("open", "open"), "short": ("short", "open"), "load": ("load", "open")}).items()}}
+    (finding,) = judge.readings(held).failures
+    assert finding.check == "ports-swapped" and "they went to port 1" in finding.message
+    # a standard simply measured twice (nothing changes at either port) is not a swap
+    twice = _held(f, {"open": ("open", "open"), "short": ("open", "open")})
+    (finding,) = judge.readings(twice).failures
+    assert finding.check == "same-reading"
+
+
+def test_two_port_thru_is_checked_at_port_two_too() -> None:
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+    from simulators.errorbox import measure, reference_plane_terms
+
+    f = np.linspace(10e6, 6e9, 101)
+    steps = build_steps("two-port", KIT, ports=2)
+    held = _held(f, {n: (n, n) for n in ("open", "short", "load")})
+    held.update({f"{n}-2": v for n, v in _held(f, {n: (n, n) for n in
+                                                   ("open", "short", "load")}).items()})
+    terms = reference_plane_terms(f)
+    thru = np.zeros((f.size, 2, 2), complex)
+    thru[:, 1, 0] = thru[:, 0, 1] = 1.0
+    m = measure(terms, thru)
+    held["thru"] = {f"S{i + 1}{j + 1}": m[:, i, j] for i in range(2) for j in range(2)}
+    assert Judge(f, KIT, steps).readings(held).passed
+    loose = np.array(thru)
+    loose[:, 1, 1] = 0.95  # port 2's end reflects: the thru is not seated there
+    m = measure(terms, loose)
+    held["thru"] = {f"S{i + 1}{j + 1}": m[:, i, j] for i in range(2) for j in range(2)}
+    (finding,) = Judge(f, KIT, steps).readings(held).failures
+    assert finding.check == "thru-match" and "port 2 sees |S22|" in finding.message
+
+
+def test_old_names_in_plans_and_cal_sets_still_load(tmp_path, caplog, monkeypatch) -> None:
+    from acquire.calibration import CalSet
+    from acquire.plan import load_plan
+    from drivers.stimulus import Stimulus
+
+    monkeypatch.setattr(methods_module, "_warned", set())
+    plan = tmp_path / "old.yaml"
+    plan.write_text("plan: old\ninstrument: {resource: 'TCPIP::127.0.0.1::5025::SOCKET', "
+                    "dialect: scpi-generic}\nstimulus: {start: 1 GHz, stop: 2 GHz, points: 11, "
+                    "power: 0 dBm, if_bandwidth: 1 kHz}\nmeasure: two-port\n"
+                    "calibration: {method: enhanced-response, kit: generic-sma-50}\n")
+    with caplog.at_level(logging.WARNING):
+        assert load_plan(plan).calibration.method == "one-path-two-port"
+    (line,) = [r.getMessage() for r in caplog.records]
+    assert line == (f"plan {plan}: calibration.method: calibration method 'enhanced-response' "
+                    "is now called 'one-path-two-port'; the old name still works but is "
+                    "deprecated")
+    f = np.linspace(1e9, 2e9, 11)
+    raw = {"thru.S21": np.full(f.size, 0.5 + 0j)}
+    model = solve("thru-response", f, raw, KIT).model
+    assert model.method == "transmission-normalisation"
+    old = type(model)("thru-response", f, model.reflection, model.transmission)
+    cal = CalSet("old", old, Stimulus(1e9, 2e9, 11, 0.0, 1e3), "x,y,z,1", KIT.name,
+                 KIT.sha256, "plane", raw=raw)
+    path = cal.save(tmp_path)
+    caplog.clear()
+    monkeypatch.setattr(methods_module, "_warned", set())
+    with caplog.at_level(logging.WARNING):
+        back = CalSet.load(path)
+    assert back.method == "thru-response" and back.id == cal.id  # the id covers the name
+    assert method(back.method).name == "transmission-normalisation"
+    (line,) = [r.getMessage() for r in caplog.records]
+    assert line.startswith(f"cal set {path}: calibration method 'thru-response' is now called")
+
+
+def test_port_two_term_findings_name_the_port_two_steps() -> None:
+    """A bad port-2 load (the directivity term blows up) asks to repeat LOAD at port 2,
+    not the port-1 load."""
+    from acquire.calibration import OnePortTerms
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+
+    f = np.linspace(10e6, 6e9, 51)
+    judge = Judge(f, KIT, build_steps("two-port", KIT, ports=2))
+    bad = OnePortTerms(np.full(f.size, 0.8 + 0j), np.full(f.size, 0.05 + 0j),
+                       np.exp(-2j * np.pi * f * 1e-9))
+    (finding,) = judge.terms(bad, port=2).failures
+    assert finding.check == "directivity" and finding.steps == ("load-2",)
+    (finding,) = judge.terms(bad).failures
+    assert finding.steps == ("load",)
+
+
+def test_uncertainty_still_accepts_the_renamed_one_path_method() -> None:
+    """The uncertainty budget needs a full reflection correction; the one-path method keeps
+    qualifying under its new name (and cal sets under its old one)."""
+    from acquire.calibration import CalSet
+    from acquire.uncertainty.capture import sweep_uncertainty
+    from drivers.stimulus import Stimulus
+    from simulators.errorbox import measure, reference_plane_terms
+
+    f = np.linspace(1e9, 2e9, 21)
+    terms = reference_plane_terms(f)
+    raw = {}
+    for name in ("open", "short", "load"):
+        s = np.zeros((f.size, 2, 2), complex)
+        s[:, 0, 0] = KIT.reflection(name, f)
+        raw[f"{name}.S11"] = measure(terms, s)[:, 0, 0]
+    thru = np.zeros((f.size, 2, 2), complex)
+    thru[:, 1, 0] = thru[:, 0, 1] = 1.0
+    m = measure(terms, thru)
+    raw["thru.S11"], raw["thru.S21"] = m[:, 0, 0], m[:, 1, 0]
+    model = solve("one-path-two-port", f, raw, KIT).model
+    stim = Stimulus(1e9, 2e9, 21, 0.0, 1e3)
+    dut = np.zeros((f.size, 2, 2), complex)
+    dut[:, 0, 0] = 0.2
+    sweep = Sweep(f, measure(terms, dut))
+    for name in ("one-path-two-port", "enhanced-response"):
+        renamed = type(model)(name, f, model.reflection, model.transmission)
+        cal = CalSet("p", renamed, stim, "x,y,z,1", KIT.name, KIT.sha256, "plane", raw=raw)
+        result = sweep_uncertainty(cal.correct(sweep), cal, KIT)
+        assert result.unavailable is None, (name, result.unavailable)

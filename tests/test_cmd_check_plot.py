@@ -19,7 +19,7 @@ import pytest
 from acquire.commands import check as check_cmd
 from acquire.commands import plot as plot_cmd
 from acquire.errors import ConfigError
-from acquire.plots import PlotError
+from acquire.plotting import PlotError
 from acquire.sweep import Sweep
 
 
@@ -198,3 +198,13 @@ def test_offline_check_repeats_the_capture_time_verdict(tmp_path, touchstone, ca
     assert seg_now["worst"]["freq_hz"] == pytest.approx(seg_then["worst"]["freq_hz"], rel=1e-12)
     assert seg_now["worst"]["value"] == pytest.approx(seg_then["worst"]["value"], rel=1e-12)
     assert np.allclose(seg_now["failing_ranges_hz"], seg_then["failing_ranges_hz"], rtol=1e-12)
+
+
+def test_check_with_a_plan_without_checks_says_so(tmp_path):
+    plan = tmp_path / "bare.yaml"
+    plan.write_text("plan: bare\ninstrument: {resource: 'TCPIP::127.0.0.1::5025::SOCKET', "
+                    "dialect: scpi-generic}\nstimulus: {start: 2.3 GHz, stop: 2.6 GHz, "
+                    "points: 11, power: -10 dBm, if_bandwidth: 1 kHz}\nmeasure: S11\n")
+    with pytest.raises(ConfigError, match=r"plan .*bare.yaml has no checks") as info:
+        run(check_cmd, [str(tmp_path / "x.s1p"), "--plan", str(plan)])
+    assert "\n" not in str(info.value)

@@ -96,8 +96,9 @@ def test_tabletop_dialect_loads() -> None:
     assert d.opc_after_setting is True
     assert [f.encoding for f in d.formats] == ["ascii"] and d.byte_orders is None
     assert d.layout == "db_deg" and d.wait == "opc"
-    assert d.settings["start"].scale == 1e6 and d.frequency_scale == 1e6
-    assert d.frequency_query is not None and d.frequency_query.text == "MEASure:AXIS?"
+    axis = d.frequency
+    assert d.settings["start"].scale == 1e6 and axis is not None and axis.scale == 1e6
+    assert axis.kind == "list" and axis.query is not None and axis.query.text == "MEASure:AXIS?"
     assert d.switch is not None and d.switch.reply == "token"
 
 
@@ -105,7 +106,8 @@ def test_bare_name_and_path_resolution(tmp_path: Path) -> None:
     assert dialect_path("scpi-generic") == DIALECT_DIR / "scpi-generic.yaml"
     assert load_dialect(DIALECT_DIR / "tabletop-ascii.yaml").name == "tabletop-ascii"
     with pytest.raises(
-        DialectError, match=r"no dialect named 'nope' \(shipped: scpi-generic, tabletop-ascii"
+        DialectError,
+        match=r"no dialect named 'nope' \(shipped: scpi-generic, slotted-blocks, tabletop-ascii",
     ):
         load_dialect("nope")
     with pytest.raises(DialectError, match=r"missing.yaml: file not found"):
@@ -185,13 +187,16 @@ BAD = [
     ("data.traces.S21", "S21\n", "data.traces.S21: trace token 'S21\\n' contains a newline"),
     ("data.traces.S21", "", "data.traces.S21: trace token must be a non-empty string"),
     ("data.traces.S33", "S33", "data.traces: unknown key 'S33'"),
-    ("data.trace_query", ":TRAC:DATA?", "data.trace_query: template must use {trace}"),
+    ("data.trace_query", ":TRAC:DATA?",
+     "data.trace_query: template must use {trace} (or a measurement token) when data.traces "
+     "lists 4 traces"),
     (
         "data.trace_query",
         ":TRAC:DATA? {param}",
         "data.trace_query: template may only use {trace}, found {param}",
     ),
-    ("data.layout", "polar", "data.layout: must be one of re_im, db_deg, lin_deg, got 'polar'"),
+    ("data.layout", "polar", "data.layout: must be one of re_im, db_deg, lin_deg, freq_re_im, "
+     "freq_db_deg, freq_lin_deg, got 'polar'"),
     (
         "data.formats[0].encoding",
         "real16",
@@ -221,7 +226,7 @@ BAD = [
         "big",
         "data.byte_order: give either 'fixed' or the selectable orders",
     ),
-    ("trigger.wait", "poll", "trigger.wait: must be one of wai, opc, got 'poll'"),
+    ("trigger.wait", "poll", "trigger.poll: is required when wait is 'poll'"),
     ("trigger.wai", DELETE, "trigger.wai: is required when wait is 'wai'"),
     ("trigger.command", DELETE, "trigger.command: is required"),
     (
@@ -255,7 +260,7 @@ BAD = [
     ("terminators.write", "", "terminators.write: must be one of"),
     ("dialect", DELETE, "dialect: is required"),
     ("colour", "red", "unknown key 'colour'"),
-    ("settings", "none", "settings: must be a mapping, got 'none'"),
+    ("settings", "none", "settings: must be a mapping of keys, got 'none'"),
 ]
 
 
@@ -278,7 +283,7 @@ def test_not_yaml_and_not_a_mapping(tmp_path: Path) -> None:
     message = load_error(tmp_path, "dialect: [unclosed\n")
     assert "YAML syntax error" in message and "line " in message
     message = load_error(tmp_path, "- a list\n")
-    assert message.endswith("must be a mapping, got ['a list']")
+    assert message.endswith("must be a mapping of keys, got ['a list']")
     (tmp_path / "bin.yaml").write_bytes(b"\xff\xfe")
     with pytest.raises(DialectError, match="not UTF-8 text"):
         load_dialect(tmp_path / "bin.yaml")
@@ -291,7 +296,7 @@ def test_tabletop_variants(tmp_path: Path) -> None:
     doc = mutated(TABLETOP, "data.frequency.query", "MEASure:AXIS")
     assert "data.frequency.query: a query template must contain '?'" in load_error(tmp_path, doc)
     doc = mutated(TABLETOP, "data.frequency.unit_scale", "MHz")
-    assert "data.frequency.unit_scale: must be a finite number, got 'MHz'" in load_error(
+    assert "data.frequency.unit_scale: must be a number, got 'MHz'" in load_error(
         tmp_path, doc
     )
     doc = mutated(TABLETOP, "switch.standards", {})

@@ -20,7 +20,9 @@ def _imports(path: Path) -> set[str]:
     """Every ``drivers.x`` or ``acquire...`` module imported anywhere in ``path``."""
     found: set[str] = set()
     for node in ast.walk(ast.parse(path.read_text())):
-        if isinstance(node, ast.ImportFrom) and node.module:
+        if isinstance(node, ast.ImportFrom) and node.module == "drivers":
+            found.update(f"drivers.{alias.name}" for alias in node.names)
+        elif isinstance(node, ast.ImportFrom) and node.module:
             found.add(node.module)
         elif isinstance(node, ast.Import):
             found.update(alias.name for alias in node.names)

@@ -171,3 +171,71 @@ def test_kits_plans_and_masks_read_text_numbers_the_yaml_way(tmp_path: Path) -> 
         standards: {open: {capacitance: {c0: 1e1}}, short: , load: }
     """))
     assert load_kit(kit).standards["open"].capacitance_f[0] == pytest.approx(10e-15)
+
+
+# -- 10.7: alias bombs and deep nesting ---------------------------------------------
+
+def alias_bomb(levels: int = 9, width: int = 9) -> str:
+    """The classic nested-alias document: ``width ** levels`` strings once expanded."""
+    lines = ['a0: &a0 ["lol", "lol", "lol", "lol", "lol", "lol", "lol", "lol", "lol"]']
+    for k in range(1, levels):
+        refs = ", ".join([f"*a{k - 1}"] * width)
+        lines.append(f"a{k}: &a{k} [{refs}]")
+    return "\n".join(lines) + "\n"
+
+
+BOMB = alias_bomb()
+
+
+def _load_any(kind: str, path: Path):
+    from drivers.dialect import load_dialect
+
+    return {"plan": load_plan, "mask": load_mask, "kit": load_kit,
+            "dialect": load_dialect}[kind](path)
+
+
+@pytest.mark.parametrize("kind", ["plan", "mask", "kit", "dialect"])
+@pytest.mark.parametrize(("text", "message"), [
+    (BOMB, r"aliases expand to more than 10000 extra values"),
+    ("plan: &x [*x]\n", r"an alias refers to the value that contains it|YAML"),
+    ("a: " + "[" * 70 + "]" * 70 + "\n", r"nested too deeply \(at most 64 levels\)"),
+    ("a: " + "[" * 5000 + "]" * 5000 + "\n", r"nested too deeply \(at most 64 levels\)"),
+    ("a: " + "{b: " * 3000 + "1" + "}" * 3000 + "\n", r"nested too deeply \(at most 64 levels\)"),
+    (f"a: {'9' * 5000}\n", r"value out of range"),
+    ("a: 2020-99-99\n", r"value out of range"),
+])
+def test_hostile_yaml_is_one_line_for_every_file_kind(tmp_path: Path, kind: str, text: str,
+                                                      message: str) -> None:
+    from drivers.errors import SweepdError
+
+    path = tmp_path / f"{kind}.yaml"
+    path.write_text(text)
+    with pytest.raises(SweepdError, match=message) as info:
+        _load_any(kind, path)
+    assert "\n" not in str(info.value) and len(str(info.value)) < 400
+
+
+def test_a_small_alias_bomb_under_the_limit_still_loads_and_reports_briefly(
+        tmp_path: Path) -> None:
+    # About 1,700 values once expanded: allowed by the loader; the plan check then names
+    # the value briefly (the old message called repr() on the whole value first).
+    path = tmp_path / "p.yaml"
+    path.write_text(alias_bomb(levels=3) + PLAN.replace("plan: patch-check", "plan: *a2"))
+    with pytest.raises(ConfigError) as info:
+        load_plan(path)
+    message = str(info.value)
+    assert "unknown key 'a0'" in message or "plan: must be a non-empty string" in message
+    assert len(message) < 400
+
+
+def test_the_bomb_from_the_report_fails_fast_in_a_subprocess(tmp_path: Path) -> None:
+    """The 467-byte plan that took 55 s and 3.1 GB: now one line, under a 512 MiB cap."""
+    from hostile_support import run_limited
+
+    path = tmp_path / "bomb.yaml"
+    path.write_text(alias_bomb() + PLAN.replace("plan: patch-check", "plan: *a8"))
+    unit = tmp_path / "u.s1p"
+    unit.write_text("# GHz S RI R 50\n2.4 0 0\n2.5 0 0\n")
+    result = run_limited(["check", str(unit), "--plan", str(path)], memory_mb=512, timeout=30)
+    assert result.returncode == 2, result.stderr
+    assert result.stderr.count("\n") == 1 and "aliases expand" in result.stderr

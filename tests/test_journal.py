@@ -195,3 +195,50 @@ def test_adopted_rows_take_summary_verdict_and_raw_copy_from_their_files(tmp_pat
         assert (row["cal_id"], row["cal_age_s"], row["instrument"]) == ("cal-1", 60.0,
                                                                         "maker,model,1,2")
         assert json.loads(row["metrics_json"]) == {"S11": {"swr_min": 1.3}}
+
+
+@pytest.mark.parametrize("name", ["journal.sqlite", "journal.sqlite-wal"])
+def test_a_journal_that_is_a_symbolic_link_is_refused(tmp_path: Path, name: str) -> None:
+    target = tmp_path / "elsewhere"
+    target.write_bytes(b"")
+    (tmp_path / "out").mkdir()
+    (tmp_path / "out" / name).symlink_to(target)
+    for read_only in (False, True):
+        with pytest.raises(JournalError, match=rf"{name} is a symbolic link") as info:
+            journal_in(tmp_path / "out", read_only=read_only)
+        assert "\n" not in str(info.value)
+    assert target.read_bytes() == b""  # the target was not turned into a database
+
+
+def test_run_refuses_a_journal_link_with_one_line(tmp_path: Path, capsys) -> None:
+    from acquire.cli import main
+
+    plan = tmp_path / "plan.yaml"
+    plan.write_text("plan: p\ninstrument: {resource: 'TCPIP::127.0.0.1::1::SOCKET'}\n"
+                    "stimulus: {start: 1 GHz, stop: 2 GHz, points: 11, power: -10 dBm, "
+                    "if_bandwidth: 1 kHz}\n")
+    (tmp_path / "out").mkdir()
+    (tmp_path / "elsewhere").write_bytes(b"")
+    (tmp_path / "out" / "journal.sqlite").symlink_to(tmp_path / "elsewhere")
+    assert main(["run", str(plan), "--output", str(tmp_path / "out")]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "journal.sqlite is a symbolic link" in err
+    assert (tmp_path / "elsewhere").read_bytes() == b""
+
+
+def test_settling_covers_pending_rows_of_runs_that_ended(tmp_path: Path) -> None:
+    """A run that ended (say failed on a full disk after its files were written) with a
+    row still pending: the next start settles that row too; a live run keeps its own."""
+    from acquire.journal.owner import RunOwner, settle_dead_runs
+
+    with journal_in(tmp_path) as j:
+        ended = j.start_run("run", "p")
+        done = j.plan_measurement(ended, 0, tmp_path / "a.s1p")
+        (tmp_path / "a.s1p").write_text("complete")
+        j.end_run(ended, "failed", note="journal: the disk is full")
+        with RunOwner(tmp_path) as owner:
+            live = j.start_run("measure", "p", **owner.fields())
+            busy = j.plan_measurement(live, 0, tmp_path / "b.s1p")
+            assert settle_dead_runs(j, tmp_path) == (0, [(done.id, "stored")])
+            assert j.run_measurements(live)[0]["state"] == "pending"
+        assert settle_dead_runs(j, tmp_path) == (1, [(busy.id, "interrupted")])

@@ -55,10 +55,11 @@ def test_a_version_1_journal_opens_migrated_and_reads_back(old: Path) -> None:
         assert j.attempts("patch-station", "PA-0007") == 2
         assert j.last_golden("patch-station")["passed"] == 0
         assert [g["passed"] for g in j.golden_checks(plan="patch-station")] == [1, 1, 0]
-        assert j.soak_run("soak-test-001")["id"] == 6
+        assert (j.run(6)["job_id"], j.run(6)["job_uid"]) == ("soak-test-001", None)
+        assert j.soak_run("soak-test-001") is None  # resume never matches a short name
         assert j.state_counts(6) == ({"stored": 3, "measured": 9}, 11)
         assert len(j.alarms(6)) == 1
-        assert j.open_runs(("run", "measure")) == [7]
+        assert [r["id"] for r in j.open_runs(("run", "measure"))] == [7]
         # the killed run's pending row: its file never landed
         assert [s for _, s in j.reconcile(run_id=7)] == ["interrupted"]
     assert _plain(old, "PRAGMA user_version") == [(SCHEMA_VERSION,)]
@@ -78,6 +79,24 @@ def test_summary_and_soak_history_read_a_migrated_journal(old: Path) -> None:
         series = history.series(view, 6)
     assert series.seq.tolist() == list(range(12))
     assert series.done_mask().all()
+
+
+def test_a_job_from_before_job_uids_finds_its_run_through_its_state_file(
+        old: Path, tmp_path: Path) -> None:
+    from acquire.soak import history
+    from acquire.soak.spool import Job
+
+    def job(job_id: str, run_id: int) -> Job:
+        folder = tmp_path / job_id
+        folder.mkdir()
+        legacy = Job(job_id, folder, "soak-test", tmp_path / "p.yaml", "", old, "r", "t", "u")
+        legacy.write_state(state="running", run_id=run_id)
+        return legacy
+
+    with journal_in(old) as j:
+        assert history.find_run(j, job("soak-test-001", 6))["id"] == 6
+        assert history.find_run(j, job("soak-test-002", 6)) is None  # not its run
+        assert history.find_run(j, job("patch-station-001", 1)) is None  # not a soak
 
 
 def test_version_1_rows_settled_as_missed_after_a_crash_become_interrupted(old: Path) -> None:

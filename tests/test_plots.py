@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 
 from acquire.check_parse import mask_check
-from acquire.plots import PlotError, plot_file, render
+from acquire.plotting import PlotError, plot_file, render
 from acquire.sweep import Sweep
 
 
@@ -43,7 +43,7 @@ def texts(ax):
 
 
 def test_import_does_not_load_matplotlib():
-    code = "import sys, acquire.plots; assert 'matplotlib' not in sys.modules"
+    code = "import sys, acquire.plotting; assert 'matplotlib' not in sys.modules"
     subprocess.run([sys.executable, "-c", code], check=True)
 
 
@@ -98,15 +98,54 @@ def test_return_loss_mask_drawn_on_every_match_scale():
 
 def test_two_port_page_has_a_panel_per_masked_quantity():
     fig = render(cable_sweep(), masks=[mask_check("cable-6g").mask])
-    s11, s21, _, _ = fig.axes
-    assert s11.get_ylabel() == "S11 (dB)" and s21.get_ylabel() == "|S21| (dB)"
+    s11, s21, _ = fig.axes  # match, transmission, Smith: no R/X panel for a cable
+    assert s11.get_ylabel() == "reflection (dB)" and s21.get_ylabel() == "transmission (dB)"
     assert "FAIL  'insertion'" in s21.get_title(loc="left")
     assert "PASS  'match to 3 GHz'" in s11.get_title(loc="left")
 
 
-def test_two_port_without_mask_still_shows_s21():
+def test_two_port_shows_all_four_parameters_and_no_impedance_for_a_thru():
     fig = render(cable_sweep())
-    assert [ax.get_ylabel() for ax in fig.axes[:3]] == ["SWR", "|S21| (dB)", "impedance (ohm)"]
+    match, trans, smith = fig.axes
+    assert [ax.get_ylabel() for ax in (match, trans)] == ["SWR", "transmission (dB)"]
+    assert match.get_legend_handles_labels()[1] == ["S11 SWR", "S22 SWR"]
+    assert trans.get_legend_handles_labels()[1] == ["|S21| (dB)", "|S12| (dB)"]
+    assert smith.get_title() == "S11 and S22 Smith chart (normalised to 50 ohm)"
+    long = [ln for ln in smith.get_lines() if len(ln.get_xdata()) == 401]
+    assert len(long) == 2 and long[0].get_linestyle() != long[1].get_linestyle()
+
+
+def test_two_port_that_does_not_transmit_keeps_its_impedance_panel():
+    f = np.linspace(2.3e9, 2.6e9, 301)
+    s = np.zeros((f.size, 2, 2), complex)
+    s[:, 0, 0], s[:, 1, 1] = antenna(f), 0.3
+    s[:, 1, 0] = s[:, 0, 1] = 10 ** (-45 / 20)  # ports isolated: 45 dB
+    labels = [ax.get_ylabel() for ax in render(Sweep(f, s)).axes]
+    assert labels == ["SWR", "transmission (dB)", "impedance (ohm)", ""]
+
+
+def test_q_is_reported_for_a_resonator_not_for_a_thru():
+    from acquire.metrics.summary import key_metrics
+
+    f = np.linspace(2.3e9, 2.6e9, 301)
+    one = key_metrics(Sweep(f, antenna(f)))["S11"]
+    assert one["q_unloaded"] is not None
+    s = np.zeros((f.size, 2, 2), complex)
+    s[:, 0, 0] = s[:, 1, 1] = 0.2 * antenna(f)  # a small dip in the match of a thru
+    s[:, 1, 0] = s[:, 0, 1] = 0.98
+    two = key_metrics(Sweep(f, s))["S11"]
+    assert two["q_unloaded"] is None and two["q_loaded"] is None
+
+
+def test_long_traces_stay_thin_lines_on_the_smith_chart(tmp_path):
+    f = np.linspace(1e9, 3e9, 10001)
+    rng = np.random.default_rng(7)
+    g = 0.3 * np.exp(-2j * np.pi * f * 4e-9) + 0.01 * (rng.standard_normal(f.size)
+                                                        + 1j * rng.standard_normal(f.size))
+    smith = render(Sweep(f, g)).axes[-1]
+    (trace,) = [ln for ln in smith.get_lines() if len(ln.get_xdata()) == f.size]
+    assert trace.get_linewidth() <= 0.7 and trace.get_marker() == "None"
+    plot_file(Sweep(f, g), tmp_path / "long.png")
 
 
 def test_smith_grid_circles_follow_the_chart_geometry():
@@ -158,10 +197,20 @@ def test_non_finite_data_still_draws_without_markers():
 
 
 def test_a_flat_match_is_marked_as_a_minimum_not_a_resonance():
-    sweep = cable_sweep()  # |S11| constant: no dip crosses SWR 2
+    f = np.linspace(10e6, 6e9, 401)
+    sweep = Sweep(f, 0.05 * np.exp(1j * f / 3e8))  # |S11| constant: no dip crosses SWR 2
     smith = render(sweep).axes[-1]
     assert any("minimum |S11|" in t for t in texts(smith))
     assert not any("resonance" in t for t in texts(smith))
+
+
+def test_a_thru_is_marked_at_its_worst_match_not_a_resonance():
+    sweep = cable_sweep()
+    bump = np.where(np.arange(401) == 200, 2.0, 1.0)[:, None, None]  # worst S11 at f[200]
+    smith = render(sweep.with_data(sweep.s * bump)).axes[-1]
+    table = next(t for t in texts(smith) if "worst match" in t)
+    assert table.startswith("W worst match |S11|") and "resonance" not in table
+    assert "3.005 GHz" in table  # f[200] = 10 MHz + 200 * 14.975 MHz
 
 
 def test_phase_panel_breaks_the_line_at_each_wrap(tmp_path):
@@ -169,9 +218,32 @@ def test_phase_panel_breaks_the_line_at_each_wrap(tmp_path):
         "parameter: S21\nquantity: phase\nsegments: [{from: 1 GHz, to: 2 GHz, upper: 180 deg}]\n")
     from acquire.masks import load_mask
 
-    ax = render(cable_sweep(), masks=[load_mask(tmp_path / "ph.yaml")]).axes[1]
+    ax = render(cable_sweep(), masks=[load_mask(tmp_path / "ph.yaml")]).axes[2]
     line = next(ln for ln in ax.get_lines() if ln.get_label() == "S21 phase (deg)")
     y = np.asarray(line.get_ydata(), float)
     assert np.isnan(y).sum() >= 10  # 3 ns over 6 GHz: 18 turns
     finite = y[np.isfinite(y)]
     assert np.all(np.abs(np.diff(y)[np.isfinite(np.diff(y))]) < 180) and finite.size > 300
+
+
+def test_dollar_signs_in_user_text_stay_literal(tmp_path):
+    # Issue 10.11: a '$' in a title, file name or mask name was read as math markup;
+    # an odd formula crashed the drawing. Every text is drawn as written.
+    (tmp_path / "m.yaml").write_text(
+        "name: cost $\\frac{1\nparameter: S11\nquantity: swr\n"
+        "segments: [{from: 2.4 GHz, to: 2.5 GHz, upper: 2}]\n")
+    from acquire.masks import load_mask
+
+    title = r"unit $x^{ 7 and $\sqrt{$ price"
+    out = plot_file(Sweep(F, antenna(F)), tmp_path / "p.svg", title=title,
+                    masks=[load_mask(tmp_path / "m.yaml")])
+    svg = out.read_text()
+    assert "unit $x^{ 7 and $\\sqrt{$ price" in svg  # SVG text stays text, as written
+    assert "limit: cost $\\frac{1" in svg
+    plot_file(Sweep(F, antenna(F)), tmp_path / "p.png", title=title)  # PNG too
+
+
+def test_svg_text_is_text_not_outlines(tmp_path):
+    svg = plot_file(Sweep(F, antenna(F)), tmp_path / "p.svg", title="patch P-9").read_text()
+    assert "<text" in svg and "patch P-9" in svg
+    assert "Smith chart (normalised to 50 ohm)" in svg

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import os
+import re
 import signal
 import socket
 import subprocess
@@ -138,9 +139,11 @@ def test_subprocess_prints_resources_and_exits_on_signal(entry):
     try:
         tcp = proc.stdout.readline().strip()
         asrl = proc.stdout.readline().strip()
+        hislip = proc.stdout.readline().strip()
         control = proc.stdout.readline().strip()
         assert tcp.startswith("TCPIP::127.0.0.1::") and tcp.endswith("::SOCKET")
         assert asrl.startswith("ASRL/dev/pts/") and asrl.endswith("::INSTR")
+        assert re.fullmatch(r"TCPIP::127\.0\.0\.1::hislip0,\d+::INSTR", hislip)
         assert control.startswith("control 127.0.0.1:")
         with RawClient(tcp, terminator=b"\r\n") as c:
             assert c.query("*IDN?").startswith("sweepd-sim,tabletop")

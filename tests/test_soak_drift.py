@@ -169,3 +169,4 @@ def test_reference_on_another_grid_is_resampled_and_must_cover_the_sweep() -> No
     narrow = Sweep(FREQ[100:-100], DEVICE.s(FREQ[100:-100]), (50.0,))
     with pytest.raises(PlanError, match=r"soak reference file: covers .* the sweep needs"):
         make_reference(narrow, "S11", None, "file", freq_hz=FREQ)
+

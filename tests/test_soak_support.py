@@ -51,7 +51,7 @@ def journal_rows(job: Job) -> tuple[list[sqlite3.Row], list[sqlite3.Row], list[s
     db = sqlite3.connect(job.output_dir / "journal.sqlite")
     db.row_factory = sqlite3.Row
     try:
-        runs = db.execute("SELECT * FROM runs WHERE job_id = ?", (job.id,)).fetchall()
+        runs = db.execute("SELECT * FROM runs WHERE job_uid = ?", (job.uid,)).fetchall()
         assert len(runs) == 1, f"one run per job, found {len(runs)}"
         rows = db.execute("SELECT * FROM measurements WHERE run_id = ? ORDER BY seq",
                           (runs[0]["id"],)).fetchall()
@@ -62,13 +62,30 @@ def journal_rows(job: Job) -> tuple[list[sqlite3.Row], list[sqlite3.Row], list[s
     return runs, rows, faults
 
 
+def holds(job: Job) -> list[sqlite3.Row]:
+    """The job's holds for disk space (each one row for a span of sweeps not taken)."""
+    db = sqlite3.connect(job.output_dir / "journal.sqlite")
+    db.row_factory = sqlite3.Row
+    try:
+        return db.execute("SELECT h.* FROM holds h JOIN runs r ON r.id = h.run_id "
+                          "WHERE r.job_uid = ? ORDER BY h.id", (job.uid,)).fetchall()
+    finally:
+        db.close()
+
+
 def check_invariants(job: Job, planned: int) -> Counter:
-    """Every index 0..planned-1 once, in a final state; files and journal agree; nothing
-    half-written; every taken sweep has its drift record. Returns the states counted."""
+    """Every index 0..planned-1 once, in a final state or in a closed hold; files and
+    journal agree; nothing half-written; every taken sweep has its drift record. Returns
+    the states counted (sweeps of holds as 'held')."""
     _, rows, _ = journal_rows(job)
-    assert [r["seq"] for r in rows] == list(range(planned)), "indices: gap or extra"
+    spans = [range(h["first_seq"], h["last_seq"] + 1) for h in holds(job)]
+    held = [seq for span in spans for seq in span]
+    assert sorted([r["seq"] for r in rows] + held) == list(range(planned)), \
+        "indices: gap or extra"
     states = Counter(r["state"] for r in rows)
     assert set(states) <= FINAL_STATES, states
+    if held:
+        states["held"] = len(held)
     referenced: set[Path] = set()
     for r in rows:
         if r["state"] == "stored":

@@ -79,7 +79,8 @@ def test_a_batch_over_tcp_gets_the_right_verdicts_files_and_journal(sim, tmp_pat
         text = unit(st, sim, BAD[0])
         assert f"RETEST: {BAD[0]} was measured 1 time(s) before" in text
         assert f"{BAD[0]}: FAIL   RETEST (attempt 2)" in text
-        assert "tested 4 | passed 2 | failed 2 | retests 1 | first-pass yield 50.0 %" in text
+        assert ("tested 4 | passed 2 | failed 2 | yield 50.0 % (4 judged) | retests 1 | "
+                "first-pass yield 50.0 %") in text
         st.send("s")
         assert "retests 1" in st.expect("serial> ")
         st.send("q")
@@ -331,7 +332,7 @@ def test_sigkill_between_units_and_mid_sweep(sim, tmp_path) -> None:
     assert rows(out, "SELECT state FROM runs")[0][0] == "running"
     with start(plan) as st:  # the next shift closes the dead one, then is killed mid-sweep
         text = golden_ok(st, sim)
-        assert "1 earlier shift(s) ended without closing" in text
+        assert "1 earlier run(s) ended without closing" in text
         unit(st, sim, GOOD[1])
         sim.faults.arm("stall", seconds=30.0)
         sim.bench.select_unit(GOOD[2])

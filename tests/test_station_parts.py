@@ -306,8 +306,8 @@ def test_yield_counters() -> None:
     assert (y.tested, y.passed, y.failed, y.retests) == (6, 4, 2, 2)
     assert (y.first_tested, y.first_passed) == (5, 3)
     assert y.first_pass_yield == pytest.approx(0.6)
-    assert y.line() == ("tested 6 | passed 4 | failed 2 | retests 2 | "
-                        "first-pass yield 60.0 %")
+    assert y.line() == ("tested 6 | passed 4 | failed 2 | yield 66.7 % (6 judged) | "
+                        "retests 2 | first-pass yield 60.0 %")
     assert count_yield([]).line().endswith("first-pass yield n/a")
 
 

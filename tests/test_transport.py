@@ -134,7 +134,28 @@ def test_refused_connection_is_a_connect_error_naming_the_resource() -> None:
 @pytest.mark.parametrize(
     ("resource", "words"),
     [
-        ("garbage::x", "cannot open: VI_ERROR_INV_RSRC_NAME"),
+        ("garbage::x", "not a supported VISA resource string: 'garbage::x' (use TCPIP::"),
+        ("TCPIP::h::5025::SOCKET;*RST", "(must not contain ';')"),
+        ("GPIB0::5::INSTR", "(GPIB is not supported; use "),
+        ("TCPIP::h::5025 ::SOCKET", "(must not contain spaces or control characters)"),
+        ("TCPIP::h::70000::SOCKET", "(port 70000 is outside 1..65535)"),
+    ],
+)
+def test_resources_outside_the_rules_are_refused_before_pyvisa(
+    resource: str, words: str, capfd: pytest.CaptureFixture
+) -> None:
+    # The same rules as plans (drivers.resources); pyvisa never sees the string, so no
+    # third-party warning line comes before ours.
+    with pytest.raises(ConnectError) as info:
+        Transport(resource)
+    assert str(info.value).startswith("instrument: not a supported VISA resource string")
+    assert words in str(info.value) and "\n" not in str(info.value)
+    assert capfd.readouterr().err == ""
+
+
+@pytest.mark.parametrize(
+    ("resource", "words"),
+    [
         ("ASRL/dev/sweepd-no-such-port::INSTR", "could not open port /dev/sweepd-no-such-port"),
         (
             "TCPIP::no-such-host.invalid::5025::SOCKET",

@@ -89,6 +89,18 @@ def test_capture_uncertainty_and_guarded_verdict(tmp_path: Path,
         ts = read_touchstone(summary["capture"]["touchstone"])
         assert any("sweepd verdict: INDETERMINATE (exit 3)" in c for c in ts.comments)
 
+    # offline: `sweepd check` with the plan takes U from the capture JSON beside the file
+    capture = Path(summary["capture"]["touchstone"])
+    assert main(["check", str(capture), "--plan", str(guarded), "--json"]) == 3
+    assert json.loads(capsys.readouterr().out)["verdict"] == "indeterminate"
+    assert main(["check", str(capture), "--plan", str(simple)]) == 0
+    capsys.readouterr()
+    lonely = tmp_path / "lonely.s1p"
+    lonely.write_bytes(capture.read_bytes())
+    assert main(["check", str(lonely), "--plan", str(guarded), "--json"]) == 2
+    message = json.loads(capsys.readouterr().out)["checks"][0]["message"]
+    assert "no capture JSON lonely.json beside the file" in message
+
 
 def test_uncorrected_capture_says_why_it_has_no_uncertainty(
         tmp_path: Path, capsys: pytest.CaptureFixture) -> None:

@@ -160,3 +160,36 @@ def test_decision_section_errors_are_one_line(value: object, message: str) -> No
         parse_decision(node(value))
     assert message in str(err.value) and "\n" not in str(err.value)
     assert str(err.value).startswith("plan lines/patch.yaml: decision")
+
+
+def _rlc_band(rho: float, f0: float = 2.45e9, r: float = 45.0, q: float = 12.0) -> float:
+    """Closed-form width where |Γ| <= rho of a series RLC (|z − Z0| = rho·|z + Z0| solved
+    for the reactance x, then ωL − 1/(ωC) = ±x; Pozar 6.1)."""
+    ind = q * r / (2 * np.pi * f0)
+    x = np.sqrt(((50 + r) ** 2 * rho**2 - (50 - r) ** 2) / (1 - rho**2))
+    return float(x / (2 * np.pi * ind))  # f_hi − f_lo = x / (2π L)
+
+
+@pytest.mark.parametrize(("need_mhz", "want"), [(145, "pass"), (150, "indeterminate"),
+                                                (156, "fail")])
+def test_bandwidth_guarded(need_mhz: float, want: str) -> None:
+    """SWR-2 band (|Γ| <= 1/3) of a series RLC antenna (45 ohm, Q 12, 2.45 GHz) with
+    U = 0.01: surely below where |Γ| + U <= 1/3, possibly where |Γ| − U <= 1/3; the
+    closed form gives 145.31 MHz and 155.70 MHz (150.48 MHz at |Γ| = 1/3 itself, where
+    simple acceptance would pass 150 MHz); the interpolated crossings on 2001 points
+    agree within 0.2 MHz."""
+    f = np.linspace(2.3e9, 2.6e9, 2001)
+    ind = 12 * 45.0 / (2 * np.pi * 2.45e9)
+    cap = 1 / ((2 * np.pi * 2.45e9) ** 2 * ind)
+    w = 2 * np.pi * f
+    z = 45.0 + 1j * (w * ind - 1 / (w * cap))
+    g = (z - 50) / (z + 50)
+    sweep = Sweep(f, g.reshape(-1, 1, 1))
+    unc = SweepUncertainty(f, {"S11": reflection_uncertainty(g, IDEAL, U_001)}, U_001)
+    checks = parse_checks(Node([{"bandwidth": {"below_swr": 2.0, "at_least": f"{need_mhz} MHz"}}],
+                               "plan p", "checks", PlanError))
+    verdict = evaluate_checks(checks, sweep, decision=GUARDED, uncertainty=unc)
+    guard = verdict.results[0].details["guarded"]
+    assert guard["sure_hz"] == pytest.approx(_rlc_band(1 / 3 - 0.01), abs=0.2e6)
+    assert guard["possible_hz"] == pytest.approx(_rlc_band(1 / 3 + 0.01), abs=0.2e6)
+    assert verdict.verdict == want

@@ -18,8 +18,9 @@ Heavy imports (numpy) happen on import of this package; the CLI imports it insid
 
 from __future__ import annotations
 
-from acquire.calibration.calset import CalSet, find_latest, list_calsets, read_header
-from acquire.calibration.checks import CheckLimits, CheckResult, Finding, check_raw, check_terms
+from acquire.calibration.calset import CalSet, read_header
+from acquire.calibration.calstore import find_latest, list_calsets
+from acquire.calibration.checks import CheckLimits, CheckResult, Finding, check_raw
 from acquire.calibration.kit import CalKit, load_kit
 from acquire.calibration.methods import (
     ALIASES,
@@ -52,6 +53,7 @@ from acquire.calibration.residual import (
     verify_check_standard,
 )
 from acquire.calibration.standards import Offset, Standard
+from acquire.calibration.termchecks import check_terms
 from acquire.calibration.twoport import (
     TwelveTerms,
     correct_twelve,

@@ -30,7 +30,6 @@ from __future__ import annotations
 import hashlib
 import io
 import json
-import logging
 import zipfile
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field, replace
@@ -42,21 +41,22 @@ from typing import Any
 
 import numpy as np
 
+from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
 from acquire.calibration.methods import ErrorModel, canonical_name
 from acquire.errors import CalError
-from acquire.jsonsafe import json_safe
+from acquire.jsonclean import json_safe
 from acquire.storage import safe_component, write_new
 from acquire.sweep import Sweep
 from acquire.utc import compact_utc, minute_text, parse_utc, utc_text
 from acquire.utc import utc_now as utc_clock
 from drivers.stimulus import Stimulus
+from drivers.yamlnode import one_line, show
 
 FORMAT = "sweepd-calset"
 VERSION = 1
 SUFFIX = ".calset"
 HEADER = "header.json"
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)
-log = logging.getLogger(__name__)
 
 
 def utc_now() -> str:
@@ -175,13 +175,7 @@ class CalSet:
     def load(cls, path: Path | str) -> CalSet:
         """Read and verify a cal set file; ``CalError`` with one line on any problem."""
         path = Path(path)
-        try:
-            data = path.read_bytes()
-        except FileNotFoundError:
-            raise CalError(f"cal set {path}: file not found") from None
-        except OSError as exc:
-            raise CalError(f"cal set {path}: cannot read ({exc.strerror})") from None
-        return cls.from_bytes(data, str(path))
+        return cls.from_bytes(_read_file(path), str(path))
 
     @classmethod
     def from_bytes(cls, data: bytes, source: str = "<memory>") -> CalSet:
@@ -218,52 +212,19 @@ class CalSet:
 def read_header(path: Path | str) -> dict[str, Any]:
     """Only the JSON header of a cal set file (cheap; for finding the right one)."""
     path = Path(path)
+    return _Reader(_read_file(path), str(path)).header
+
+
+def _read_file(path: Path) -> bytes:
+    """The bytes of a cal set file (bounded); ``CalError`` with one line otherwise."""
     try:
-        data = path.read_bytes()
+        return read_file(path)
+    except FileNotFoundError:
+        raise CalError(f"cal set {path}: file not found") from None
     except OSError as exc:
         raise CalError(f"cal set {path}: cannot read ({exc.strerror})") from None
-    return _Reader(data, str(path)).header
-
-
-def list_calsets(cal_dir: Path | str, plan: str | None = None,
-                 instrument: str | None = None) -> list[tuple[Path, dict[str, Any]]]:
-    """(path, header) of the readable cal sets in ``cal_dir``, newest first.
-
-    Filters by plan name and instrument identity when given. Unreadable files are logged
-    as warnings and skipped.
-    """
-    found = []
-    folder = Path(cal_dir)
-    if not folder.is_dir():
-        return []
-    for path in folder.glob(f"*{SUFFIX}"):
-        try:
-            header = read_header(path)
-        except CalError as exc:
-            log.warning("skipping %s", exc)
-            continue
-        if plan is not None and header["plan"] != plan:
-            continue
-        if instrument is not None and not same_instrument(header["instrument"], instrument):
-            continue
-        found.append((path, header))
-    found.sort(key=lambda item: (item[1]["created_utc"], item[0].name), reverse=True)
-    return found
-
-
-def find_latest(cal_dir: Path | str, plan: str, instrument: str | None = None) -> CalSet | None:
-    """The newest cal set for ``plan`` (and instrument) that loads and verifies, or None."""
-    for path, _header in list_calsets(cal_dir, plan, instrument):
-        try:
-            return CalSet.load(path)
-        except CalError as exc:
-            log.warning("skipping %s", exc)
-    return None
-
-
-def same_instrument(a: str, b: str) -> bool:
-    """Identity strings compared field by field, ignoring blanks around commas and case."""
-    return [p.strip().lower() for p in a.split(",")] == [p.strip().lower() for p in b.split(",")]
+    except Refused as exc:
+        raise CalError(f"cal set {path}: {exc}") from None
 
 
 def replace_grid(cal: CalSet, model: ErrorModel, interpolation: Mapping[str, Any]) -> CalSet:
@@ -285,19 +246,19 @@ class _Reader:
             self.zip = zipfile.ZipFile(io.BytesIO(data))
         except (zipfile.BadZipFile, ValueError, EOFError, OSError):
             self.fail(f"not a readable cal set (damaged or truncated file, {len(data)} bytes)")
-        raw_header = self.member(HEADER)
         try:
-            header = json.loads(raw_header.decode("utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-            self.fail(f"{HEADER} is not valid JSON ({exc})")
+            check_members(self.zip)
+            header = parse_json(self.member(HEADER), HEADER)
+        except Refused as exc:
+            self.fail(str(exc))
         if not isinstance(header, dict):
             self.fail(f"{HEADER} must hold a JSON object")
         fmt = header.get("format")
         if fmt != FORMAT:
-            self.fail(f"not a sweepd cal set (format {fmt!r}, expected {FORMAT!r})")
+            self.fail(f"not a sweepd cal set (format {show(fmt)}, expected '{FORMAT}')")
         version = header.get("version")
         if isinstance(version, bool) or not isinstance(version, int) or version < 1:
-            self.fail(f"header key 'version': must be a positive integer, got {version!r}")
+            self.fail(f"header key 'version': must be a positive integer, got {show(version)}")
         if version > VERSION:
             self.fail(f"format version {version} is newer than this sweepd reads ({VERSION}): "
                       "upgrade sweepd to use it")
@@ -308,7 +269,7 @@ class _Reader:
             self.get(key, kind)
 
     def fail(self, message: str) -> Any:
-        raise CalError(f"cal set {self.source}: {message}")
+        raise CalError(one_line(f"cal set {self.source}: {message}"))
 
     def member(self, name: str) -> bytes:
         try:
@@ -325,19 +286,14 @@ class _Reader:
         ok = isinstance(value, kind) and not (isinstance(value, bool) and kind is not bool)
         if not ok:
             names = kind.__name__ if isinstance(kind, type) else "/".join(k.__name__ for k in kind)
-            self.fail(f"header key '{prefix}{key}': expected {names}, got {value!r}")
+            self.fail(f"header key '{prefix}{key}': expected {names}, got {show(value)}")
         return value
 
     def array(self, name: str, dtype: type, shape: tuple[int, ...]) -> np.ndarray:
-        raw = self.member(name)
         try:
-            arr = np.lib.format.read_array(io.BytesIO(raw), allow_pickle=False)
-        except (ValueError, OSError, EOFError) as exc:
-            return self.fail(f"array '{name}' is damaged ({exc})")
-        if arr.dtype != np.dtype(dtype) or arr.shape != shape:
-            self.fail(f"array '{name}' is {arr.dtype}{list(arr.shape)}, expected "
-                      f"{np.dtype(dtype)}{list(shape)}")
-        return arr
+            return read_npy(self.member(name), name, dtype, shape)
+        except Refused as exc:
+            return self.fail(str(exc))
 
     def calset(self) -> CalSet:
         h = self.header
@@ -358,7 +314,8 @@ class _Reader:
         port = self.get("port", int)
         temperature = h.get("temperature_c")
         if temperature is not None and not isinstance(temperature, number):
-            self.fail(f"header key 'temperature_c': expected a number or null, got {temperature!r}")
+            self.fail(f"header key 'temperature_c': expected a number or null, "
+                      f"got {show(temperature)}")
         interpolation = h.get("interpolation")
         if interpolation is not None and not isinstance(interpolation, dict):
             self.fail("header key 'interpolation': expected an object or null")
@@ -372,8 +329,8 @@ class _Reader:
         terms = {t: self.array(f"terms/{t}.npy", np.complex128, n) for t in term_names}
         raw = {r: self.array(f"raw/{r}.npy", np.complex128, n) for r in raw_names}
         try:
-            model = ErrorModel.from_flat(canonical_name(h["method"], f"cal set {self.source}"),
-                                         freq, terms)
+            canonical_name(h["method"], f"cal set {self.source}")  # warns on an older name
+            model = ErrorModel.from_flat(h["method"], freq, terms)  # kept: the id covers it
         except (ValueError, KeyError) as exc:
             self.fail(f"error terms do not form a calibration: {exc}")
         try:
@@ -386,7 +343,7 @@ class _Reader:
         if cal.content_sha256 != h["content_sha256"]:
             self.fail("content check failed: the file was altered or damaged")
         if cal.id != h["id"]:
-            self.fail(f"id {h['id']!r} does not match its content ({cal.id})")
+            self.fail(f"id {show(h['id'])} does not match its content ({cal.id})")
         return cal
 
     def _names(self, key: str) -> list[str]:

@@ -16,7 +16,8 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
-from acquire.calibration.calset import CalSet, list_calsets, replace_grid, same_instrument
+from acquire.calibration.calset import CalSet, replace_grid
+from acquire.calibration.calstore import list_calsets, same_instrument
 from acquire.calibration.interpolate import MAX_STEP_DEG, interpolate_model
 from acquire.errors import CalError
 from acquire.units import format_duration, format_frequency

@@ -10,6 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from acquire.capture.judge import Capture
+from acquire.journal.settle import remove_orphans
 from acquire.plan import Plan
 from acquire.storage import free_path, safe_component, write_new
 from acquire.sweep import Sweep
@@ -62,7 +63,7 @@ def companions(path: Path) -> tuple[Path, ...]:
 def plan_path(cap: Capture, plan: Plan, out_dir: Path, *, serial: str = "",
               index: int | None = None, station: str = "") -> Path:
     """A free Touchstone path for a capture, from the plan's name template."""
-    verdict = cap.verdict.verdict if plan.checks else ""
+    verdict = cap.verdict.verdict if plan.checks or cap.verdict.results else ""
     path = capture_path(plan, out_dir, serial=serial, verdict=verdict, index=index,
                         station=station, when=utc_now())
     return free_path(path, companions)
@@ -87,15 +88,21 @@ def store(cap: Capture, plan: Plan, path: Path) -> Stored:
     """
     raw_path = raw_path_for(path) if plan.output.keep_raw and cap.corrected else None
     summary = summary_dict(cap, path, raw_path)
-    summary_path = write_new(path.with_suffix(".json"),
-                             json.dumps(summary, indent=2, allow_nan=False) + "\n",
-                             unique=False)
-    if raw_path is not None:
-        save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
-    comments = tuple(cap.verdict.comment_lines()) if plan.checks else ()
+    judged = plan.checks or cap.verdict.results  # a golden capture is judged without them
+    comments = tuple(cap.verdict.comment_lines()) if judged else ()
     if cap.uncertainty is not None:
         comments += tuple(cap.uncertainty.comment_lines())
-    final = save_capture(cap.sweep, plan, path, comments, unique=False)
+    try:
+        summary_path = write_new(path.with_suffix(".json"),
+                                 json.dumps(summary, indent=2, allow_nan=False) + "\n",
+                                 unique=False)
+        if raw_path is not None:
+            save_capture(cap.raw.with_meta(raw_of=path.name), plan, raw_path, unique=False)
+        final = save_capture(cap.sweep, plan, path, comments, unique=False)
+    except BaseException:
+        if not path.exists():  # no summary saying PASS for a capture that never landed
+            remove_orphans(path)
+        raise
     return Stored(final, summary_path, raw_path)
 
 

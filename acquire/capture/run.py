@@ -8,9 +8,9 @@ from pathlib import Path
 from typing import Any
 
 from acquire.capture.calchoice import choose_calibration
-from acquire.capture.files import Stored, plan_path, store
+from acquire.capture.files import Stored, plan_path
 from acquire.capture.judge import Capture, capture
-from acquire.capture.records import journal_stored, journalled_run
+from acquire.capture.records import journalled_run, store_journalled
 from acquire.capture.session import Session
 from acquire.journal import journal_in
 from acquire.plan import Plan
@@ -54,7 +54,7 @@ def run_plan(plan: Plan, out_dir: Path, *, resource: str | None = None,
     """
     sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
     with journal_in(out_dir) as journal, journalled_run(
-            journal, kind, plan, fault_action="run stopped",
+            journal, out_dir, kind, plan, fault_action="run stopped",
             resource=resource or plan.instrument.resource) as run:
         with Session(plan, resource) as session:
             journal.update_run(run.id, instrument=session.identity_text)
@@ -63,6 +63,5 @@ def run_plan(plan: Plan, out_dir: Path, *, resource: str | None = None,
         planned = journal.plan_measurement(
             run.id, 0, plan_path(cap, plan, out_dir, serial=serial), serial=serial
         )
-        stored = store(cap, plan, planned.touchstone)
-        journal_stored(journal, planned, cap, stored)
+        stored = store_journalled(journal, planned, cap, plan)
     return RunResult(cap, stored)

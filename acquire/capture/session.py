@@ -16,11 +16,13 @@ from typing import Any
 
 import numpy as np
 
+from acquire.holders import busy_message
 from acquire.plan import Plan
 from acquire.sweep import Sweep
 from acquire.utc import utc_now, utc_text
 from drivers.analyzer import Analyzer
 from drivers.dialect import load_dialect
+from drivers.errors import ConnectError
 from drivers.stimulus import Stimulus
 
 log = logging.getLogger(__name__)
@@ -47,13 +49,20 @@ class Session:
             data_format=spec.data_format,
             byte_order=spec.byte_order,
             serial={"baud_rate": spec.baud_rate} if spec.baud_rate else None,
+            max_sweep_time_s=spec.max_sweep_time_s,
         )
         self._identity_text = ""
         self._applied: Stimulus = plan.stimulus
 
     # -- life cycle ------------------------------------------------------------------------
     def open(self) -> Session:
-        self._analyzer.open()
+        try:
+            self._analyzer.open()
+        except ConnectError as exc:  # a busy instrument: say who holds it, in words
+            words = busy_message(str(exc), self.resource)
+            if words is None:
+                raise
+            raise ConnectError(words) from None
         ident = self._analyzer.identity
         self._identity_text = ",".join((ident.maker, ident.model, ident.serial, ident.firmware))
         self._applied = self._analyzer.configure(self.plan.stimulus)

@@ -47,9 +47,16 @@ def run_with_json_errors(args: argparse.Namespace, command: str,
     except OSError as exc:  # disk full, permissions
         where = f" ({exc.filename})" if exc.filename else ""
         return _fail(command, f"{exc.strerror or exc}{where}", "OSError", EXIT_ERROR)
+    except Exception as exc:  # unforeseen: still one document, exit 2 (never 1)
+        from acquire.errors import internal_error_text
+
+        return _fail(command, internal_error_text(exc), "InternalError", EXIT_ERROR)
 
 
 def _fail(command: str, message: str, kind: str, code: int) -> int:
+    from drivers.yamlnode import one_line
+
+    message = one_line(message)
     print(json.dumps(error_document(command, message, kind, code)), flush=True)
     prefix = "sweepd: interrupted" if code == EXIT_INTERRUPTED else f"sweepd: error: {message}"
     print(prefix, file=sys.stderr)

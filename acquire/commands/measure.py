@@ -8,7 +8,8 @@ EPILOG = """\
 The same serial check, calibration rules, checks, files and journal as 'sweepd station'.
 With --json one JSON object is printed on stdout in every case (errors included).
 
-Exit codes: 0 pass (golden: within tolerance), 1 fail, 2 error (one line on stderr)."""
+Exit codes: 0 pass (golden: within tolerance), 1 fail, 2 error (one line on stderr),
+3 indeterminate (guarded acceptance: within the guard band; retest or hold)."""
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

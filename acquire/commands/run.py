@@ -11,6 +11,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--serial", default="", help="DUT serial recorded with the sweep")
     parser.add_argument("--output", help="output folder; overrides the plan's output.dir")
     parser.add_argument("--json", action="store_true", help="print one JSON object for machines")
+    parser.epilog = ("Exit codes: 0 pass (or no checks), 1 fail, 2 error, 3 indeterminate "
+                     "(the plan's decision: guarded, a value within the guard band).")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -33,4 +35,7 @@ def _run(args: argparse.Namespace) -> int:
         print(json.dumps(result.summary(), sort_keys=True))
     else:
         print(result.one_line())
+        if not args.serial:
+            print("  note: no --serial given; the sweep is recorded without a serial and its "
+                  "file is named with 'unit' (give --serial SERIAL to name it)")
     return result.exit_code

@@ -10,9 +10,28 @@ from acquire.commands.serve import add_spool_argument
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("jobs", nargs="*", metavar="JOB", help="only these jobs (id or prefix)")
     parser.add_argument("--json", action="store_true", help="one JSON object for machines")
-    parser.add_argument("--watch", type=float, metavar="SECONDS",
+    parser.add_argument("--watch", type=watch_seconds, metavar="SECONDS",
                         help="print again every SECONDS until no job is active (Ctrl-C stops)")
     add_spool_argument(parser)
+
+
+WATCH_RANGE = (0.2, 86400.0)
+
+
+def watch_seconds(text: str) -> float:
+    """``--watch``: a finite number of seconds from 0.2 to one day (not 0, -1 or nan)."""
+    import math
+
+    try:
+        value = float(text)
+    except ValueError:
+        value = math.nan
+    lo, hi = WATCH_RANGE
+    if not lo <= value <= hi:  # also false for nan
+        shown = ascii(text[:20]) + ("..." if len(text) > 20 else "")
+        raise argparse.ArgumentTypeError(f"must be a number of seconds from {lo:g} to "
+                                         f"{hi:g}, got {shown}")
+    return value
 
 
 def run(args: argparse.Namespace) -> int:
@@ -39,6 +58,6 @@ def _run(args: argparse.Namespace) -> int:
         active = any(j["state"] in ACTIVE_STATES for j in view["jobs"])
         if args.watch is None or not active:
             return 0
-        time.sleep(max(0.2, args.watch))
+        time.sleep(args.watch)
         if not args.json:
             print()

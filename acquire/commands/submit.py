@@ -34,7 +34,7 @@ def _run(args: argparse.Namespace) -> int:
     done = submit_plan(spool, Path(args.plan), resource=args.resource,
                        output=Path(args.output) if args.output else None)
     if args.json:
-        print(json.dumps({"job": done.job.id, "spool": str(spool.root),
+        print(json.dumps({"job": done.job.id, "uid": done.job.uid, "spool": str(spool.root),
                           "resource": done.resource, "data_dir": str(done.job.data_dir)}))
     else:
         print(done.describe())

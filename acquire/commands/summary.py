@@ -1,4 +1,4 @@
-"""``sweepd summary OUTPUT_DIR``: yield and per-metric statistics (with Cpk) from the
+"""``sweepd summary OUTPUT_DIR``: yield and per-metric statistics (Ppk, Cpk) from the
 journal of an output folder, and a CSV export of its measurements."""
 
 from __future__ import annotations
@@ -12,7 +12,10 @@ or gives an offset) or a duration back from now (8 h, 30 min, 2 d).
 to stdout instead of the statistics.
 
 Statistics use the first measurement of each unit unless --all-attempts; golden checks are
-left out. Cpk = min(USL - mean, mean - LSL) / (3 sd), against the limits of the checks."""
+left out. Units without a verdict (a plan without checks) are counted as unjudged, and the
+yield is over judged units. Against the limits of the checks:
+  Ppk = min(USL - mean, mean - LSL) / (3 sd), sd over all values;
+  Cpk = the same with the pooled sd within subgroups (the journal's runs)."""
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

@@ -23,9 +23,36 @@ STEPS: list[tuple[str, Callable[[DemoContext], None]]] = [
 ]
 
 
+MARKER = ".sweepd-demo"  # written into every demo folder; only such a folder is cleared
+
+
+def prepare_folder(root: Path) -> None:
+    """Start from a clean folder: a folder an earlier demo made is emptied (said so); a
+    folder holding anything else is refused, so no file of the user's is ever removed."""
+    import shutil
+
+    from acquire.demo.context import DemoError
+
+    if root.exists() and not root.is_dir():
+        raise DemoError(f"demo folder {root} is a file; give --dir FOLDER")
+    if root.is_dir() and any(root.iterdir()):
+        if not (root / MARKER).is_file():
+            raise DemoError(f"demo folder {root} holds files the demo did not make; "
+                            "give --dir NEW_FOLDER or empty it")
+        print(f"sweepd demo: {root} holds an earlier demo's files; removing them to start "
+              "clean")
+        for entry in root.iterdir():
+            if entry.is_dir() and not entry.is_symlink():
+                shutil.rmtree(entry)
+            else:
+                entry.unlink()
+    root.mkdir(parents=True, exist_ok=True)
+    (root / MARKER).write_text("made by sweepd demo; the next demo run empties this folder\n")
+
+
 def run_demo(root: Path, *, sim_args: list[str] | None = None) -> int:
     root = root.resolve()
-    root.mkdir(parents=True, exist_ok=True)
+    prepare_folder(root)
     args = sim_args or ["--serial", "--time-scale", "0.02", "--seed", "7"]
     print(f"sweepd demo: working in {root}")
     with SimProcess(args) as sim:

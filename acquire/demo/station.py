@@ -5,7 +5,7 @@ station's prompts over a pipe while putting each unit of the simulated lot on th
 fixture before typing its serial. The shift: the station finds no cal set and runs the
 calibration procedure; golden check at the start; twenty units, one malformed label and
 one retest; at the second golden check the fixture has been bumped, the line stops, the
-fixture is put back and the re-check passes; then the summary with Cpk and a CSV export,
+fixture is put back and the re-check passes; then the summary with Ppk, Cpk and a CSV export,
 and one ``sweepd measure --json`` call as an MES would make it.
 """
 

@@ -3,7 +3,11 @@ the analyzer's own standard switch.
 
 The external command comes from the plan (``calibration.switch.command``), is split once
 with ``shlex`` and run without a shell; ``{standard}`` is replaced by one of the fixed
-fixture names (open, short, load, thru, device) and nothing else. A non-zero exit status,
+fixture names (open, short, load, thru, device), or by the site's own name for it from
+``calibration.switch.names`` (a fixture tool may call the device ``dut``), and nothing
+else; an optional ``{port}`` by the port the standard goes to: ``1``, ``2`` or ``both``
+(a thru, loads for isolation, a two-port device). Site names are checked words, so each
+stays one argument. A non-zero exit status,
 a missing program or a hang is a ``FixtureError`` (one line) and the step can be retried.
 """
 
@@ -11,13 +15,29 @@ from __future__ import annotations
 
 import shlex
 import subprocess
+from collections.abc import Mapping
 from typing import Any, Protocol
 
 from acquire.errors import CalError
+from acquire.plan import site_name_problem
 from drivers.dialect import STANDARDS
 
 COMMAND_TIMEOUT_S = 60.0
 PLACEHOLDER = "{standard}"
+PORT_PLACEHOLDER = "{port}"
+
+
+def check_site_names(names: Mapping[str, str]) -> dict[str, str]:
+    """Our standard names -> the fixture tool's; ``CalError`` names the first bad entry."""
+    checked = {}
+    for ours, theirs in names.items():
+        if ours not in STANDARDS:
+            raise CalError(f"switch names: {ours!r} is not one of {', '.join(STANDARDS)}")
+        problem = site_name_problem(theirs)
+        if problem:
+            raise CalError(f"switch names: {ours}: {problem}")
+        checked[ours] = theirs
+    return checked
 
 
 class FixtureError(CalError):
@@ -28,7 +48,7 @@ class Connector(Protocol):
     manual: bool  # True: the technician connects standards by hand
     description: str
 
-    def connect(self, standard: str) -> None: ...
+    def connect(self, standard: str, port: int = 0) -> None: ...
 
 
 class ManualConnector:
@@ -37,7 +57,7 @@ class ManualConnector:
     manual = True
     description = "by hand"
 
-    def connect(self, standard: str) -> None:
+    def connect(self, standard: str, port: int = 0) -> None:
         _check_name(standard)
 
 
@@ -46,7 +66,8 @@ class CommandConnector:
 
     manual = False
 
-    def __init__(self, template: str, *, timeout_s: float = COMMAND_TIMEOUT_S) -> None:
+    def __init__(self, template: str, *, timeout_s: float = COMMAND_TIMEOUT_S,
+                 names: Mapping[str, str] | None = None) -> None:
         try:
             self.argv = shlex.split(template)
         except ValueError as exc:
@@ -57,14 +78,21 @@ class CommandConnector:
             raise CalError(f"switch command {template!r} must contain {PLACEHOLDER}")
         self.template = template
         self.timeout_s = timeout_s
+        self.names = check_site_names(names or {})
         self.description = f"by the switch command '{template}'"
+        if self.names:
+            shown = ", ".join(f"{ours} as {theirs}" for ours, theirs in self.names.items())
+            self.description += f" ({shown})"
 
-    def command(self, standard: str) -> list[str]:
+    def command(self, standard: str, port: int = 0) -> list[str]:
         _check_name(standard)
-        return [arg.replace(PLACEHOLDER, standard) for arg in self.argv]
+        name = self.names.get(standard, standard)
+        where = str(port) if port in (1, 2) else "both"
+        return [arg.replace(PLACEHOLDER, name).replace(PORT_PLACEHOLDER, where)
+                for arg in self.argv]
 
-    def connect(self, standard: str) -> None:
-        argv = self.command(standard)
+    def connect(self, standard: str, port: int = 0) -> None:
+        argv = self.command(standard, port)
         shown = shlex.join(argv)
         try:
             done = subprocess.run(argv, capture_output=True, text=True, errors="replace",
@@ -97,7 +125,7 @@ class SwitchConnector:
                            "'switch' section): use --prompt terminal or a switch command")
         self.description = f"by the analyzer's standard switch ({session.switch_name})"
 
-    def connect(self, standard: str) -> None:
+    def connect(self, standard: str, port: int = 0) -> None:
         from drivers.errors import DialectError, ScpiErrorQueue, SettingMismatch
 
         _check_name(standard)

@@ -26,7 +26,7 @@ other port: the finding says the ports are swapped (common practice).
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -134,10 +134,12 @@ class Judge:
 
     def terms(self, terms: OnePortTerms, port: int = 1) -> Judgement:
         """Check solved reflection terms (alone and, at port 1, against the last cal)."""
-        if port != 1:
+        if port != 1:  # the findings name kit roles: point them at this port's steps
             result = check_terms(self.freq, terms, limits=self.limits)
-            return _split(result.findings, {f"port{port}_{k}": v
-                                            for k, v in result.figures.items()})
+            steps = {s.kind: s.name for s in self.steps if s.is_reflect and s.port == port}
+            found = [replace(f, steps=tuple(steps.get(n, n) for n in f.steps))
+                     for f in result.findings]
+            return _split(found, {f"port{port}_{k}": v for k, v in result.figures.items()})
         result = check_terms(self.freq, terms, previous=self.previous, limits=self.limits)
         judgement = _split(result.findings, result.figures)
         if not judgement.passed and self.previous is not None:

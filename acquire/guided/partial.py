@@ -24,6 +24,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.calibration.methods import canonical_name
 from acquire.errors import CalError
 from acquire.storage import replace_atomic, safe_component
 from acquire.units import format_duration
@@ -129,7 +130,7 @@ def load_partial(path: Path) -> Partial:
             if header.get("format") != FORMAT or header.get("version") != VERSION:
                 raise CalError(f"{where}: not a version {VERSION} {FORMAT} file")
             st = header["stimulus"]
-            fp = Fingerprint(str(header["plan"]), str(header["method"]),
+            fp = Fingerprint(str(header["plan"]), canonical_name(str(header["method"]), where),
                              str(header["instrument"]), Stimulus(**st),
                              str(header["kit_name"]), str(header["kit_sha256"]))
             partial = Partial(fp, updated_utc=str(header["updated_utc"]))

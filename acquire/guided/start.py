@@ -79,7 +79,7 @@ def calibrate(plan: Plan, options: Options = Options(), *, stdin: TextIO | None 
     _writable(cal_dir)
     console = Console(stdout, ascii_only=options.ascii_only)
     with Session(plan, options.resource) as session:
-        connector = _connector(prompt, switch_command, session)
+        connector = _connector(prompt, switch_command, session, spec.switch_names)
         backend = _backend(prompt, options, console, stdin, actions)
         fingerprint = Fingerprint(plan.name, spec.method, session.identity_text,
                                   session.applied, kit.name, kit.sha256)
@@ -102,12 +102,13 @@ def _prompt(options: Options, planned: str) -> str:
     return prompt
 
 
-def _connector(prompt: str, switch_command: str | None, session: object) -> Connector:
+def _connector(prompt: str, switch_command: str | None, session: object,
+               names: dict[str, str] | None = None) -> Connector:
     if prompt == "terminal":
         return ManualConnector()
     if prompt == "command" or (prompt == "scripted" and switch_command):
         assert switch_command is not None
-        return CommandConnector(switch_command)
+        return CommandConnector(switch_command, names=names)
     return SwitchConnector(session)
 
 

@@ -65,17 +65,17 @@ class SqliteJournal(SqliteFile, JournalStore):
         return self._one("SELECT * FROM runs WHERE id = ?", (run_id,))
 
     def soak_run(self, job_uid: str) -> Row | None:
-        return self._one("SELECT * FROM runs WHERE job_id = ? AND kind = 'soak' "
-                         "ORDER BY id LIMIT 1", (job_uid,))
+        return self._one("SELECT * FROM runs WHERE job_uid = ? AND kind = 'soak'",
+                         (job_uid,))
 
-    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[int]:
-        sql = (f"SELECT id FROM runs WHERE state = 'running' AND kind IN "
+    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[Row]:
+        sql = (f"SELECT * FROM runs WHERE state = 'running' AND kind IN "
                f"({', '.join('?' * len(kinds))})")
         params: list[Any] = list(kinds)
         if plan is not None:
             sql += " AND plan = ?"
             params.append(plan)
-        return [int(r["id"]) for r in self._rows(sql + " ORDER BY id", params)]
+        return self._rows(sql + " ORDER BY id", params)
 
     # -- measurements: writing ---------------------------------------------------------------
     def next_seq(self, run_id: int) -> int:
@@ -159,7 +159,7 @@ class SqliteJournal(SqliteFile, JournalStore):
                        (*fields.values(), measurement_id))
 
     def pending(self, run_id: int | None = None) -> list[Row]:
-        sql = "SELECT id, touchstone FROM measurements WHERE state = 'pending'"
+        sql = "SELECT id, run_id, touchstone FROM measurements WHERE state = 'pending'"
         if run_id is None:
             return self._rows(sql + " ORDER BY id")
         return self._rows(sql + " AND run_id = ? ORDER BY id", (run_id,))
@@ -254,6 +254,21 @@ class SqliteJournal(SqliteFile, JournalStore):
         else:
             rows = self._rows(sql + " ORDER BY id DESC LIMIT ?", (run_id, int(last)))[::-1]
         return [{k: v for k, v in r.items() if k != "id"} for r in rows]
+
+    def start_hold(self, run_id: int, first_seq: int, reason: str) -> int:
+        with self._tx() as db:
+            cur = db.execute("INSERT INTO holds(run_id, first_seq, started_utc, reason) "
+                             "VALUES (?, ?, ?, ?)", (run_id, first_seq, utc_text(), reason))
+            return int(cur.lastrowid)
+
+    def end_hold(self, hold_id: int, last_seq: int) -> None:
+        with self._tx() as db:
+            db.execute("UPDATE holds SET last_seq = ?, ended_utc = ? WHERE id = ?",
+                       (last_seq, utc_text(), hold_id))
+
+    def holds(self, run_id: int) -> list[Row]:
+        return self._rows("SELECT id, first_seq, last_seq, started_utc, ended_utc, reason "
+                          "FROM holds WHERE run_id = ? ORDER BY id", (run_id,))
 
     def record_alarm(self, run_id: int, metric: str, message: str, *, seq: int | None = None,
                      value: float | None = None, threshold: float | None = None) -> None:

@@ -9,6 +9,8 @@ upgraded by a short writable open first.
 
 from __future__ import annotations
 
+import contextlib
+import shutil
 import sqlite3
 import threading
 import time
@@ -31,6 +33,7 @@ class SqliteFile:
         self.where = str(self.path)
         self.read_only = read_only
         self._lock = threading.RLock()
+        refuse_links(self.path)
         if read_only and not self.path.is_file():
             raise JournalError(f"journal {self.path}: not found")
         if read_only and _file_version(self.path) < SCHEMA_VERSION:
@@ -38,7 +41,7 @@ class SqliteFile:
         try:
             self._db = self._connect(timeout_s)
         except sqlite3.Error as exc:
-            raise JournalError(f"journal {self.path}: {exc}") from None
+            raise _journal_error(self.path, exc) from None
 
     def _connect(self, timeout_s: float) -> sqlite3.Connection:
         if self.read_only:
@@ -155,10 +158,31 @@ def _file_version(path: Path) -> int:
         raise JournalError(f"journal {path}: {exc}") from None
 
 
+def refuse_links(path: Path) -> None:
+    """The journal (and SQLite's files beside it) must be real files: a symbolic link is
+    refused, never followed (it would turn its target into a database)."""
+    for candidate in (path, path.with_name(path.name + "-wal"),
+                      path.with_name(path.name + "-shm")):
+        if candidate.is_symlink():
+            raise JournalError(f"journal {path}: {candidate.name} is a symbolic link; the "
+                               "journal must be a real file (remove the link)")
+
+
+FULL_BELOW = 1 << 20  # an I/O error with less free space than this is a full disk
+
+
 def _journal_error(path: Path, exc: sqlite3.Error) -> JournalError:
+    """One line naming the journal; a full disk is called so (SQLite reports it as
+    'database or disk is full', or as an I/O error when its WAL index cannot grow)."""
     text = str(exc)
-    if "full" in text.lower():
-        text += " (free some space; nothing half-written was kept)"
+    full = "full" in text.lower()
+    if not full and "i/o error" in text.lower():
+        with contextlib.suppress(OSError):
+            full = shutil.disk_usage(path.parent).free < FULL_BELOW
+    if full:
+        return JournalError(f"journal {path}: the disk is full ({text}); free some space: "
+                            "captures already written are recorded at the next start, "
+                            "nothing half-written is kept")
     return JournalError(f"journal {path}: {text}")
 
 

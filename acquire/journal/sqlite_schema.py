@@ -10,7 +10,7 @@ test (``tests/test_journal_migrations.py``).
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 5
 
 _V1 = """
 CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -94,4 +94,32 @@ CREATE INDEX measurements_run_state ON measurements(run_id, state);
 CREATE INDEX runs_kind_state ON runs(kind, state)
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2}
+# 3: a soak job's unique identity (a UUID) beside its short per-spool name.
+_V3 = """
+ALTER TABLE runs ADD COLUMN job_uid TEXT;
+CREATE UNIQUE INDEX runs_job_uid ON runs(job_uid) WHERE job_uid IS NOT NULL
+"""
+
+# 4: the process that owns a run (a lock token, its pid and host), so that a later start
+# settles only runs whose process is gone.
+_V4 = """
+ALTER TABLE runs ADD COLUMN owner TEXT;
+ALTER TABLE runs ADD COLUMN pid INTEGER;
+ALTER TABLE runs ADD COLUMN host TEXT
+"""
+
+# 5: a soak held for disk space journals one hold (the span of sweep indices it did not
+# take), not one missed row per sweep.
+_V5 = """
+CREATE TABLE holds (
+    id INTEGER PRIMARY KEY,
+    run_id INTEGER NOT NULL REFERENCES runs(id),
+    first_seq INTEGER NOT NULL,
+    last_seq INTEGER,
+    started_utc TEXT NOT NULL,
+    ended_utc TEXT,
+    reason TEXT NOT NULL
+)
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5}

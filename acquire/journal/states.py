@@ -22,6 +22,10 @@ Measurements (one per sweep index of a run; an index appears at most once):
 - ``interrupted``: was ``pending`` when its process died (or was interrupted while
   writing) and its Touchstone file never landed; files written ahead of it are removed;
 - ``failed``: taken, but its files could not be written (disk full, permissions).
+
+A soak held for disk space takes no sweeps until space returns; it journals one *hold*
+(the span of indices it did not take, with the reason), not one ``missed`` row per
+sweep. Counters count the sweeps of a hold as missed.
 """
 
 from __future__ import annotations

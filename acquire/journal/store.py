@@ -25,7 +25,7 @@ from acquire.utc import utc_text
 Row = dict[str, Any]
 
 RUN_FIELDS = ("plan_path", "station", "operator", "instrument", "resource", "job_id",
-              "job_uid", "note")
+              "job_uid", "owner", "pid", "host", "note")
 RUN_UPDATES = ("instrument", "resource", "state", "note", "ended_utc", "station", "operator")
 FILL_FIELDS = ("metrics_json", "verdict", "exit_code", "worst_margin", "summary",
                "raw_touchstone", "verdict_json", "cal_id", "cal_age_s", "instrument", "note")
@@ -100,7 +100,7 @@ class JournalStore(ABC):
         """The run of the soak job with this unique id, if it ever started."""
 
     @abstractmethod
-    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[int]:
+    def open_runs(self, kinds: Sequence[str], plan: str | None = None) -> list[Row]:
         """Runs still ``running`` of these kinds (of ``plan`` if given), oldest first."""
 
     # -- measurements: writing ------------------------------------------------------------------
@@ -148,7 +148,7 @@ class JournalStore(ABC):
 
     @abstractmethod
     def pending(self, run_id: int | None = None) -> list[Row]:
-        """Pending rows (``id``, ``touchstone``), of one run or all."""
+        """Pending rows (``id``, ``run_id``, ``touchstone``), of one run or all."""
 
     @abstractmethod
     def settle(self, measurement_id: int, state: str, fields: Mapping[str, Any]) -> None:
@@ -200,6 +200,20 @@ class JournalStore(ABC):
     def faults(self, run_id: int, last: int | None = None) -> list[Row]:
         """Faults of a run (``seq, time_utc, kind, message, action``), oldest first;
         only the ``last`` ones when given."""
+
+    @abstractmethod
+    def start_hold(self, run_id: int, first_seq: int, reason: str) -> int:
+        """A soak stops taking sweeps from ``first_seq`` on (disk space): one row."""
+
+    @abstractmethod
+    def end_hold(self, hold_id: int, last_seq: int) -> None:
+        """The hold ends; sweeps ``first_seq .. last_seq`` were not taken (none when
+        ``last_seq < first_seq``)."""
+
+    @abstractmethod
+    def holds(self, run_id: int) -> list[Row]:
+        """Holds of a run (``id, first_seq, last_seq, started_utc, ended_utc, reason``;
+        ``last_seq`` None while open), oldest first."""
 
     @abstractmethod
     def record_alarm(self, run_id: int, metric: str, message: str, *, seq: int | None = None,

@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from acquire.jsonsafe import finite_or_none
+from acquire.jsonclean import finite_or_none
 from acquire.metrics import conversions as cv
 from acquire.metrics.errors import MetricError
 from acquire.metrics.features import Bandwidth, Resonance, bandwidth, q_factor, resonance_min_gamma
@@ -18,6 +18,19 @@ from acquire.sweep import Sweep
 # the "-10 dB bandwidth" (RL >= 10 dB) and SWR <= 2 (RL >= 9.54 dB) of antenna work.
 SUMMARY_RETURN_LOSS_DB = 10.0
 SUMMARY_SWR = 2.0
+# A two-port whose |S21| or |S12| rises above this somewhere passes signal (a thru, a
+# cable, a filter): its S11 is not a load's impedance and has no resonator Q. Our choice.
+TRANSMITS_ABOVE_DB = -20.0
+
+
+def transmits(sweep: Sweep) -> bool:
+    """True for a two-port (or more) whose port 1 to port 2 path passes signal."""
+    if sweep.ports < 2:
+        return False
+    with np.errstate(all="ignore"):
+        db = cv.db20(np.concatenate([sweep.param("S21"), sweep.param("S12")]))
+    finite = db[np.isfinite(db)]
+    return bool(finite.size) and float(np.max(finite)) > TRANSMITS_ABOVE_DB
 
 
 @dataclass(frozen=True)
@@ -76,6 +89,8 @@ def key_metrics(sweep: Sweep) -> dict[str, Any]:
     out: dict[str, Any] = {}
     try:
         out["S11"] = reflection_summary(sweep, "S11").to_dict()
+        if transmits(sweep):  # no resonator behind port 1: a Q would mean nothing
+            out["S11"]["q_unloaded"] = out["S11"]["q_loaded"] = None
     except MetricError as exc:
         out["S11"] = {"error": str(exc)}
     if sweep.ports >= 2:

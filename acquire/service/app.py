@@ -32,15 +32,13 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from acquire.instruments import Instruments
 from acquire.service.access import token_matches
-from acquire.service.models import JOB_ID, CancelRequest, MeasureRequest, Problem, SubmitRequest
+from acquire.service.models import JOB_ID, CancelRequest, MeasureRequest, SubmitRequest
 from acquire.service.plans import PLAN_NAME, PlanBook
-from acquire.service.statuses import status_for
+from acquire.service.statuses import REFUSED, status_for
 from drivers.errors import SweepdError
 
 log = logging.getLogger(__name__)
 MAX_BODY = 64 * 1024
-REFUSED = {400: {"model": Problem}, 404: {"model": Problem}, 409: {"model": Problem},
-           413: {"model": Problem}, 422: {"model": Problem}}
 
 
 @dataclass

@@ -15,6 +15,7 @@ from fastapi import FastAPI, Path
 from fastapi.responses import HTMLResponse, JSONResponse, Response
 
 from acquire.service.models import JOB_ID
+from acquire.service.statuses import REFUSED
 
 REFRESH_S = 2.0
 PICTURE_TTL_S = 5.0
@@ -27,14 +28,14 @@ def add_page(app: FastAPI, service: Any) -> None:
     def page() -> HTMLResponse:
         return HTMLResponse(PAGE.replace("{{REFRESH_MS}}", str(int(REFRESH_S * 1000))))
 
-    @app.get("/api/v1/overview")
+    @app.get("/api/v1/overview", responses=REFUSED)
     def overview_json() -> JSONResponse:
         from acquire.service.overview import overview
 
         return JSONResponse(overview(service))
 
     @app.get("/jobs/{job}/drift.png", response_class=Response,
-             responses={200: {"content": {"image/png": {}}}})
+             responses={200: {"content": {"image/png": {}}}, **REFUSED})
     def drift(job: str = Path(pattern=JOB_ID, max_length=101)) -> Response:
         found = service.spool().require().find(job)
         return Response(pictures.get(found), media_type="image/png",

@@ -4,7 +4,11 @@ app and by the measurement route)."""
 from __future__ import annotations
 
 from acquire.instruments import InstrumentBusy
+from acquire.service.models import Problem
 from drivers.errors import InstrumentError
+
+# The refusals every route may answer, each a one-line ``{"error": ...}`` (OpenAPI).
+REFUSED = {status: {"model": Problem} for status in (400, 401, 404, 409, 413, 422)}
 
 
 def status_for(exc: BaseException) -> int:

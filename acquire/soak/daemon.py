@@ -21,11 +21,12 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from acquire.instruments import Instruments, resource_key
+from acquire.instruments import Instruments
 from acquire.soak.ownership import OwnershipError
 from acquire.soak.progress import progress_line
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from acquire.soak.worker import SoakWorker, StopSignal
+from drivers.resources import resource_key
 
 log = logging.getLogger(__name__)
 

@@ -19,8 +19,16 @@ from acquire.journal import DONE_STATES, JournalStore, journal_in
 SOAK_KIND = "soak"
 
 
-def find_run(journal: JournalStore, job_uid: str) -> dict[str, Any] | None:
-    return journal.soak_run(job_uid)
+def find_run(journal: JournalStore, job: Any) -> dict[str, Any] | None:
+    """The journal run of ``job``, matched on its unique id. A job submitted before jobs
+    had one is matched on the run its own state file names, if that run is its."""
+    if job.uid:
+        return journal.soak_run(job.uid)
+    run_id = job.read_state().get("run_id")
+    run = journal.run(int(run_id)) if run_id else None
+    if run is None or run["kind"] != SOAK_KIND or run["job_id"] != job.id:
+        return None
+    return run
 
 
 @dataclass
@@ -29,6 +37,7 @@ class Counts:
 
     by_state: dict[str, int] = field(default_factory=dict)
     last_seq: int | None = None
+    held: int = 0  # sweeps not taken during holds for disk space (closed holds)
 
     @property
     def done(self) -> int:
@@ -40,7 +49,7 @@ class Counts:
 
     @property
     def missed(self) -> int:
-        return self.by_state.get("missed", 0)
+        return self.by_state.get("missed", 0) + self.held
 
     @property
     def failed(self) -> int:
@@ -65,8 +74,22 @@ class Counts:
 
 
 def counts(journal: JournalStore, run_id: int) -> Counts:
+    """Rows by state, with the sweeps of closed holds counted as missed; the last index
+    covers rows and holds alike."""
     by_state, top = journal.state_counts(run_id)
-    return Counts(by_state, top)
+    held = 0
+    for hold in journal.holds(run_id):
+        first, last = int(hold["first_seq"]), hold["last_seq"]
+        end = int(last) if last is not None else first - 1
+        held += max(0, end - first + 1)
+        if end >= first:
+            top = end if top is None else max(top, end)
+    return Counts(by_state, top, held)
+
+
+def open_hold(journal: JournalStore, run_id: int) -> dict[str, Any] | None:
+    holds = [h for h in journal.holds(run_id) if h["last_seq"] is None]
+    return holds[-1] if holds else None
 
 
 def last_sweep(journal: JournalStore, run_id: int) -> dict[str, Any] | None:

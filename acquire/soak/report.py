@@ -10,8 +10,6 @@ the sweeps the journal holds.
 from __future__ import annotations
 
 import contextlib
-import html
-import os
 from collections import Counter
 from dataclasses import dataclass
 from pathlib import Path
@@ -24,6 +22,7 @@ from acquire.soak import history
 from acquire.soak.alarms import LABELS
 from acquire.soak.allan import AllanPoint
 from acquire.soak.devfile import read_deviation
+from acquire.soak.report_pages import report_html, report_text
 from acquire.soak.report_plots import Events, Panel, allan_plot, deviation_plot, drift_plot
 from acquire.soak.sentences import FAULT_WORDS, fault_sentence
 from acquire.soak.spec import SoakSpec, parse_soak
@@ -75,6 +74,7 @@ def _gather(job: Job) -> tuple[Any, SoakSpec, dict[str, Any], dict[str, Any], hi
         ser = history.series(journal, run_id)
         faults = history.faults(journal, run_id)
         alarms = history.alarms(journal, run_id)
+        run["holds"] = journal.holds(run_id)
     return plan, spec, state, run, ser, faults, alarms
 
 
@@ -106,9 +106,10 @@ def write_report(job: Job, folder: Path) -> Report:
     if deviation is not None and deviation[1].size:
         pictures["deviation"] = _deviation(folder, deviation, spec, title)
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
-    text = _text(facts)
+    facts["sweeps"] += _held_text(run.get("holds") or [])
+    text = report_text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
-    page = replace_atomic(folder / "summary.html", _html(facts, pictures, folder))
+    page = replace_atomic(folder / "summary.html", report_html(facts, pictures, folder))
     return Report(folder, text, page, pictures)
 
 
@@ -263,6 +264,17 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
     return facts
 
 
+def _held_text(holds: list[dict[str, Any]]) -> str:
+    """The sweeps not taken while held for disk space (one journal row per hold)."""
+    spans = [(int(h["first_seq"]), h["last_seq"]) for h in holds]
+    held = sum(max(0, int(last) - first + 1) for first, last in spans if last is not None)
+    still = any(last is None for _, last in spans)
+    if not spans:
+        return ""
+    return (f", {held} not taken while held for disk space ({len(spans)} hold(s)"
+            + (", one still on" if still else "") + ")")
+
+
 def _instruments(ser: history.Series, run: dict[str, Any], resource: str) -> list[str]:
     """Each instrument identity the sweeps were taken with, and over which sweeps."""
     spans: list[list[Any]] = []  # [identity, first seq, last seq]
@@ -355,74 +367,3 @@ def _epoch(utc: str) -> float:
 
 def _signed(hz: float) -> str:
     return f"{'+' if hz >= 0 else '-'}{format_frequency(abs(hz))}"
-
-
-def _text(f: dict[str, Any]) -> str:
-    kept = f["kept"]
-    lines = [
-        f"Soak report {f['job']}: plan {f['plan']}",
-        "",
-        "Instrument:", *(f"  {line}" for line in f["instrument"]),
-        "Calibration:", *(f"  {line}" for line in f["calibration"]),
-        f"State: {f['state']} (journal {f['run']}: {f['run_state']})",
-        f"Started {f['started']}, ended {f['ended'] or 'not yet'}",
-        f"Schedule: {f['schedule']}",
-        f"Sweeps: {f['sweeps']}",
-        f"Verdicts: {f['verdicts']}",
-        "",
-        "Drift from the reference:",
-        *(f"  {line}" for line in f["drift"]),
-        f"Alarms: {len(f['alarms'])}",
-        *(f"  {line}" for line in f["alarms"][-20:]),
-        f"Faults: {len(f['faults'])}" + (f" ({f['faults_by_kind']})" if f["faults"] else ""),
-        *(f"  {line}" for line in f["faults"][-20:]),
-        f"Files kept: {len(kept)} Touchstone file(s) in {f['data_dir']}",
-        *(f"  sweep {seq}: {path.name}" for seq, path in kept[:5]),
-        *(["  ..."] if len(kept) > 10 else []),
-        *(f"  sweep {seq}: {path.name}" for seq, path in kept[max(5, len(kept) - 5):]),
-    ]
-    return "\n".join(lines)
-
-
-def _link(path: Path, folder: Path) -> str:
-    """A link to a kept file that works from the report folder when both are moved
-    together (relative), else an absolute file URL."""
-    try:
-        return Path(os.path.relpath(path, folder)).as_posix()
-    except ValueError:
-        return path.resolve().as_uri()
-
-
-def _html(f: dict[str, Any], pictures: dict[str, Path], folder: Path) -> str:
-    e = html.escape
-    rows = "".join(f"<tr><th>{e(k)}</th><td>{e(str(v))}</td></tr>" for k, v in (
-        ("Plan", f["plan"]), ("Instrument", "; ".join(f["instrument"])),
-        ("Calibration", "; ".join(f["calibration"])), ("State", f["state"]),
-        ("Started", f["started"]), ("Ended", f["ended"] or "not yet"),
-        ("Schedule", f["schedule"]), ("Sweeps", f["sweeps"]), ("Verdicts", f["verdicts"]),
-        ("Journal", f["run"]), ("Data folder", f["data_dir"])))
-
-    def items(lines: list[str]) -> str:
-        return "<ul>" + "".join(f"<li>{e(x)}</li>" for x in lines) + "</ul>" if lines \
-            else "<p>none</p>"
-
-    kept = "".join(f'<li>sweep {seq}: <a href="{e(_link(path, folder))}">{e(path.name)}</a>'
-                   "</li>" for seq, path in f["kept"])
-    headings = {"drift": "Drift against time", "allan": "Stability of the resonance "
-                "(Allan deviation)", "deviation": "Change from the reference by frequency"}
-    images = "".join(f'<h2>{e(headings.get(name, name))}</h2>'
-                     f'<img src="{e(path.name)}" alt="{e(headings.get(name, name))}">'
-                     for name, path in pictures.items())
-    return (
-        "<!DOCTYPE html>\n<html><head><meta charset=\"utf-8\">"
-        f"<title>Soak report {e(f['job'])}</title><style>body{{font-family:sans-serif;"
-        "max-width:1100px;margin:1em auto}th{text-align:left;padding-right:1em;"
-        "vertical-align:top}img{max-width:100%}</style></head><body>"
-        f"<h1>Soak report {e(f['job'])}</h1><table>{rows}</table>"
-        f"<h2>Drift from the reference</h2>{items(f['drift'])}"
-        f"<h2>Alarms ({len(f['alarms'])})</h2>{items(f['alarms'])}"
-        f"<h2>Faults ({len(f['faults'])})</h2>{items(f['faults'][-200:])}"
-        f"{images}"
-        f"<h2>Touchstone files kept ({len(f['kept'])})</h2>"
-        f"{'<ul>' + kept + '</ul>' if kept else '<p>none</p>'}</body></html>\n"
-    )

@@ -3,10 +3,18 @@
     <spool>/                     mode 0700 (control is local to one user)
       serve.lock                 held (flock) by the running ``sweepd serve``; holds its pid
       jobs/<job-id>/
-        job.json                 what was submitted (immutable): plan snapshot, paths, resource
+        job.json                 what was submitted (immutable): plan snapshot, paths, resource,
+                                 the job's unique id (``uid``) and its data folder's name
         state.json               queued | running | held | finished | cancelled | failed
         status.json              live progress written by the worker (sweeps, drift, faults)
         cancel                   present when ``sweepd cancel`` asked the job to stop
+
+A job id (``<plan>-NNN``) is short and only unique within its spool; the job's identity
+is its ``uid`` (a time-ordered UUID, version 7), stored with its journal run: resuming
+matches on it, so a job of another spool writing into the same output folder never
+adopts this one's record. Its data folder is ``<output>/<job-id>``, or
+``<output>/<job-id>-<uid tail>`` when that name is taken, and carries a ``.sweepd-job``
+marker with the uid.
 
 Job files are written atomically (temp file, fsync, rename) and never world-writable, so
 any command may read them from another shell while the daemon runs. Only the daemon
@@ -22,19 +30,25 @@ import getpass
 import json
 import os
 import re
+import time
+import uuid
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 from acquire.errors import PlanError
+from acquire.safejson import loads_bounded
 from acquire.soak.ownership import OwnershipError, check_private
 from acquire.storage import replace_atomic, write_new
 from acquire.utc import utc_text
 from drivers.errors import SweepdError
+from drivers.yamlnode import one_line
 
 ENV_SPOOL = "SWEEPD_SPOOL"
+DATA_MARKER = ".sweepd-job"
 JOB_STATES = ("queued", "running", "held", "finished", "cancelled", "failed")
 ACTIVE_STATES = ("queued", "running", "held")
+MAX_JOB_FILE_BYTES = 8 * 1024 * 1024  # job.json holds a plan snapshot: a few KB
 _JOB_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,80}-\d{3,}$")
 
 
@@ -63,11 +77,30 @@ class Job:
     resource: str
     submitted_utc: str
     submitted_by: str
+    uid: str = ""  # empty only for jobs submitted before job identities existed
+    data_name: str = ""
 
     @property
     def data_dir(self) -> Path:
         """Where the job's captures, drift records and report go."""
-        return self.output_dir / self.id
+        return self.output_dir / (self.data_name or self.id)
+
+    def claim_data_dir(self) -> None:
+        """Create the data folder, or check that it is this job's (``.sweepd-job``)."""
+        self.data_dir.mkdir(parents=True, exist_ok=True, mode=0o700)
+        marker = self.data_dir / DATA_MARKER
+        if not self.uid:
+            return
+        try:
+            owner = marker.read_text(encoding="utf-8").strip()
+        except FileNotFoundError:
+            write_new(marker, self.uid + "\n", unique=False)
+            return
+        except OSError as exc:
+            raise SpoolError(f"job {self.id}: {marker}: unreadable ({exc.strerror})") from None
+        if owner != self.uid:
+            raise SpoolError(f"job {self.id}: data folder {self.data_dir} belongs to another "
+                             f"job (uid {owner[:40]}); nothing was written there")
 
     @property
     def state_path(self) -> Path:
@@ -83,15 +116,11 @@ class Job:
 
     def load_plan(self) -> Any:
         """The plan as submitted (snapshot), with paths resolved from its original folder."""
-        import yaml
-
         from acquire.plan import parse_plan
         from acquire.yamlfile import Node
+        from drivers.yamltext import load_yaml_text
 
-        try:
-            raw = yaml.safe_load(self.plan_text)
-        except yaml.YAMLError as exc:
-            raise PlanError(f"job {self.id}: stored plan is not YAML: {exc}") from None
+        raw = load_yaml_text(self.plan_text, f"job {self.id}: stored plan", PlanError)
         root = Node(raw, f"plan {self.plan_source}", error=PlanError,
                     base_dir=self.plan_source.parent)
         return parse_plan(root, self.plan_source)
@@ -130,7 +159,7 @@ class Job:
             "id": self.id, "plan_name": self.plan_name, "plan_source": str(self.plan_source),
             "plan_text": self.plan_text, "output_dir": str(self.output_dir),
             "resource": self.resource, "submitted_utc": self.submitted_utc,
-            "submitted_by": self.submitted_by,
+            "submitted_by": self.submitted_by, "uid": self.uid, "data_name": self.data_name,
         }
 
     @classmethod
@@ -138,6 +167,8 @@ class Job:
         data = read_json(folder / "job.json", None)
         if data is None:
             raise SpoolError(f"job {folder.name}: {folder / 'job.json'} is missing")
+        if not isinstance(data, dict):
+            raise SpoolError(f"job {folder.name}: job.json must hold a JSON object")
         try:
             return cls(
                 id=str(data["id"]), dir=folder, plan_name=str(data["plan_name"]),
@@ -145,6 +176,7 @@ class Job:
                 output_dir=Path(data["output_dir"]), resource=str(data["resource"]),
                 submitted_utc=str(data["submitted_utc"]),
                 submitted_by=str(data.get("submitted_by", "")),
+                uid=str(data.get("uid") or ""), data_name=str(data.get("data_name") or ""),
             )
         except (KeyError, TypeError) as exc:
             raise SpoolError(f"job {folder.name}: job.json lacks {exc}") from None
@@ -195,8 +227,12 @@ class Spool:
                 break
             except FileExistsError:
                 number += 1
+        uid = new_job_uid()
+        data_name = job_id
+        if (output_dir / data_name).exists():  # an earlier job of another spool
+            data_name = f"{job_id}-{uid[-12:]}"
         job = Job(job_id, folder, plan_name, plan_source, plan_text, output_dir, resource,
-                  utc_text(), _user())
+                  utc_text(), _user(), uid, data_name)
         write_new(folder / "job.json", json.dumps(job.to_json(), indent=2) + "\n",
                   unique=False)
         job.write_state(state="queued")
@@ -279,11 +315,15 @@ class DaemonLock:
 def read_json(path: Path, default: Any) -> Any:
     """A small JSON state file, or ``default`` when it does not exist."""
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_JOB_FILE_BYTES + 1)
+        if len(data) > MAX_JOB_FILE_BYTES:
+            raise ValueError(f"larger than {MAX_JOB_FILE_BYTES >> 20} MiB")
+        return loads_bounded(data)
     except FileNotFoundError:
         return default
     except (OSError, ValueError) as exc:
-        raise SpoolError(f"{path}: unreadable ({exc})") from None
+        raise SpoolError(one_line(f"{path}: unreadable ({str(exc)[:120]})")) from None
 
 
 def _number(name: str, plan_name: str) -> int:
@@ -296,6 +336,16 @@ def _user() -> str:
         return getpass.getuser()
     except (KeyError, OSError):
         return str(os.getuid())
+
+
+def new_job_uid() -> str:
+    """A unique, time-ordered job identity: a version 7 UUID (RFC 9562: 48-bit Unix time
+    in milliseconds, then 74 random bits)."""
+    value = (time.time_ns() // 1_000_000 & (1 << 48) - 1) << 80
+    value |= int.from_bytes(os.urandom(10), "big")
+    value = (value & ~(0xF << 76)) | (0x7 << 76)  # version 7
+    value = (value & ~(0x3 << 62)) | (0x2 << 62)  # RFC variant
+    return str(uuid.UUID(int=value))
 
 
 def valid_job_id(text: str) -> bool:

@@ -23,12 +23,12 @@ from __future__ import annotations
 from typing import Any
 
 from acquire.errors import JournalError
-from acquire.instruments import resource_key
 from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
 from acquire.soak.progress import clock_text, drift_text, sweeps_text
 from acquire.soak.spool import ACTIVE_STATES, Job, Spool, SpoolError
 from drivers.errors import SweepdError
+from drivers.resources import resource_key
 
 COUNTERS = ("done", "kept", "missed", "failed", "pending", "interrupted")
 
@@ -61,8 +61,8 @@ def job_view(job: Job, *, daemon_running: bool) -> dict[str, Any]:
     if job.cancel_requested and name in ACTIVE_STATES:
         note = "cancel requested"
     view: dict[str, Any] = {
-        "id": job.id, "plan": job.plan_name, "resource": job.resource, "state": name,
-        "note": note, "submitted_utc": job.submitted_utc,
+        "id": job.id, "uid": job.uid or None, "plan": job.plan_name,
+        "resource": job.resource, "state": name, "note": note, "submitted_utc": job.submitted_utc,
         "started_utc": state.get("started_utc"), "ended_utc": state.get("ended_utc"),
         "run_id": state.get("run_id"),
         "sweeps": {**dict.fromkeys(COUNTERS, 0), **(live.get("sweeps") or {}),

@@ -5,10 +5,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
-from acquire.errors import PlanError
 from acquire.soak.spec import SoakSpec
 from acquire.soak.spool import Job, Spool
 from acquire.units import format_duration
+from drivers.resources import parse_resource
 
 
 @dataclass(frozen=True)
@@ -31,7 +31,7 @@ class Submitted:
 def submit_plan(spool: Spool, path: Path, *, resource: str | None = None,
                 output: Path | None = None) -> Submitted:
     """Validate a soak plan (and its reference file) and queue it in ``spool``."""
-    from acquire.plan import _RESOURCE, load_plan
+    from acquire.plan import load_plan
     from acquire.soak.drift import reference_from_file
     from acquire.soak.spec import parse_soak
 
@@ -41,8 +41,7 @@ def submit_plan(spool: Spool, path: Path, *, resource: str | None = None,
         reference_from_file(spec.reference, spec.parameter, spec.band_hz,
                             plan.stimulus.frequencies())
     resource = resource or plan.instrument.resource
-    if not _RESOURCE.match(resource):
-        raise PlanError(f"--resource: not a supported VISA resource string: {resource!r}")
+    parse_resource(resource, where="--resource")
     out = Path(output or plan.output.dir).expanduser().resolve()
     job = spool.create_job(plan.name, path.resolve(), path.read_text(encoding="utf-8"),
                            out, resource)

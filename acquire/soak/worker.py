@@ -16,7 +16,9 @@ sweep.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
+import errno
 import logging
 import math
 import os
@@ -31,8 +33,9 @@ from acquire.capture.calchoice import cal_dir_for
 from acquire.capture.files import Stored, plan_path, store
 from acquire.capture.judge import Capture, capture
 from acquire.capture.records import journal_stored, stored_fields, worst_margin
+from acquire.errors import JournalError
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
-from acquire.jsonsafe import json_safe, json_text
+from acquire.jsonclean import json_safe, json_text
 from acquire.soak import history
 from acquire.soak.alarms import AlarmBook
 from acquire.soak.allan import AllanPoint
@@ -60,6 +63,7 @@ STATUS_EVERY_S = 0.5  # the status file is rewritten at most this often while sw
 ALLAN_EVERY_S = 2.0  # the Allan deviation is recomputed at most this often
 POLL_S = 0.1  # how often waits look at stop and cancel requests
 HOLD_POLL_S = 1.0  # how often a held job looks at the free disk space again
+FREED_BYTES = 1 << 20  # after a failed write, this much more free space ends the hold
 OVERRUN = "not taken: the sweep before it (or reconnecting) ran past this sweep's slot"
 
 
@@ -111,6 +115,8 @@ class SoakWorker:
         self.reason: str | None = None
         self.next_index = 0
         self._gap_reason = OVERRUN
+        self.hold: dict[str, Any] | None = None
+        self._full_at: int | None = None
         self._status_at = -math.inf
         self._allan_at = -math.inf
         self._retry_at = -math.inf
@@ -141,15 +147,16 @@ class SoakWorker:
         self.plan = plan
         check_job_paths(job.output_dir, job.data_dir, cal_dir_for(plan),
                         self.spec.alarms.command)
-        job.data_dir.mkdir(parents=True, exist_ok=True, mode=0o700)
+        job.claim_data_dir()
         sweep_stale_temps(job.data_dir)
         self.journal = journal = journal_in(job.output_dir)
         state = job.read_state()
-        run = history.find_run(journal, job.id)
+        run = history.find_run(journal, job)
         now = self.clock.now()
         if run is None:
             self.run_id = journal.start_run("soak", plan.name, plan_path=str(job.plan_source),
-                                            resource=job.resource, job_id=job.id)
+                                            resource=job.resource, job_id=job.id,
+                                            job_uid=job.uid or None)
         else:
             self.run_id = int(run["id"])
         start = float(state.get("start_epoch") or now)
@@ -169,8 +176,14 @@ class SoakWorker:
                         started_utc=state.get("started_utc") or utc_text(), reason=None,
                         pid=os.getpid())
         counts = history.counts(journal, self.run_id)
-        self.tally = dict(counts.by_state)
+        self.tally = {**counts.by_state, "missed": counts.missed}
         self.next_index = counts.next_seq
+        held = history.open_hold(journal, self.run_id)
+        if held is not None:  # stopped while held: the same hold goes on until space returns
+            self.hold = {"id": int(held["id"]), "first_seq": int(held["first_seq"]),
+                         "reason": str(held["reason"])}
+            self.next_index = max(self.next_index, self.hold["first_seq"])
+            self.state, self.reason = "held", str(held["reason"])
         self._persisted_alarms = sorted(state.get("alarms_active", []))
         self.alarms = AlarmBook(self.spec.alarms, job.id, set(self._persisted_alarms),
                                 on_command_failure=self._alarm_command_failed)
@@ -204,7 +217,6 @@ class SoakWorker:
         k = self.next_index
         timeline, schedule = self.timeline, self.spec.schedule
         total = schedule.total()
-        held: str | None = None
         while True:
             why = self._stop_reason()
             if why:
@@ -214,23 +226,31 @@ class SoakWorker:
                 current = timeline.current_index(now)
                 upto = current if total is None else min(current, total)
                 if upto > k:
-                    self._missed_range(k, upto, self._gap_reason)
+                    if self.hold is None:
+                        self._missed_range(k, upto, self._gap_reason)
+                    else:  # covered by the open hold: no row per sweep
+                        self._count("missed", upto - k)
                     k = upto
             self.next_index = k
             if not timeline.in_plan(k, now):
                 return "finished"
             low = self._disk_low()
             if low:
-                if held != low:
-                    held = low
+                if self.hold is None:
                     self._hold(low)
                 self.stop.wait(min(HOLD_POLL_S, max(0.0, timeline.slot_end(k) - now)))
                 continue
-            if held:
-                held = None
+            if self.hold is not None:
                 self._unhold()
-            if not self._wait_until(timeline.due(k)) or not self._take(k):
-                continue  # a stop or cancel came first: the loop's top ends the job
+            try:
+                if not self._wait_until(timeline.due(k)) or not self._take(k):
+                    continue  # a stop or cancel came first: the loop's top ends the job
+            except JournalError as exc:
+                if not disk_full(exc):
+                    raise
+                self._full_at = self._free_bytes()  # hold until space is freed
+                k = self.next_index = max(k, history.counts(self.journal, self.run_id).next_seq)
+                continue
             k += 1
             self.next_index = k
             self._status()
@@ -374,8 +394,11 @@ class SoakWorker:
                 self._count("stored")
                 self._fault(exc, k, "Touchstone kept, summary not written")
                 return True
-            journal.fail_measurement(planned, f"not written: {exc}")
+            with contextlib.suppress(JournalError):  # a full disk may refuse this too
+                journal.fail_measurement(planned, f"not written: {exc}")
             self._count("failed")
+            if (isinstance(exc, OSError) and exc.errno == errno.ENOSPC) or disk_full(exc):
+                self._full_at = self._free_bytes() or 0
             self._fault(exc, k, f"sweep {k} not written (state failed); checking disk space")
             return False
         journal_stored(journal, planned, cap, stored)
@@ -407,7 +430,13 @@ class SoakWorker:
                        seq: int | None = None) -> None:
         message = " ".join(message.split())
         if self.journal is not None and self.run_id:
-            self.journal.record_fault(self.run_id, kind, message, action=action, seq=seq)
+            try:
+                self.journal.record_fault(self.run_id, kind, message, action=action, seq=seq)
+            except JournalError as exc:  # the log keeps it; the hold that follows waits
+                if not disk_full(exc):
+                    raise
+                self._full_at = self._free_bytes() or 0
+                log.error("job %s: fault not journalled: %s", self.job.id, exc)
         self.last_fault = {"utc": utc_text(), "seq": seq, "kind": kind, "message": message,
                            "action": action}
         log.warning("job %s: %s: %s -> %s", self.job.id, kind, message, action)
@@ -433,21 +462,45 @@ class SoakWorker:
         if free < reserve:
             return (f"disk nearly full: {free / 1e6:.1f} MB free in {self.job.data_dir}, "
                     f"soak.disk_reserve is {reserve / 1e6:.1f} MB")
+        if self._full_at is not None:  # a write found the disk full below the reserve
+            if free <= self._full_at + FREED_BYTES:
+                return (f"disk full: a write failed with {free / 1e6:.2f} MB free in "
+                        f"{self.job.data_dir}")
+            self._full_at = None
         return None
 
+    def _free_bytes(self) -> int | None:
+        try:
+            return shutil.disk_usage(self.job.data_dir).free
+        except OSError:
+            return None
+
     def _hold(self, why: str) -> None:
+        """Stop taking sweeps until space returns: one hold journalled, no row per sweep."""
         self.state, self.reason = "held", why
-        self._gap_reason = f"not taken: {why}"
         self.job.write_state(state="held", reason=why)
         self._journal_fault("disk-full", why, "capturing paused before any data is damaged; "
                             "resumes by itself when space is freed", self.next_index)
+        assert self.journal is not None
+        self.hold = {"id": -1, "first_seq": self.next_index, "reason": why}
+        try:
+            self.hold["id"] = self.journal.start_hold(self.run_id, self.next_index, why)
+        except JournalError as exc:  # no room even for that: journalled when space returns
+            if not disk_full(exc):
+                raise
 
     def _unhold(self) -> None:
+        assert self.journal is not None and self.hold is not None
+        first, last = self.hold["first_seq"], self.next_index - 1
+        if self.hold["id"] < 0:
+            self.hold["id"] = self.journal.start_hold(self.run_id, first, self.hold["reason"])
+        self.journal.end_hold(self.hold["id"], last)
+        self.hold = None
         self.state, self.reason = "running", None
-        self._gap_reason = OVERRUN
         self.job.write_state(state="running", reason=None)
-        self._journal_fault("disk-ok", "free disk space is above the reserve again",
-                            "capturing resumed", self.next_index)
+        skipped = max(0, last - first + 1)
+        self._journal_fault("disk-ok", f"free disk space is back; {skipped} sweep(s) not "
+                            "taken while held", "capturing resumed", self.next_index)
 
     # -- waiting and stopping ----------------------------------------------------------------
     def _stop_reason(self) -> str | None:
@@ -472,6 +525,12 @@ class SoakWorker:
         journal = self.journal
         assert journal is not None
         self._update_allan(max(0, self.next_index - 1), force=True)
+        if self.hold is not None and outcome != "stopped":
+            if self.hold["id"] < 0:
+                self.hold["id"] = journal.start_hold(self.run_id, self.hold["first_seq"],
+                                                     self.hold["reason"])
+            journal.end_hold(self.hold["id"], self.next_index - 1)
+            self.hold = None
         if outcome == "finished":
             journal.end_run(self.run_id, "finished")
             self.state, self.reason = "finished", None
@@ -711,3 +770,7 @@ class SoakWorker:
                 f"{self.tally.get('missed', 0)} missed, {self.tally.get('failed', 0)} failed")
 
 
+def disk_full(exc: BaseException) -> bool:
+    """A journal or storage error that says the disk is full."""
+    text = str(exc).lower()
+    return "disk is full" in text or "no space left" in text

@@ -12,7 +12,7 @@ Modules (small on purpose):
 - ``golden`` and ``schedule``: comparing the golden unit with its reference, and when the
   line is stopped or a golden check is due (from the journal).
 - ``counters``, ``stats``, ``records``, ``report``, ``export``, ``summary``: yield,
-  statistics with Cpk, per-measurement values, the summary text, the CSV export, and
+  statistics with Ppk and Cpk, per-measurement values, the summary text, the CSV export, and
   reading an output folder for ``sweepd summary``.
 - ``terminal``, ``display``, ``interrupts``, ``loop``: the operator's terminal loop.
 - ``errors``: the error classes. (The demo's shift and its stand-in operator live in

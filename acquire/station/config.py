@@ -16,6 +16,11 @@
         every: 4 h                    # ... or this much time since the last good check
         band: [2.40 GHz, 2.50 GHz]    # compare only here (default: the whole sweep)
         tolerance: {magnitude: 0.5 dB, phase: 5 deg, vector: 0.05, min_level: -40 dB}
+      hooks:                          # commands on pass, fail, line_stopped, line_resumed
+        fail: [/opt/line/stacklight, red, "{serial}"]      # (acquire.station.hooks)
+      indeterminate:                  # a unit within the guard band (plan decision: guarded)
+        action: retest                # retest (default): reseat and measure again; or hold
+        retests: 1                    # re-measurements before the unit goes on hold (0-5)
 
 Everything is optional; a plan without the section gets the default serial rule
 (letters, digits and ``. _ + -``, starting with a letter or digit, at most 40 long).
@@ -35,6 +40,8 @@ from acquire.station.golden import (
     Tolerance,
     load_reference,
 )
+from acquire.station.hooks import Hooks, parse_hooks
+from acquire.station.pattern import PatternError, compile_pattern
 from acquire.station.serials import (
     DEFAULT_MAX_LENGTH,
     DEFAULT_PATTERN,
@@ -43,9 +50,22 @@ from acquire.station.serials import (
     unsafe_reason,
 )
 from acquire.units import format_frequency
-from acquire.yamlfile import Node
+from acquire.yamlfile import Node, show
 
 STATION_ID = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]{0,31}")
+
+
+@dataclass(frozen=True)
+class IndeterminateRule:
+    """What the station does with an indeterminate unit (guarded acceptance)."""
+
+    action: str = "retest"  # retest | hold
+    retests: int = 1
+
+    def describe(self) -> str:
+        if self.action == "hold" or self.retests == 0:
+            return "indeterminate units go on hold"
+        return f"indeterminate units are retested up to {self.retests} time(s), then held"
 
 
 @dataclass(frozen=True)
@@ -54,6 +74,8 @@ class StationConfig:
     serial: SerialRule = field(default_factory=SerialRule)
     band_hz: tuple[float, float] | None = None
     golden: GoldenSpec | None = None
+    hooks: Hooks = field(default_factory=Hooks)
+    indeterminate: IndeterminateRule = field(default_factory=IndeterminateRule)
 
 
 def station_config(plan: Plan) -> StationConfig:
@@ -65,7 +87,7 @@ def station_config(plan: Plan) -> StationConfig:
 
 
 def parse_station(node: Node, plan: Plan) -> StationConfig:
-    node.mapping(("id", "serial", "band", "golden"))
+    node.mapping(("id", "serial", "band", "golden", "indeterminate", "hooks"))
     station_id = node["id"].text(None)
     if station_id is not None:
         check_station_id(station_id, node["id"])
@@ -74,7 +96,20 @@ def parse_station(node: Node, plan: Plan) -> StationConfig:
         serial=_serial(node["serial"]),
         band_hz=_band(node["band"], plan) if node["band"].present else None,
         golden=_golden(node["golden"], plan) if node["golden"].present else None,
+        hooks=parse_hooks(node["hooks"]),
+        indeterminate=_indeterminate(node["indeterminate"]),
     )
+
+
+def _indeterminate(node: Node) -> IndeterminateRule:
+    """``indeterminate: hold`` or ``{action: retest, retests: 2}``."""
+    if not node.present:
+        return IndeterminateRule()
+    if isinstance(node.value, str):
+        return IndeterminateRule(node.text(choices=("retest", "hold")))
+    node.mapping(("action", "retests"))
+    return IndeterminateRule(node["action"].text("retest", choices=("retest", "hold")),
+                             node["retests"].integer(1, lo=0, hi=5))
 
 
 def check_station_id(text: str, node: Node | None = None) -> str:
@@ -94,11 +129,11 @@ def _serial(node: Node) -> SerialRule:
     node.mapping(("pattern", "max_length"))
     pattern = node["pattern"].text(DEFAULT_PATTERN)
     try:
-        compiled = re.compile(pattern)
-    except re.error as exc:
-        node["pattern"].fail(f"not a valid regular expression: {exc}")
+        compiled = compile_pattern(pattern)
+    except PatternError as exc:
+        node["pattern"].fail(str(exc))
     if compiled.fullmatch(""):
-        node["pattern"].fail(f"must not accept an empty serial, got {pattern!r}")
+        node["pattern"].fail(f"must not accept an empty serial, got {show(pattern)}")
     max_length = node["max_length"].integer(DEFAULT_MAX_LENGTH, lo=1, hi=MAX_LENGTH_LIMIT)
     return SerialRule(pattern, max_length)
 

@@ -14,7 +14,9 @@ from acquire.station.counters import Yield
 FONT = {
     "A": (" ### ", "#   #", "#####", "#   #", "#   #"),
     "E": ("#####", "#    ", "#### ", "#    ", "#####"),
+    "D": ("#### ", "#   #", "#   #", "#   #", "#### "),
     "F": ("#####", "#    ", "#### ", "#    ", "#    "),
+    "H": ("#   #", "#   #", "#####", "#   #", "#   #"),
     "I": ("#####", "  #  ", "  #  ", "  #  ", "#####"),
     "K": ("#   #", "#  # ", "###  ", "#  # ", "#   #"),
     "L": ("#    ", "#    ", "#    ", "#    ", "#####"),
@@ -27,7 +29,8 @@ FONT = {
 }
 WORDS = {"pass": ("PASS", "green+bold"), "fail": ("FAIL", "red+bold"),
          "error": ("ERROR", "yellow+bold"), "stop": ("STOP", "red+bold"),
-         "ok": ("OK", "green+bold")}
+         "ok": ("OK", "green+bold"), "retest": ("RETEST", "yellow+bold"),
+         "hold": ("HOLD", "yellow+bold")}
 RULE = "=" * 64
 
 
@@ -52,10 +55,13 @@ def banner(key: str, paint: Callable[[str, str], str] | None = None) -> list[str
 
 def unit_lines(serial: str, verdict: str, attempt: int, margin: float | None, where: str,
                figures_line: str, failing: Sequence[str], files: Sequence[str],
-               counters: Yield) -> list[str]:
-    """The text under the banner for one unit."""
+               counters: Yield, why: str | None = None) -> list[str]:
+    """The text under the banner for one unit; ``why`` (the worst violation in words)
+    right under the verdict of a unit that did not pass."""
     retest = f"   RETEST (attempt {attempt})" if attempt > 1 else ""
     lines = [f"  {serial}: {verdict.upper()}{retest}"]
+    if why:
+        lines.append(f"  WHY: {why}")
     if margin is not None:
         lines.append(f"  worst margin {margin:+.4g}  ({where})")
     lines.append(f"  {figures_line}")

@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 
 from acquire.checks import MaskCheck, Verdict, WorstSwrCheck
-from acquire.jsonsafe import finite_or_none
+from acquire.jsonclean import finite_or_none
 from acquire.plan import Plan
 from acquire.sweep import Sweep
 from acquire.units import format_frequency
@@ -151,3 +151,38 @@ def _usable(verdict: Verdict, s11: dict[str, Any]) -> tuple[float | None, str]:
 
 def _freq(hz: float | None) -> str:
     return "n/a" if hz is None else format_frequency(hz)
+
+
+_QUANTITY_WORDS = {"swr": "SWR", "return_loss": "return loss", "magnitude_db": "level",
+                   "phase": "phase", "group_delay": "group delay", "resistance": "R",
+                   "reactance": "X"}
+
+
+def worst_violation(verdict: Verdict) -> str | None:
+    """The worst failing mask segment in words (what, where, the limit, the failing
+    range), else the first failing check's own summary; None when nothing fails."""
+    from acquire.metrics.quantities import format_value
+
+    worst: tuple[float, str] | None = None
+    for result in verdict.to_dict()["checks"]:
+        for seg in result.get("segments") or ():
+            w = seg.get("worst") or {}
+            if seg.get("verdict") != "fail" or w.get("margin") is None:
+                continue
+            q = seg["quantity"]
+            side = "above the upper" if w["bound"] == "upper" else "below the lower"
+            ranges = seg.get("failing_ranges_hz") or []
+            spread = ""
+            if ranges:
+                spread = (f"; it fails from {format_frequency(ranges[0][0])} to "
+                          f"{format_frequency(ranges[-1][1])}")
+            text = (f"{seg['parameter']} {_QUANTITY_WORDS.get(q, q)} is "
+                    f"{format_value(q, w['value'])} at {format_frequency(w['freq_hz'])}, "
+                    f"{side} limit {format_value(q, w['limit'])} of {result['name']} "
+                    f"'{seg['name']}'{spread}")
+            if worst is None or float(w["margin"]) < worst[0]:
+                worst = (float(w["margin"]), text)
+    if worst is not None:
+        return worst[1]
+    failing = [r for r in verdict.results if r.verdict not in ("pass", "skipped")]
+    return failing[0].summary if failing else None

@@ -22,6 +22,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.checks import CheckResult, Verdict
 from acquire.errors import TouchstoneError
 from acquire.plan import Plan
 from acquire.station.errors import GoldenError
@@ -128,6 +129,9 @@ class GoldenResult:
     magnitude_db: Worst | None = None
     phase_deg: Worst | None = None
     vector: Worst | None = None
+    limits: tuple[float | None, float | None, float | None] = (None, None, None)
+    reference: str = ""
+    serial: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -195,7 +199,42 @@ def compare(measured: Sweep, reference: Sweep, spec: GoldenSpec,
         message = (f"golden unit {spec.serial} within tolerance ({tol.describe()}): worst "
                    + ", ".join(_shown(w, u) for w, u in ((worst_db, " dB"), (worst_deg, " deg"),
                                                          (worst_vec, "")) if w is not None))
-    return GoldenResult(not over, message, points, worst_db, worst_deg, worst_vec)
+    return GoldenResult(not over, message, points, worst_db, worst_deg, worst_vec,
+                        (tol.magnitude_db, tol.phase_deg, tol.vector), spec.reference.name,
+                        spec.serial)
+
+
+WORST_KINDS = (("magnitude_db", "magnitude", " dB"), ("phase_deg", "phase", " deg"),
+               ("vector", "|dS|", ""))
+
+
+def golden_check(result: GoldenResult) -> CheckResult:
+    """The golden comparison as a check result: worst deviation of each kind, where it is
+    and its limit (the verdict of a golden capture)."""
+    worst: dict[str, Any] = {}
+    parts = []
+    for (key, label, unit), limit in zip(WORST_KINDS, result.limits, strict=True):
+        found: Worst | None = getattr(result, key)
+        if found is None:
+            worst[key] = None
+            continue
+        worst[key] = {**found.to_dict(), "limit": limit}
+        bound = f"limit {limit:g}{unit}" if limit is not None else "no limit"
+        parts.append(f"{label} {found.value:.3g}{unit} at {found.parameter} "
+                     f"{format_frequency(found.freq_hz)} ({bound})")
+    name = f"golden {result.serial}".strip()
+    summary = f"{name} vs {result.reference}: " + (", ".join(parts) or result.message)
+    return CheckResult("golden", name, "pass" if result.passed else "fail", summary,
+                       details={"reference": result.reference, "points": result.points,
+                                "worst": worst})
+
+
+def golden_verdict(unit: Verdict, result: GoldenResult) -> Verdict:
+    """A golden capture's verdict: the golden comparison decides it; the plan's own
+    checks on the golden unit are kept in ``metrics.unit_checks`` for information."""
+    metrics = {**unit.metrics, "golden_check": result.to_dict(),
+               "unit_checks": [r.to_dict() for r in unit.results]}
+    return Verdict((golden_check(result),), unit.sweep_info, metrics)
 
 
 def _worst(values: np.ndarray, valid: np.ndarray, freq: np.ndarray,

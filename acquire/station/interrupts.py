@@ -17,6 +17,11 @@ from types import FrameType
 from typing import Any
 
 _HELD = (signal.SIGINT, signal.SIGTERM)
+QUIT = ("q", "quit", "exit")  # answers that end the shift at any prompt
+
+
+class Quit(Exception):
+    """The operator ended the shift at a prompt."""
 
 
 def _main_thread() -> bool:

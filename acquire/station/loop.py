@@ -24,16 +24,22 @@ from pathlib import Path
 
 from acquire.capture.calchoice import CalChoice, choose_calibration
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
+from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
 from acquire.station.config import StationConfig, check_station_id, station_config
 from acquire.station.counters import run_yield
 from acquire.station.display import banner, unit_lines
 from acquire.station.errors import SerialRefused, StationError
-from acquire.station.interrupts import deferred_interrupt, terminate_as_interrupt
+from acquire.station.figures import worst_violation
+from acquire.station.folder_lock import StationLock
+from acquire.station.hold import handle_indeterminate
+from acquire.station.hooks import LineHooks
+from acquire.station.interrupts import QUIT, Quit, deferred_interrupt, terminate_as_interrupt
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
+from acquire.station.swap import SwapGuard, confirm_step
 from acquire.station.terminal import Terminal
-from acquire.station.unit import Line, UnitResult, measure_unit
+from acquire.station.unit import Line, UnitResult, measure_unit, save_fail_plot
 from acquire.storage import sweep_stale_temps
 from acquire.units import format_duration
 from drivers.errors import InstrumentError, SweepdError
@@ -48,13 +54,6 @@ HELP = (
     "  g  golden check now     c  calibrate now     s  counters     ?  this help",
     "  q  quit (end of input and Ctrl-C also end the shift; nothing saved is lost)",
 )
-QUIT = ("q", "quit", "exit")
-
-
-class Quit(Exception):
-    """The operator ended the shift at a prompt."""
-
-
 @dataclass(frozen=True)
 class StationOptions:
     resource: str | None = None
@@ -89,21 +88,34 @@ class Station:
         self.line: Line | None = None
         self.start_check_done = self.config.golden is None or not self.config.golden.at_start
         self.stop_shown = ""  # the stop reason already shown in full
+        self.swap = SwapGuard()  # a unit left on the fixture under a new label
+        self.hooks = LineHooks(self.config.hooks, {"plan": plan.name}, self.term.say)
 
     # -- the shift -------------------------------------------------------------------------
     def run(self) -> int:
+        """The shift, holding the output folder for its whole life (one station per
+        folder; a second one is refused with one line naming the holder)."""
+        given = self.options.station_id or self.config.station_id or ""
+        with StationLock(self.out_dir).acquire(given):
+            return self._run()
+
+    def _run(self) -> int:
         self._intro()
         station_id = self._station_id()
         if station_id is None:
             return 0
         code, state, note = 0, "finished", None
-        with journal_in(self.out_dir) as journal, terminate_as_interrupt():
+        with journal_in(self.out_dir) as journal, RunOwner(self.out_dir) as owner, \
+                terminate_as_interrupt():
             self._recover(journal)
             run_id = journal.start_run(
                 "station", self.plan.name, plan_path=str(self.plan.source), station=station_id,
-                operator=self.options.operator, resource=self.resource)
+                operator=self.options.operator, resource=self.resource, **owner.fields())
             self.line = Line(self.plan, self.config, self.out_dir, journal, run_id, station_id,
                              reference=self.reference)
+            self.hooks.common["station"] = station_id
+            self.hooks.fault = lambda text: journal.record_fault(
+                run_id, "HookFailed", text, action="measuring goes on")
             try:
                 self._shift()
             except KeyboardInterrupt:
@@ -150,6 +162,7 @@ class Station:
         if state.due:
             self._golden(state.due_reason)
             return False
+        self.hooks.line_ready()
         return True
 
     def _answer(self, answer: str | None) -> None:
@@ -187,15 +200,22 @@ class Station:
             self.term.say(f"RETEST: {serial} was measured {before} time(s) before; this is "
                           f"attempt {before + 1}, kept beside the earlier file(s)")
         self.term.say(f"measuring {serial} ...")
-        result = self._measure(serial)
+        result = self._measure(serial, confirm=confirm_step(self.swap, serial, self.term.say,
+                                                            self.term.ask))
         if result is not None:
+            self.swap.remember(serial, result.capture.sweep)
+        if result is not None and result.verdict == "indeterminate":
+            if not handle_indeterminate(self, serial, result, QUIT):
+                raise Quit
+        elif result is not None:
             self._show(result)
 
-    def _measure(self, serial: str, *, golden: bool = False) -> UnitResult | None:
+    def _measure(self, serial: str, *, golden: bool = False,
+                 confirm=None) -> UnitResult | None:
         line = self.line
         seq = line.journal.next_seq(line.run_id)
         try:
-            return measure_unit(line, serial, golden=golden)
+            return measure_unit(line, serial, golden=golden, confirm=confirm)
         except KeyboardInterrupt:
             with deferred_interrupt():
                 if line.journal.record_missed(line.run_id, [seq], "interrupted during the "
@@ -216,17 +236,29 @@ class Station:
             self._connect()
             return None
 
-    def _show(self, result: UnitResult) -> None:
+    def _show(self, result: UnitResult, key: str | None = None) -> None:
         verdict = result.capture.verdict
-        key = result.verdict if result.verdict in ("pass", "fail") else "error"
+        key = key or (result.verdict if result.verdict in ("pass", "fail") else "error")
         failing = [r.summary for r in verdict.results if r.verdict != "pass"]
         stored = result.stored
         files = [str(p) for p in (stored.touchstone, stored.summary) if p is not None]
+        why = worst_violation(verdict) if result.verdict != "pass" else None
+        plot = self._fail_plot(result, why) if result.verdict == "fail" else None
         lines = unit_lines(result.serial, result.verdict, result.attempt,
                            result.figures.worst_margin, result.figures.worst_where,
-                           result.figures.line(), failing, files,
-                           run_yield(self.line.journal, self.line.run_id))
+                           result.figures.line(), failing, files + ([str(plot)] if plot else []),
+                           run_yield(self.line.journal, self.line.run_id), why=why)
         self.term.say(*banner(key, self.term.paint), *lines)
+        self.hooks.unit(serial=result.serial, verdict=result.verdict,
+                        touchstone=stored.touchstone, summary=stored.summary, plot=plot)
+
+    def _fail_plot(self, result: UnitResult, why: str | None) -> Path | None:
+        """The small plot of a failing unit; a plot that cannot be made never stops the line."""
+        try:
+            return save_fail_plot(result, self.plan, why)
+        except (OSError, SweepdError, ValueError) as exc:
+            self.term.say(f"  note: no plot for {result.serial}: {exc}")
+            return None
 
     # -- golden unit -----------------------------------------------------------------------
     def _golden(self, why: str) -> None:
@@ -254,6 +286,7 @@ class Station:
         result = self._measure(golden.serial, golden=True)
         if result is None or result.golden_result is None:
             return
+        self.swap.remember_golden(golden.serial, result.capture.sweep)
         check = result.golden_result
         if check.passed:
             self.start_check_done = True
@@ -265,6 +298,7 @@ class Station:
         self.stop_shown = self._stop_reason()
         self.term.say(*banner("stop", self.term.paint), f"LINE STOPPED: {check.message}",
                       f"  file {result.stored.touchstone}")
+        self.hooks.line_stopped(check.message)
 
     def _stop_reason(self) -> str:
         state = line_state(self.line.journal, self.plan.name, self.config.golden,
@@ -275,6 +309,7 @@ class Station:
         if reason != self.stop_shown:  # the full reason once per stop, then short
             self.term.say(self.term.paint(f"LINE STOPPED: {reason}", "red+bold"))
             self.stop_shown = reason
+        self.hooks.line_stopped(reason)
         self.term.say("  no unit is measured until a good golden re-check or a recalibration:",
                       "  g = re-check the golden unit   c = recalibrate   q = quit")
         answer = self.term.ask("stopped> ")
@@ -418,17 +453,12 @@ class Station:
                 self.term.say(f"REFUSED: {exc}")
 
     def _recover(self, journal: JournalStore) -> None:
-        """Close earlier shifts of this plan that never ended (killed, power cut): settle
-        their pending rows and mark them crashed. One station per plan and folder."""
-        stale = journal.open_runs(("station",), self.plan.name)
-        changed = []
-        for run_id in stale:
-            changed += journal.reconcile(run_id=run_id)
-            journal.end_run(run_id, "crashed",
-                            note="ended without closing; settled at the next station start")
+        """Close earlier runs in this folder whose process is gone (killed, power cut):
+        settle their pending rows and mark them crashed."""
+        stale, changed = settle_dead_runs(journal, self.out_dir)
         if stale:
             adopted = sum(1 for _, state in changed if state == "stored")
-            self.term.say(f"journal: {len(stale)} earlier shift(s) ended without closing; "
+            self.term.say(f"journal: {stale} earlier run(s) ended without closing; "
                           f"{len(changed)} pending measurement(s) settled ({adopted} adopted, "
                           f"{len(changed) - adopted} interrupted)")
         sweep_stale_temps(self.out_dir)  # temp files of writers that died mid-write

@@ -19,9 +19,9 @@ from acquire.capture.records import journalled_run
 from acquire.capture.session import Session
 from acquire.journal import journal_in
 from acquire.plan import Plan
-from acquire.station.config import StationConfig, check_station_id, station_config
+from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
-from acquire.station.golden import GoldenSpec, load_reference
+from acquire.station.golden import load_reference
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial
 from acquire.station.unit import Line, UnitResult, measure_unit
@@ -66,16 +66,16 @@ def measure_one(plan: Plan, request: Request, session: Session | None = None) ->
     closed here.
     """
     config = station_config(plan)
-    serial = _requested_serial(plan, config, request)
+    golden = config.golden
+    serial = unit_serial(plan, request)
     station_id = request.station_id or config.station_id or ""
     if station_id:
         check_station_id(station_id)
-    golden = config.golden
     reference = load_reference(golden, plan) if golden is not None else None
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
     with journal_in(out_dir) as journal, journalled_run(
-            journal, "measure", plan, fault_action="not measured",
+            journal, out_dir, "measure", plan, fault_action="not measured",
             station=station_id or None, resource=resource) as run, \
             _opened(session, plan, resource) as session:
         journal.update_run(run.id, instrument=session.identity_text)
@@ -83,7 +83,7 @@ def measure_one(plan: Plan, request: Request, session: Session | None = None) ->
         line = Line(plan, config, out_dir, journal, run.id, station_id, session, cal,
                     reference)
         if golden is not None and not request.golden:
-            _refuse_when_the_line_waits(line, golden, request)
+            _check_line_open(journal, plan, golden, cal, request)
         result = measure_unit(line, serial, golden=request.golden)
     return Outcome(result, Path(journal.where), run.id, resource)
 
@@ -94,8 +94,10 @@ def _opened(session: Session | None, plan: Plan,
     return contextlib.nullcontext(session) if session is not None else Session(plan, resource)
 
 
-def _requested_serial(plan: Plan, config: StationConfig, request: Request) -> str:
-    """The serial to measure: the golden unit's, or the request's checked serial."""
+def unit_serial(plan: Plan, request: Request) -> str:
+    """The serial to measure: the request's, checked against the plan's rule, or the
+    golden unit's; ``StationError`` saying why not (before any instrument is touched)."""
+    config = station_config(plan)
     golden = config.golden
     if request.golden:
         if golden is None:
@@ -109,12 +111,12 @@ def _requested_serial(plan: Plan, config: StationConfig, request: Request) -> st
     return serial
 
 
-def _refuse_when_the_line_waits(line: Line, golden: GoldenSpec, request: Request) -> None:
+def _check_line_open(journal: Any, plan: Plan, golden: Any, cal: Any,
+                     request: Request) -> None:
     """``LineStopped`` while the line is stopped or a golden check is due."""
-    cal = line.cal
-    created = cal.calset.created if cal is not None and cal.calset is not None else None
-    state = line_state(line.journal, line.plan.name, golden, cal_created=created)
-    golden_run = golden_command(line.plan, request)
+    created = cal.calset.created if cal.calset is not None else None
+    state = line_state(journal, plan.name, golden, cal_created=created)
+    golden_run = golden_command(plan, request)
     if state.stopped:
         raise LineStopped(f"line stopped: {state.stop_reason}; recalibrate or "
                           f"pass a golden re-check: run `{golden_run}`")

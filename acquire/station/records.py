@@ -2,7 +2,7 @@
 
 Values come from what was stored with each measurement: the key metrics and key figures
 (``metrics_json``) and the check results (``verdict_json``). Limits come from the checks
-themselves, so Cpk is always taken against the limits the unit was judged by:
+themselves, so Ppk and Cpk are always taken against the limits the unit was judged by:
 
 - a mask segment with one flat limit: its worst value against that limit (USL for an
   upper limit, LSL for a lower one); a sloped or two-sided segment: its worst margin
@@ -38,7 +38,9 @@ BASE_METRICS: tuple[tuple[str, str, str, tuple[str, ...]], ...] = (
 WORST_MARGIN = ("worst_margin", "worst mask margin", "")
 
 COLUMNS = ("id", "run_id", "plan", "station", "time_utc", "serial", "attempt", "golden",
-           "state", "verdict", "worst_margin", "cal_id", "instrument", "touchstone", "summary")
+           "state", "verdict", "judged", "worst_margin", "cal_id", "instrument", "touchstone",
+           "summary")
+DERIVED = ("judged",)  # 1 when the measurement has a verdict, 0 when it is unjudged
 
 
 @dataclass(frozen=True)
@@ -68,7 +70,8 @@ def query_records(journal: JournalStore, *, since_utc: str | None = None, plan: 
 
 
 def record(row: Any) -> Record:
-    rec = Record({name: row[name] for name in COLUMNS})
+    rec = Record({name: row[name] for name in COLUMNS if name not in DERIVED})
+    rec.fields["judged"] = int(row["verdict"] not in (None, "none"))
     metrics = _json(row["metrics_json"])
     for key, label, unit, path in BASE_METRICS:
         value = _dig(metrics, path)

@@ -86,15 +86,17 @@ def _first_of_each(records: Sequence[Record]) -> list[Record]:
 
 
 def _metric_stats(metric: Metric, records: Sequence[Record]) -> MetricStats:
-    values = [r.values[metric.key] for r in records if metric.key in r.values]
-    limits = {r.limits[metric.key] for r in records if metric.key in r.limits}
+    having = [r for r in records if metric.key in r.values]
+    values = [r.values[metric.key] for r in having]
+    limits = {r.limits[metric.key] for r in having if metric.key in r.limits}
     note = ""
     lsl = usl = None
     if len(limits) == 1:
         lsl, usl = next(iter(limits))
     elif len(limits) > 1:
-        note = "limits changed within the selection: no Cpk"
-    return MetricStats(metric, describe(values, lsl, usl), note)
+        note = "limits changed within the selection: no Ppk or Cpk"
+    return MetricStats(metric, describe(values, lsl, usl, [r["run_id"] for r in having]),
+                       note)
 
 
 def summary_lines(summaries: Sequence[PlanSummary]) -> list[str]:
@@ -108,9 +110,11 @@ def summary_lines(summaries: Sequence[PlanSummary]) -> list[str]:
             lines.append("  no metrics stored")
             lines.append("")
             continue
-        lines.append(f"  statistics over {s.basis}; Cpk = min(USL - mean, mean - LSL)/(3 sd)")
+        lines.append(f"  statistics over {s.basis}; Ppk = min(USL - mean, mean - LSL)/(3 sd), "
+                     "sd over all; Cpk the same with the pooled sd within runs")
         head = (f"  {'metric':{LABEL_WIDTH}s} {'unit':>5s} {'n':>4s} {'mean':>11s} {'sd':>11s} "
-                f"{'min':>11s} {'max':>11s} {'LSL':>11s} {'USL':>11s} {'Cpk':>7s}")
+                f"{'min':>11s} {'max':>11s} {'LSL':>11s} {'USL':>11s} {'Ppk':>7s} "
+                f"{'Cpk':>7s}")
         lines.append(head)
         for m in s.metrics:
             lines.append(_row(m))
@@ -128,7 +132,9 @@ def _row(m: MetricStats) -> str:
     label = m.metric.label
     if len(label) > LABEL_WIDTH:
         label = label[:LABEL_WIDTH - 3] + "..."
+    ppk = f"{'-':>7s}" if st.ppk is None else f"{st.ppk:7.3f}"
     cpk = f"{'-':>7s}" if st.cpk is None else f"{st.cpk:7.3f}"
     row = (f"  {label:{LABEL_WIDTH}s} {unit or '-':>5s} {st.n:4d} {num(st.mean)} "
-           f"{num(st.sd)} {num(st.min)} {num(st.max)} {num(st.lsl)} {num(st.usl)} {cpk}")
+           f"{num(st.sd)} {num(st.min)} {num(st.max)} {num(st.lsl)} {num(st.usl)} {ppk} "
+           f"{cpk}")
     return row + (f"  ({m.note})" if m.note else "")

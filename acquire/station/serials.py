@@ -11,10 +11,11 @@ stray escape sequence cannot upset the operator's terminal.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
+from typing import Any
 
 from acquire.station.errors import SerialRefused
+from acquire.station.pattern import compile_pattern
 
 DEFAULT_PATTERN = r"[A-Za-z0-9][A-Za-z0-9._+-]*"
 DEFAULT_MAX_LENGTH = 40
@@ -31,8 +32,9 @@ class SerialRule:
     max_length: int = DEFAULT_MAX_LENGTH
 
     @property
-    def regex(self) -> re.Pattern[str]:
-        return re.compile(self.pattern)
+    def regex(self) -> Any:
+        """The pattern compiled with RE2 (linear-time matching; see station/pattern.py)."""
+        return compile_pattern(self.pattern)
 
 
 def shown(text: str) -> str:

@@ -13,6 +13,8 @@ from acquire.station.records import Record, query_records
 from acquire.station.report import PlanSummary, summarise, summary_lines
 from acquire.utc import parse_iso, utc_now, utc_text
 
+MAX_SINCE_S = 100 * 365.25 * 86400.0  # a duration back of at most a century
+
 
 def parse_since(text: str, now: datetime | None = None) -> str:
     """``--since``: a duration back from now ("8 h") or an ISO 8601 date/time (local
@@ -20,22 +22,24 @@ def parse_since(text: str, now: datetime | None = None) -> str:
     from acquire.units import parse_quantity
 
     value = text.strip()
+    shown = ascii(value[:40]) + ("..." if len(value) > 40 else "")
     try:
-        seconds = parse_quantity(value, "time")
+        seconds = parse_quantity(value, "time") if len(value) <= 40 else None
     except ValueError:
         seconds = None
     if seconds is not None:
-        if seconds < 0:
-            raise StationError(f"--since {text!r}: a duration back must be positive")
+        if not 0 <= seconds <= MAX_SINCE_S:
+            raise StationError(f"--since {shown}: a duration back must be from 0 s to "
+                               f"{MAX_SINCE_S / 86400 / 365.25:g} years")
         return utc_text((now or utc_now()) - timedelta(seconds=seconds))
     try:
         moment = parse_iso(value)
-    except ValueError:
-        raise StationError(f"--since {text!r}: give a date or time such as 2026-12-02 or "
+        if moment.tzinfo is None:
+            moment = moment.astimezone()  # naive: the machine's local time
+        return utc_text(moment)
+    except (ValueError, OverflowError, OSError):
+        raise StationError(f"--since {shown}: give a date or time such as 2026-12-02 or "
                            "2026-12-02T06:00, or a duration back such as '8 h'") from None
-    if moment.tzinfo is None:
-        moment = moment.astimezone()  # naive: the machine's local time
-    return utc_text(moment)
 
 
 @dataclass

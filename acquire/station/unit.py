@@ -10,20 +10,21 @@ leaves half a record; a crash leaves at worst a pending row that ``reconcile`` s
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
 
 from acquire.capture.calchoice import CalChoice
-from acquire.capture.files import Stored, plan_path, store
+from acquire.capture.files import Stored, plan_path
 from acquire.capture.judge import Capture, capture
-from acquire.capture.records import journal_stored
+from acquire.capture.records import store_journalled
 from acquire.capture.session import Session
 from acquire.journal import JournalStore, Planned
 from acquire.plan import Plan
 from acquire.station.config import StationConfig
 from acquire.station.errors import GoldenError
 from acquire.station.figures import KeyFigures, key_figures, with_figures
-from acquire.station.golden import GoldenResult, compare
+from acquire.station.golden import GoldenResult, compare, golden_verdict
 from acquire.station.interrupts import deferred_interrupt
 from acquire.sweep import Sweep
 from drivers.errors import SweepdError
@@ -67,9 +68,17 @@ class UnitResult:
         return self.capture.verdict.exit_code
 
 
-def measure_unit(line: Line, serial: str, *, golden: bool = False) -> UnitResult:
+# Asked after the sweep, before anything is stored: None keeps the capture, a text
+# refuses it (the reason, journalled with the missed measurement).
+Confirm = Callable[[Capture], "str | None"]
+
+
+def measure_unit(line: Line, serial: str, *, golden: bool = False,
+                 confirm: Confirm | None = None) -> UnitResult | None:
     """Sweep, judge, store and journal one unit; instrument errors propagate unrecorded
-    (the caller journals them as a fault and a missed measurement)."""
+    (the caller journals them as a fault and a missed measurement). ``confirm`` may
+    refuse the capture (a unit that was not swapped): it is journalled as missed, nothing
+    is stored, and None is returned."""
     if line.session is None or line.cal is None:
         raise SweepdError("station: no instrument session or calibration choice is open")
     plan = line.plan
@@ -83,14 +92,19 @@ def measure_unit(line: Line, serial: str, *, golden: bool = False) -> UnitResult
     result = None
     if golden:
         result = _golden_result(line, cap, serial)
-        cap.verdict = replace(cap.verdict,
-                              metrics={**cap.verdict.metrics, "golden_check": result.to_dict()})
+        cap.verdict = golden_verdict(cap.verdict, result)
+    refused = confirm(cap) if confirm is not None else None
+    if refused is not None:
+        with deferred_interrupt():
+            line.journal.record_missed(line.run_id, [seq], f"not stored: {refused}",
+                                       serial=serial)
+        return None
     with deferred_interrupt():
         path = plan_path(cap, plan, line.out_dir, serial=serial, index=seq,
                          station=line.station_id)
         planned = line.journal.plan_measurement(line.run_id, seq, path, serial=serial,
                                                 golden=golden)
-        stored = _store(line, planned, cap)
+        stored = store_journalled(line.journal, planned, cap, line.plan)
         if result is not None:
             line.journal.record_golden(
                 line.run_id, serial, result.passed,
@@ -108,19 +122,19 @@ def _golden_result(line: Line, cap: Capture, serial: str) -> GoldenResult:
     try:
         return compare(cap.sweep, line.reference, spec, line.plan.measure)
     except GoldenError as exc:
-        return GoldenResult(False, str(exc), 0)
+        return GoldenResult(False, str(exc), 0, reference=spec.reference.name, serial=serial)
 
 
-def _store(line: Line, planned: Planned, cap: Capture) -> Stored:
-    from acquire.errors import StorageError
+def save_fail_plot(result: UnitResult, plan: Plan, why: str | None) -> Path:
+    """A small plot of a failing unit with the plan's masks, written as a new PNG beside
+    its Touchstone file (same name, .png); an existing file is never replaced."""
+    from acquire.checks import MaskCheck
+    from acquire.plotting import figure_bytes
+    from acquire.plotting.page import render_compact
+    from acquire.storage import write_new
 
-    try:
-        stored = store(cap, line.plan, planned.touchstone)
-    except (OSError, SweepdError) as exc:
-        reason = getattr(exc, "strerror", None) or str(exc)
-        line.journal.fail_measurement(planned, f"not stored: {reason}")
-        if isinstance(exc, SweepdError):
-            raise
-        raise StorageError(f"cannot store {planned.touchstone}: {reason}") from None
-    journal_stored(line.journal, planned, cap, stored)
-    return stored
+    masks = [c.mask for c in plan.checks if isinstance(c, MaskCheck)]
+    touchstone = result.stored.touchstone
+    fig = render_compact(result.capture.sweep, masks=masks,
+                         title=f"{plan.name}  {result.verdict.upper()}", note=why)
+    return write_new(touchstone.with_suffix(".png"), figure_bytes(fig, "png", dpi=90))

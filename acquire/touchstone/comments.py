@@ -19,6 +19,8 @@ import re
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
+from acquire.safejson import loads_bounded
+
 MARKER = "written by sweepd"
 _KEY = re.compile(r"[A-Za-z0-9_.-]+\Z")
 _META_LINE = re.compile(r"([A-Za-z0-9_.-]+): (.*)\Z")
@@ -58,10 +60,6 @@ def comment_text(raw: str) -> str:
     return text.rstrip()
 
 
-def _no_constant(name: str) -> Any:
-    raise ValueError(f"{name} is not JSON")
-
-
 def split_meta(comments: Iterable[str]) -> tuple[dict[str, Any], list[str]]:
     """Recover metadata from leading comments; return (meta, remaining comments)."""
     texts = list(comments)
@@ -74,7 +72,7 @@ def split_meta(comments: Iterable[str]) -> tuple[dict[str, Any], list[str]]:
         if match is None:
             break
         try:
-            meta[match.group(1)] = json.loads(match.group(2), parse_constant=_no_constant)
+            meta[match.group(1)] = loads_bounded(match.group(2))
         except ValueError:
             break
         k += 1

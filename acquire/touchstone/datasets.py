@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .limits import MAX_FREQUENCIES, MAX_NUMBERS, count_numbers
 from .numparse import (
     NumberError,
     check_charset,
@@ -65,6 +66,10 @@ def read_section(data: bytes, start: int, end: int, first_line: int, per_set: in
                        for m in _OPTION.finditer(section)]
             section = _OPTION.sub(b"", section)
         data, start, end = section, 0, len(section)
+    numbers = count_numbers(data, start, end)
+    if numbers > MAX_NUMBERS:
+        raise SectionError(first_line, f"{numbers:,} numbers: sweepd reads at most "
+                                       f"{MAX_NUMBERS:,} in a file")
     shifts = np.zeros(per_set, dtype=np.int64)
     shifts[0] = unit_exp
     sets = _regular(data, start, end, first_line, per_set, shifts)
@@ -75,6 +80,9 @@ def read_section(data: bytes, start: int, end: int, first_line: int, per_set: in
         except NumberError as exc:
             raise SectionError(first_line + exc.line, exc.message) from None
         sets = _general(section, first_line, per_set, unit_exp, split_noise, what)
+    if len(sets.values) > MAX_FREQUENCIES:
+        raise SectionError(first_line, f"{len(sets.values):,} {what}s: sweepd reads at most "
+                                       f"{MAX_FREQUENCIES:,} frequencies")
     sets.comments, sets.option_lines = comments, options
     _check_frequencies(sets.values[:, 0], sets.lines, what)
     if sets.noise is not None:

@@ -14,6 +14,7 @@ import re
 from dataclasses import dataclass, field
 
 from .header import split_keyword
+from .limits import MAX_FREQUENCIES, MAX_PORTS
 from .numparse import is_number
 
 NAMES = {
@@ -152,9 +153,15 @@ def _apply(kw: Keywords, no: int, key: str, arg: str, name_ports: int | None) ->
 
 
 def _count(no: int, key: str, arg: str) -> int:
-    if not arg.isdigit() or int(arg) < 1:
-        raise HeaderError(no, f"{display(key)} must be an integer >= 1, got {arg!r}")
-    return int(arg)
+    limit = MAX_PORTS if key == "number of ports" else MAX_FREQUENCIES
+    digits = arg.lstrip("0")
+    if not arg.isdigit() or not digits:
+        shown = arg if len(arg) <= 20 else arg[:17] + "..."
+        raise HeaderError(no, f"{display(key)} must be an integer >= 1, got {shown!r}")
+    if len(digits) > 9 or int(digits) > limit:
+        shown = digits if len(digits) <= 20 else f"a number of {len(digits)} digits"
+        raise HeaderError(no, f"{display(key)} is {shown}: sweepd reads at most {limit:,}")
+    return int(digits)
 
 
 def _reference_values(kw: Keywords, no: int, text: str) -> bool:

@@ -23,6 +23,7 @@ from .convert import normalisation
 from .datasets import NOISE_NUMBERS, DataSets, SectionError, read_section
 from .header import OptionLine, parse_option_line, split_keyword
 from .keywords import HeaderError, Keywords, display, read_keywords
+from .limits import MAX_FILE_BYTES, ports_problem
 from .model import NoiseData, TouchstoneFile
 
 _EXTENSION = re.compile(r"\.[szyhg](\d+)p\Z", re.IGNORECASE)
@@ -41,9 +42,13 @@ def read_touchstone(path: Path | str, *, strict: bool = False) -> TouchstoneFile
     """Read a file; version 1 port counts come from the ``.sNp`` extension."""
     path = Path(path)
     try:
-        data = path.read_bytes()
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_FILE_BYTES + 1)
     except OSError as exc:
         raise TouchstoneError(f"touchstone {path}: cannot read ({exc.strerror or exc})") from None
+    if len(data) > MAX_FILE_BYTES:
+        raise TouchstoneError(f"touchstone {path}: larger than {MAX_FILE_BYTES >> 20} MiB, "
+                              "the most sweepd reads")
     return _Parser(data, str(path), ports_from_name(path.name), strict, True).parse()
 
 
@@ -58,6 +63,9 @@ class _Parser:
     def __init__(self, data: bytes, name: str, ports: int | None, strict: bool,
                  from_file: bool) -> None:
         self.name, self.ports, self.strict, self.from_file = name, ports, strict, from_file
+        problem = ports_problem(ports) if ports is not None else None
+        if problem:
+            raise self.error(0, f"{problem} (from the file name)")
         if b"\r" in data:
             data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
         self.data = data
@@ -225,6 +233,9 @@ class _Parser:
                 break
             count, lines = count + found, lines + 1
         ports = math.isqrt(max(count - 1, 0) // 2)
+        if ports_problem(ports):
+            raise self.error(data_line, f"the first data set holds {count} numbers; "
+                                        f"{ports_problem(ports)}")
         if count % 2 == 0 or 1 + 2 * ports * ports != count or ports == 0:
             raise self.error(data_line, f"cannot tell the port count: the first data set holds "
                                         f"{count} numbers (name the file .sNp)")

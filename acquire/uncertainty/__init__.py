@@ -6,7 +6,7 @@
 - ``propagate``: first-order propagation to each point of a corrected reflection
   (EURAMET cg-12 residual terms, GUM law of propagation), |Γ| with U (k = 2), return loss
   and SWR as intervals;
-- ``transmission``: |S21| after a thru or enhanced-response calibration;
+- ``transmission``: |S21| after a one-path-two-port (enhanced-response) calibration;
 - ``montecarlo``: the full error model drawn trial by trial (used by the tests);
 - ``decision``: simple and guarded acceptance (ILAC-G8:09/2019, ISO 14253-1:2017);
 - ``capture``: the uncertainty of one capture (JSON block, Touchstone comment lines);

@@ -16,6 +16,8 @@ the Monte Carlo both assume (JCGM 100:2008, GUM, 4.3.7 for bounds taken as recta
   applies to every reading. Normal, circular.
 - ``drift_per_hour`` × the calibration's age: RMS |ΔΓ| of drift since the calibration
   (site data, e.g. from the soak history). Normal, circular.
+- ``thru_error``: ± bound of the thru's relative |S21| against its model (two-port
+  only), rectangular; 0 by default (a flush thru is exact).
 
 The defaults are common practice for a careful coaxial bench and illustrative only: the
 load and phase figures are those of ``acquire.calibration.residual``; repeatability
@@ -50,6 +52,7 @@ class Budget:
     drift_per_hour: float = DEFAULT_DRIFT_PER_HOUR
     cal_age_s: float = 0.0
     noise_source: str = "default"
+    thru_error: float = 0.0  # ± relative |S21| tolerance of the thru's model (rectangular)
 
     @property
     def drift(self) -> float:
@@ -72,6 +75,7 @@ class Budget:
             "drift_per_hour_rms": self.drift_per_hour,
             "cal_age_s": self.cal_age_s,
             "drift_rms": self.drift,
+            "thru_error": self.thru_error,
             "coverage_factor": COVERAGE_FACTOR,
         }
 

@@ -1,8 +1,10 @@
 """The uncertainty of one capture: built from its cal set, kit and plan; JSON and comments.
 
 ``sweep_uncertainty`` needs a full one-port correction of the reflection (``one-port``
-or ``enhanced-response``): the other methods leave directivity or source match
-uncorrected, and an uncorrected sweep has no budget at all; then the result says why
+or ``one-path-two-port``, once called ``enhanced-response``): the normalisations leave
+directivity or source match uncorrected, the full two-port methods (``two-port``,
+``two-port-unknown-thru``) are not modelled yet, and an uncorrected sweep has no budget
+at all; then the result says why
 (``unavailable``) and carries no points. Trace noise comes from the cal set's raw load
 reading (``budget.noise_from_load``) scaled to the sweep's IF bandwidth, power and
 averaging, unless the plan states a level; drift grows with the cal set's age.
@@ -10,7 +12,9 @@ averaging, unless the plan states a level; drift grows with the cal set's age.
 
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -21,7 +25,10 @@ from acquire.uncertainty.decision import SIMPLE, DecisionRule
 from acquire.uncertainty.propagate import STANDARDS, ReflectionUncertainty, reflection_uncertainty
 from acquire.units import format_frequency
 
-FULL_REFLECTION = ("one-port", "enhanced-response")
+ONE_PATH = ("one-path-two-port", "enhanced-response")  # the second is the older name
+FULL_REFLECTION = ("one-port", *ONE_PATH)
+NOT_MODELLED = ("two-port", "two-port-unknown-thru")
+_PARAMS = ("S11", "S22", "S33", "S44")
 FORMAT = "sweepd-uncertainty"
 VERSION = 1
 
@@ -34,6 +41,7 @@ class SweepUncertainty:
     reflection: dict[str, ReflectionUncertainty] = field(default_factory=dict)
     budget: Budget | None = None
     unavailable: str | None = None
+    transmission: dict[str, Any] = field(default_factory=dict)  # TransmissionUncertainty
 
     def for_parameter(self, parameter: str) -> ReflectionUncertainty | None:
         return self.reflection.get(parameter)
@@ -42,15 +50,21 @@ class SweepUncertainty:
         """Why ``parameter`` has no uncertainty (for error messages)."""
         if self.unavailable:
             return self.unavailable
-        return f"no uncertainty model for {parameter} (only the corrected reflection has one)"
+        return (f"no uncertainty model for {parameter} (the corrected reflection has one, and "
+                "S21 after a one-path-two-port calibration)")
 
     def interval(self, parameter: str, quantity: str, guard: float = 1.0
                  ) -> tuple[np.ndarray, np.ndarray] | None:
         """Value ± guard·U of a quantity on the sweep grid; None when there is no model."""
         unc = self.reflection.get(parameter)
-        if unc is None:
+        if unc is not None:
+            return replace(unc, expanded=unc.expanded * guard).interval(quantity)
+        trans = self.transmission.get(parameter)
+        if trans is None or quantity != "magnitude_db":
             return None
-        return replace(unc, expanded=unc.expanded * guard).interval(quantity)
+        lo = np.maximum(trans.s21_abs - guard * trans.expanded, 0.0)
+        with np.errstate(divide="ignore"):
+            return 20 * np.log10(lo), 20 * np.log10(trans.s21_abs + guard * trans.expanded)
 
     def to_dict(self, points: bool = True) -> dict[str, Any]:
         """JSON block: budget, per-parameter summary and (``points``) the U arrays."""
@@ -64,6 +78,14 @@ class SweepUncertainty:
             if points:
                 block["expanded"] = [float(x) for x in unc.expanded]
                 block["near_match"] = [bool(x) for x in unc.near_match]
+            out["parameters"][name] = block
+        for name, trans in self.transmission.items():
+            k = int(np.argmax(trans.expanded))
+            block = {"quantity": f"{name.lower()}_abs", "max_expanded": float(trans.expanded[k]),
+                     "max_at_hz": float(self.freq_hz[k]),
+                     "max_load_match_bias": float(trans.bias.max())}
+            if points:
+                block["expanded"] = [float(x) for x in trans.expanded]
             out["parameters"][name] = block
         return out
 
@@ -82,6 +104,12 @@ class SweepUncertainty:
                          f"{format_frequency(s['at_best_match_hz'])} |{name}| "
                          f"{s['at_best_match_gamma_abs']:.4f} +/- "
                          f"{s['at_best_match_expanded']:.4f}, {rl_text}")
+        for name, trans in self.transmission.items():
+            k = int(np.argmax(trans.expanded))
+            lines.append(f"sweepd uncertainty (95 %) |{name}|: max U {trans.expanded[k]:.4f} at "
+                         f"{format_frequency(float(self.freq_hz[k]))} (|{name}| "
+                         f"{trans.s21_abs[k]:.4f}; load-match bias up to "
+                         f"{float(trans.bias.max()):.4f})")
         if self.budget is not None:
             b = self.budget
             lines.append(f"  budget: load {b.load_error:.4f}, open/short phase "
@@ -95,11 +123,47 @@ def unavailable(sweep: Sweep, why: str) -> SweepUncertainty:
     return SweepUncertainty(np.asarray(sweep.freq_hz), unavailable=why)
 
 
+def from_summary(sweep: Sweep, touchstone: Path) -> SweepUncertainty:
+    """The U stored in the capture JSON beside ``touchstone`` (``sweepd check``)."""
+    path = touchstone.with_suffix(".json")
+    try:
+        block = json.loads(path.read_text())["uncertainty"]
+    except FileNotFoundError:
+        return unavailable(sweep, f"no capture JSON {path.name} beside the file")
+    except (OSError, ValueError, KeyError, TypeError):
+        return unavailable(sweep, f"{path}: no readable uncertainty block")
+    if not isinstance(block, dict) or not block.get("available"):
+        why = block.get("unavailable") if isinstance(block, dict) else None
+        return unavailable(sweep, f"{path.name}: {why or 'no uncertainty'}")
+    out = {}
+    for name, entry in (block.get("parameters") or {}).items():
+        u = entry.get("expanded") if isinstance(entry, dict) else None
+        if not isinstance(u, list) or len(u) != sweep.points or name not in _PARAMS[:sweep.ports]:
+            continue
+        try:
+            expanded = np.asarray(u, np.float64)
+        except (TypeError, ValueError):
+            continue
+        if not np.all(np.isfinite(expanded) & (expanded >= 0)):
+            continue
+        g = np.abs(sweep.param(name))
+        near = np.asarray(entry.get("near_match") or [], bool)
+        near = near if near.shape == g.shape else np.zeros(g.shape, bool)
+        out[name] = ReflectionUncertainty(g, expanded / 2, expanded, near,
+                                          np.zeros((g.size, 2, 2)))
+    if not out:
+        return unavailable(sweep, f"{path.name}: its uncertainty does not fit this sweep")
+    return SweepUncertainty(np.asarray(sweep.freq_hz), out)
+
+
 def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
                       rule: DecisionRule = SIMPLE) -> SweepUncertainty:
     """The uncertainty of a corrected ``sweep`` from its ``calset`` and cal ``kit``."""
     if calset is None or kit is None:
         return unavailable(sweep, "the sweep is uncorrected")
+    if calset.method in NOT_MODELLED:
+        return unavailable(sweep, f"the uncertainty of a {calset.method} calibration is not "
+                                  "modelled yet")
     if calset.method not in FULL_REFLECTION:
         return unavailable(sweep, f"a {calset.method} calibration leaves directivity or source "
                                   "match uncorrected")
@@ -113,7 +177,36 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
     models = {k: kit.reflection(names[k], f) for k in STANDARDS}
     budget = _budget(rule, calset, sweep, terms, names["load"], param)
     unc = reflection_uncertainty(sweep.param(param), models, budget, terms.source_match)
-    return SweepUncertainty(f, {param: unc}, budget)
+    trans = {}
+    if sweep.ports > 1:
+        two = calset.model.transmission.get("S21")
+        if calset.method not in ONE_PATH or port != 1 or two is None:
+            return unavailable(sweep, f"a {calset.method} calibration of a two-port "
+                                      "measurement leaves port 2's load match unknown")
+        from acquire.uncertainty.transmission import with_load_match
+
+        unc = with_load_match(unc, sweep, two.load_match)
+        s21 = _transmission(sweep, calset, kit, models, budget)
+        if s21 is not None:
+            trans["S21"] = s21
+    return SweepUncertainty(f, {param: unc}, budget, transmission=trans)
+
+
+def _transmission(sweep: Sweep, calset: Any, kit: Any, models: dict[str, np.ndarray],
+                  budget: Budget) -> Any:
+    from acquire.uncertainty.transmission import TwoPortSetup, transmission_uncertainty
+
+    terms = calset.model.transmission.get("S21")
+    thru = [n for n in kit.names_of_kind("thru") if f"{n}.S21" in calset.raw]
+    if terms is None or not thru:
+        return None
+    f = np.asarray(sweep.freq_hz)
+    setup = TwoPortSetup(
+        calset.model.reflection["S11"], terms.transmission_tracking, terms.load_match, models,
+        kit.thru_s(thru[0], f),
+        (sweep.param("S11"), sweep.param("S21"), sweep.param("S21"), np.zeros(f.size)),
+        np.abs(sweep.param("S22")))  # reciprocal device; S22 uncorrected: raw |S22| bound
+    return transmission_uncertainty(setup, budget, budget.thru_error)
 
 
 def _standard_names(calset: Any, kit: Any, param: str) -> dict[str, str] | None:

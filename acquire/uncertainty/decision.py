@@ -22,6 +22,7 @@ A plan chooses the rule in its ``decision:`` section::
         repeatability: -54 dB  # RMS |dG| of one reconnection
         noise: auto            # from the calibration's load reading, or a level
         drift_per_hour: 0.0005
+        thru_error: 0          # two-port: the thru's |S21| within +/- this (relative)
 
 With ``guarded``, every point a limit judges carries the interval value ± w; a segment
 fails if any point's interval lies wholly outside, else is indeterminate if any point's
@@ -44,7 +45,7 @@ RULES = ("simple", "guarded")
 PASS, INDETERMINATE, FAIL = 0, 1, 2
 STATES = ("pass", "indeterminate", "fail")
 BUDGET_KEYS = ("load_error", "phase_error", "magnitude_error", "repeatability", "noise",
-               "drift_per_hour")
+               "drift_per_hour", "thru_error")
 
 
 @dataclass(frozen=True)
@@ -90,7 +91,7 @@ def _budget(node: Node) -> tuple[Budget, bool]:
     changes: dict[str, Any] = {}
     for key, attr in (("load_error", "load_error"), ("repeatability", "repeatability"),
                       ("magnitude_error", "magnitude_error"),
-                      ("drift_per_hour", "drift_per_hour")):
+                      ("drift_per_hour", "drift_per_hour"), ("thru_error", "thru_error")):
         if node[key].present:
             changes[attr] = _level(node[key])
     if node["phase_error"].present:

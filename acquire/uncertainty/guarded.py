@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 
 from acquire.errors import MaskError
+from acquire.metrics import bandwidth
 from acquire.uncertainty.capture import SweepUncertainty
 from acquire.uncertainty.decision import (
     FAIL,
@@ -23,6 +24,13 @@ from acquire.uncertainty.decision import (
     point_states,
     runs,
 )
+from acquire.units import format_frequency
+from drivers.errors import SweepdError
+
+
+class GuardError(SweepdError):
+    """A check cannot be judged with a guard band (no uncertainty for its parameter)."""
+
 
 _BIG = 1e300  # stands for an open interval end (RL above a perfect match) in interpolation
 
@@ -88,6 +96,37 @@ def _guard_segment(mask: str, s: Any, unc: SweepUncertainty | None, rule: Decisi
         int((states == FAIL).sum()),
         tuple(tuple(r) for r in runs(s.freq_hz, states == INDETERMINATE)),
         worst if worst is None or abs(worst) < _BIG / 10 else None)
+
+
+def guarded_bandwidth(check: Any, base: Any, sweep: Any, rule: DecisionRule,
+                      unc: SweepUncertainty | None) -> Any:
+    """A bandwidth check under guarded acceptance: the band where |S| + w stays below
+    the threshold is surely there, the band where |S| − w does is possibly there; pass
+    if the sure band is wide enough, fail if even the possible band is not, else
+    indeterminate. Both are taken around the resonance the simple check found."""
+    if base.verdict == "error" or "center_hz" not in base.details:
+        return base
+    interval = unc.interval(check.parameter, "magnitude_db", rule.guard) if unc else None
+    if interval is None:
+        why = unc.why_not(check.parameter) if unc else "the sweep has no uncertainty"
+        raise GuardError(f"{check.name}: guarded acceptance needs the uncertainty of "
+                         f"{check.parameter}, but {why}")
+    widths = []
+    for level_db in (interval[1], interval[0]):  # sure (upper |S|), then possible (lower)
+        mag = 10 ** (np.maximum(level_db, -300.0) / 20)
+        bw = bandwidth(sweep.freq_hz, mag.astype(np.complex128), swr_max=check.swr_max,
+                       return_loss_min_db=check.return_loss_min_db,
+                       around_hz=base.details["center_hz"])
+        widths.append(bw.width_hz if bw.band is not None else 0.0)
+    sure, possible = widths
+    need = check.at_least_hz
+    verdict = "pass" if sure >= need else "fail" if possible < need else "indeterminate"
+    details = {**base.details, "decision": rule.to_dict(),
+               "guarded": {"verdict": verdict, "rule": "guarded", "sure_hz": sure,
+                           "possible_hz": possible}}
+    summary = (f"{check.name} {verdict}: surely {format_frequency(sure)}, possibly "
+               f"{format_frequency(possible)}, required {format_frequency(need)}")
+    return replace(base, verdict=verdict, summary=summary, details=details)
 
 
 def guarded_result(check: Any, base: Any, rule: Any, uncertainty: Any) -> Any:

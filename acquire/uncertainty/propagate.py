@@ -36,7 +36,7 @@ from typing import Any
 
 import numpy as np
 
-from acquire.jsonsafe import finite_or_none
+from acquire.jsonclean import finite_or_none
 from acquire.uncertainty.budget import COVERAGE_FACTOR, Budget
 
 BIVARIATE_95 = float(np.sqrt(-2.0 * np.log(0.05)))  # 2.448: √χ²₂(0.95)
