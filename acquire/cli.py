@@ -35,7 +35,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
                 "instrument"),
 }
 # Commands that talk to an instrument get --io-log (drivers.iolog); -vv shows the same.
-IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe", "dialect"}
+# (``dialect check`` adds it to its own sub-command.)
+IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe"}
 IO_LOG_HELP = ("append every message sent to and received from the instrument to FILE, with "
                "monotonic times and byte counts (binary payloads summarised)")
 
@@ -115,15 +116,9 @@ def _error(message: str) -> None:
 
 
 def _check_resource(args: argparse.Namespace) -> bool:
-    """``--resource`` follows the rules plans follow; True when refused (with --json)."""
-    from acquire.commands.jsonout import run_with_json_errors
-    from drivers.resources import parse_resource
-
-    def check() -> int:
-        parse_resource(args.resource, where="--resource")
-        return EXIT_OK
-
-    return run_with_json_errors(args, args.command, check) != EXIT_OK
+    """``--resource`` follows the rules plans follow; True when refused (acquire.commands.
+    resource_option, loaded like a command so that this module stays light)."""
+    return _module("resource_option").run(args) != EXIT_OK
 
 
 def _module(name: str):

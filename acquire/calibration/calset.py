@@ -373,6 +373,6 @@ def _parse_time(text: str) -> datetime:
         return parse_utc(text)
     except (AttributeError, TypeError, ValueError):
         raise ValueError(f"created_utc must look like 2026-12-02T06:10:00.000000Z, "
-                         f"got {text!r}") from None
+                         f"got {show(text)}") from None
 
 

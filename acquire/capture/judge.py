@@ -6,13 +6,12 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-from acquire.calibration import load_kit
 from acquire.capture.calchoice import CalChoice
 from acquire.capture.session import Session
 from acquire.checks import Verdict, evaluate_checks
 from acquire.plan import Plan
 from acquire.sweep import Sweep
-from acquire.uncertainty.capture import sweep_uncertainty, unavailable
+from acquire.uncertainty.capture import cached_kit, sweep_uncertainty, unavailable
 from acquire.uncertainty.decision import SIMPLE
 
 
@@ -46,5 +45,5 @@ def capture_uncertainty(plan: Plan, calset: Any | None, sweep: Sweep) -> Any:
     """The per-point uncertainty of a capture (acquire/uncertainty/capture.py)."""
     if calset is None or plan.calibration is None:
         return unavailable(sweep, "the sweep is uncorrected")
-    return sweep_uncertainty(sweep, calset, load_kit(plan.calibration.kit),
+    return sweep_uncertainty(sweep, calset, cached_kit(plan.calibration.kit),
                              plan.decision or SIMPLE)

@@ -42,6 +42,10 @@ class RunResult:
         verdict = self.capture.verdict
         if verdict.results:
             lines += [verdict.summary_line(), verdict.metrics_line()]
+        unc = self.capture.uncertainty
+        if unc is not None and not unc.unavailable:
+            lines += [text.removeprefix("sweepd ") for text in unc.comment_lines()
+                      if text.startswith("sweepd ")]
         return "\n".join(lines)
 
 

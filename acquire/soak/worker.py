@@ -175,15 +175,7 @@ class SoakWorker:
         job.write_state(state="running", run_id=self.run_id, start_epoch=start,
                         started_utc=state.get("started_utc") or utc_text(), reason=None,
                         pid=os.getpid())
-        counts = history.counts(journal, self.run_id)
-        self.tally = {**counts.by_state, "missed": counts.missed}
-        self.next_index = counts.next_seq
-        held = history.open_hold(journal, self.run_id)
-        if held is not None:  # stopped while held: the same hold goes on until space returns
-            self.hold = {"id": int(held["id"]), "first_seq": int(held["first_seq"]),
-                         "reason": str(held["reason"])}
-            self.next_index = max(self.next_index, self.hold["first_seq"])
-            self.state, self.reason = "held", str(held["reason"])
+        self._resume_counts(journal)
         self._persisted_alarms = sorted(state.get("alarms_active", []))
         self.alarms = AlarmBook(self.spec.alarms, job.id, set(self._persisted_alarms),
                                 on_command_failure=self._alarm_command_failed)
@@ -202,6 +194,22 @@ class SoakWorker:
         log.info("job %s: %s run %d at sweep %d (%s)", job.id,
                  "resuming" if run is not None else "starting", self.run_id, self.next_index,
                  job.resource)
+
+    def _resume_counts(self, journal: JournalStore) -> None:
+        """Counters, the next index and a hold left open by a stop, from the journal."""
+        counts = history.counts(journal, self.run_id)
+        self.tally = {**counts.by_state, "missed": counts.missed}
+        self.next_index = counts.next_seq
+        held = history.open_hold(journal, self.run_id)
+        if held is None:
+            return
+        # stopped while held: the same hold goes on until space returns
+        reason = str(held["reason"])
+        self.hold = {"id": int(held["id"]), "first_seq": int(held["first_seq"]),
+                     "reason": reason}
+        self.next_index = max(self.next_index, self.hold["first_seq"])
+        self.state, self.reason = "held", reason
+        self.job.write_state(state="held", reason=reason)
 
     def _close(self) -> None:
         if self.link is not None:
