@@ -1,18 +1,16 @@
 """Message transport to one instrument: pyvisa with the pyvisa-py backend.
 
-Resources are VISA resource strings checked by ``drivers.resources``: raw socket
-``TCPIP::host::port::SOCKET``, HiSLIP ``TCPIP::host::hislip0[,port]::INSTR``, VXI-11
-``TCPIP::host[,port]::INSTR``, serial ``ASRL<device>::INSTR`` (pyserial) and USB-TMC.
-The transport frames messages (terminators, IEEE 488.2 blocks), keeps connect and I/O
-deadlines apart (seconds, monotonic clock) and turns every pyvisa, pyserial and OS failure
-into a ``drivers.errors`` exception whose one-line message names the resource and the
-command.
+Resources are VISA resource strings checked by ``drivers.resources`` (socket, HiSLIP,
+VXI-11, serial, USB-TMC). The transport frames messages (terminators, IEEE 488.2 blocks),
+keeps connect and I/O deadlines apart (seconds, monotonic clock) and turns every pyvisa,
+pyserial and OS failure into a ``drivers.errors`` exception whose one-line message names
+the resource and the command.
 
-After a timeout or a malformed reply the input may still hold (or later receive) the rest
-of a reply, so the transport resynchronises before the next command (``resync``): it drops
-input until the line has been quiet for a moment; after a timeout it first waits for the
-late reply and, on a socket, reconnects if none comes. A late reply is never read as the
-answer to the next query. Not thread-safe: one owner, one command in flight.
+After a timeout or a malformed reply the transport resynchronises before the next command
+(``resync``): it drops input until the line has been quiet for a moment; after a timeout
+it first waits for the late reply and, on a socket, reconnects if none comes (HiSLIP and
+VXI-11 always reconnect). A late reply is never read as the answer to the next query.
+Not thread-safe: one owner, one command in flight.
 """
 
 from __future__ import annotations
@@ -390,9 +388,8 @@ class Transport(BlockReading):
     def _lost(self, command: str, exc: LinkClosed) -> Any:
         self._io(f"lost ({exc.args[0]})")
         self.close()
-        raise ConnectionLost(
-            f"instrument {self.resource}: connection lost during '{command}': {exc.args[0]}"
-        ) from None
+        where = f"instrument {self.resource}: connection lost during '{command}'"
+        raise ConnectionLost(f"{where}: {exc.args[0]}") from None
 
 
 def _quiet_close(resource: Any) -> None:

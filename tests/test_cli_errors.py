@@ -145,7 +145,7 @@ def test_measure_json_prints_one_object_even_on_an_unexpected_exception(
                     "dialect: scpi-generic}\n"
                     "stimulus: {start: 2.3 GHz, stop: 2.6 GHz, points: 31, power: -10 dBm, "
                     "if_bandwidth: 1 kHz}\nmeasure: S11\n")
-    monkeypatch.setattr("acquire.station.single.measure_one", _explode)
+    monkeypatch.setattr("acquire.station.measure.measure_one", _explode)
     code = main(["measure", str(plan), "--serial", "PA-0001", "--json"])
     out, err = capsys.readouterr()
     doc = json.loads(out)

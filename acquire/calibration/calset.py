@@ -44,7 +44,7 @@ import numpy as np
 from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
 from acquire.calibration.methods import ErrorModel, canonical_name
 from acquire.errors import CalError
-from acquire.jsonsafe import json_safe
+from acquire.jsonclean import json_safe
 from acquire.storage import safe_component, write_new
 from acquire.sweep import Sweep
 from acquire.utc import compact_utc, minute_text, parse_utc, utc_text

@@ -102,7 +102,8 @@ class Walker:
                                note="the error queue as found, drained"))
         self._queries()
         for name, spec in self.d.settings.items():
-            self._restore_setting(name, spec)
+            if spec.fixed is None:  # a fixed setting has no commands to walk
+                self._restore_setting(name, spec)
         self._formats()
         self._sweep()
         self._switch()
@@ -115,6 +116,8 @@ class Walker:
 
     def _queries(self) -> None:
         for name, spec in self.d.settings.items():
+            if spec.query is None:
+                continue  # fixed by the dialect: nothing to ask
             self.ask(f"settings.{name}.query", spec.query.text)
             if spec.state_query is not None:
                 self.ask(f"settings.{name}.state.query", spec.state_query.text)

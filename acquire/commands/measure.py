@@ -32,7 +32,7 @@ def run(args: argparse.Namespace) -> int:
     import sys
 
     from acquire.commands import cli_path
-    from acquire.station.single import Request, measure_one, result_dict, result_line
+    from acquire.station.measure import Request, measure_one, result_dict, result_line
     from drivers.errors import SweepdError
 
     plan_name = None

@@ -296,7 +296,7 @@ def _instruments(ser: history.Series, run: dict[str, Any], resource: str) -> lis
 def _calibrations(ser: history.Series, plan: Any) -> list[str]:
     """Each calibration used: its id, method, when made and its age while in use."""
     from acquire.calibration.calset import SUFFIX, read_header
-    from acquire.measure import cal_dir_for
+    from acquire.capture.calchoice import cal_dir_for
 
     ages: dict[str, list[float]] = {}
     for cal_id, age in zip(ser.cal_id, ser.cal_age_s, strict=True):

@@ -29,20 +29,13 @@ from typing import Any
 
 import numpy as np
 
+from acquire.capture.calchoice import cal_dir_for
+from acquire.capture.files import Stored, plan_path, store
+from acquire.capture.judge import Capture, capture
+from acquire.capture.records import journal_stored, stored_fields, worst_margin
 from acquire.errors import JournalError
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
-from acquire.jsonsafe import json_safe, json_text
-from acquire.measure import (
-    Capture,
-    Stored,
-    cal_dir_for,
-    capture,
-    journal_stored,
-    plan_path,
-    store,
-    stored_fields,
-    worst_margin,
-)
+from acquire.jsonclean import json_safe, json_text
 from acquire.soak import history
 from acquire.soak.alarms import AlarmBook
 from acquire.soak.allan import AllanPoint
@@ -312,7 +305,7 @@ class SoakWorker:
             started = self.clock.now()
             try:
                 cap = capture(link.session, link.cal, soak_job=self.job.id, soak_index=k)
-                link.session.analyzer.check_errors(f"after sweep {k}")
+                link.session.check_errors(f"after sweep {k}")
             except InstrumentError as exc:
                 attempts += 1
                 link.mark_suspect(reopen=not isinstance(exc, ScpiErrorQueue))

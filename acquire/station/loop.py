@@ -22,9 +22,9 @@ from dataclasses import dataclass
 from datetime import datetime
 from pathlib import Path
 
+from acquire.capture.calchoice import CalChoice, choose_calibration
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
 from acquire.journal.owner import RunOwner, settle_dead_runs
-from acquire.measure import CalChoice, choose_calibration
 from acquire.plan import Plan
 from acquire.station.config import StationConfig, check_station_id, station_config
 from acquire.station.counters import run_yield
@@ -327,7 +327,7 @@ class Station:
 
     # -- instrument and calibration ----------------------------------------------------------
     def _connect(self) -> None:
-        from acquire.runner import Session
+        from acquire.capture.session import Session
 
         while True:
             session = Session(self.plan, self.resource)
