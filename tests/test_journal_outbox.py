@@ -91,3 +91,22 @@ def test_forwarding_again_after_a_lost_reply_adds_nothing(pg_url, tmp_path) -> N
         server_run = rows[0]["run_id"]
         assert len(store.golden_checks()) == 1 and len(store.faults(server_run)) == 1
         assert [(h["first_seq"], h["last_seq"]) for h in store.holds(server_run)] == [(3, 4)]
+
+
+def test_runs_from_before_the_store_are_still_settled_at_the_station(pg_url, tmp_path) -> None:
+    """A folder that journalled alone before it was pointed at a store: its crashed run
+    (no origin) is the station's own and is settled at the next start."""
+    from acquire.journal import journal_in
+    from acquire.journal.owner import settle_dead_runs
+
+    out = tmp_path / "out"
+    with journal_in(out) as alone:
+        crashed = alone.start_run("measure", "p")
+        alone.plan_measurement(crashed, 0, out / "lost.s1p")
+    with OutboxJournal(out, pg_url, origin=station_origin(out)) as j:
+        runs, changed = settle_dead_runs(j, out)
+        assert runs == 1 and [state for _, state in changed] == ["interrupted"]
+        assert j.run(crashed)["state"] == "crashed"
+    with open_journal(pg_url, read_only=True) as store:
+        (row,) = store.measurements()
+        assert row["state"] == "interrupted" and row["station"] is None

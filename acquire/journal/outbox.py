@@ -13,6 +13,7 @@ unreachable the outbox grows; forwarding is tried again at the next write once
 from __future__ import annotations
 
 import contextlib
+import threading
 import time
 import uuid
 from collections.abc import Iterator
@@ -29,11 +30,15 @@ BATCH = 200  # outbox entries forwarded per server transaction
 
 
 class OutboxJournal(SqliteJournal):
-    """The local journal of ``folder`` that forwards to the store at ``url``."""
+    """The local journal of ``folder`` that forwards to the store at ``url``. Its rows are
+    stamped with ``origin``; every run in the file is the station's own to settle."""
+
+    scoped = False
 
     def __init__(self, folder: Path | str, url: str, *, origin: str,
                  retry_s: float = 5.0, connect_timeout_s: float = 3.0) -> None:
         self._next_try = float("inf")  # nothing is forwarded while the file is opened
+        self._forwarding = threading.Lock()
         self._server: Any = None
         super().__init__(Path(folder) / "journal.sqlite")
         self.origin = origin
@@ -74,6 +79,8 @@ class OutboxJournal(SqliteJournal):
         cannot be reached is tried again after ``retry_s`` (or when ``force``)."""
         if not force and time.monotonic() < self._next_try:
             return False
+        if not self._forwarding.acquire(blocking=False):
+            return False  # another thread is forwarding this outbox
         try:
             while self._forward_batch():
                 pass
@@ -86,6 +93,8 @@ class OutboxJournal(SqliteJournal):
                     self._server.close()
                 self._server = None
             return False
+        finally:
+            self._forwarding.release()
         self.last_error = None
         return True
 

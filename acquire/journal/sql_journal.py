@@ -58,6 +58,7 @@ class SqlJournal(JournalStore):
 
     where: str
     origin: str | None = None
+    scoped = True  # settle only runs of ``origin`` (False: the file is the station's own)
 
     # -- what a backend supplies -----------------------------------------------------------
     def _tx(self) -> AbstractContextManager[Connection]:
@@ -125,7 +126,7 @@ class SqlJournal(JournalStore):
         if plan is not None:
             sql += " AND plan = ?"
             params.append(plan)
-        if self.origin is not None:
+        if self.scoped and self.origin is not None:
             sql += " AND origin = ?"
             params.append(self.origin)
         return self._rows(sql + " ORDER BY id", params)
@@ -239,7 +240,7 @@ class SqlJournal(JournalStore):
         if run_id is not None:
             sql += " AND m.run_id = ?"
             params.append(run_id)
-        if self.origin is not None:
+        if self.scoped and self.origin is not None:
             sql += " AND r.origin = ?"
             params.append(self.origin)
         return self._rows(sql + " ORDER BY m.id", params)
