@@ -108,9 +108,19 @@ class OutboxJournal(SqliteJournal):
         with server._tx() as db:
             for entry in entries:
                 self._forward_row(db, str(entry["tbl"]), int(entry["row_id"]))
-        with SqliteFile._tx(self) as local:
-            local.execute("DELETE FROM outbox WHERE seq <= ?", (int(entries[-1]["seq"]),))
+        self._forget(int(entries[-1]["seq"]))
         return len(entries) == BATCH
+
+    def _forget(self, last_seq: int) -> None:
+        """Drop forwarded entries. Without a sync of its own: entries that come back after
+        a power cut are forwarded again, which changes nothing on the server."""
+        with self._lock:
+            self._db.execute("PRAGMA synchronous=NORMAL")
+            try:
+                with SqliteFile._tx(self) as local:
+                    local.execute("DELETE FROM outbox WHERE seq <= ?", (last_seq,))
+            finally:
+                self._db.execute("PRAGMA synchronous=FULL")
 
     def _open_server(self) -> Any:
         if self._server is None:
