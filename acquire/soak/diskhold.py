@@ -10,9 +10,13 @@ from __future__ import annotations
 import shutil
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from acquire.errors import JournalError
 from acquire.journal import JournalStore
+
+if TYPE_CHECKING:
+    from acquire.soak.worker import SoakWorker
 
 FREED_BYTES = 1 << 20  # after a failed write, this much more free space ends the hold
 
@@ -79,3 +83,27 @@ class Hold:
         if self.id < 0:
             self.id = journal.start_hold(run_id, self.first_seq, self.reason)
         journal.end_hold(self.id, last_seq)
+
+
+def pause_for_disk(worker: SoakWorker, why: str) -> None:
+    """Stop taking sweeps until space returns: one hold journalled, no row per sweep."""
+    worker.state, worker.reason = "held", why
+    worker.job.write_state(state="held", reason=why)
+    worker.journal_fault("disk-full", why, "capturing paused before any data is damaged; "
+                         "resumes by itself when space is freed", worker.next_index)
+    assert worker.journal is not None
+    worker.hold = Hold(worker.next_index, why)
+    worker.hold.open_in(worker.journal, worker.run_id)  # no room: journalled when space returns
+
+
+def resume_after_disk(worker: SoakWorker) -> None:
+    """Space is back: close the hold and go on capturing."""
+    assert worker.journal is not None and worker.hold is not None
+    first, last = worker.hold.first_seq, worker.next_index - 1
+    worker.hold.close_in(worker.journal, worker.run_id, last)
+    worker.hold = None
+    worker.state, worker.reason = "running", None
+    worker.job.write_state(state="running", reason=None)
+    skipped = max(0, last - first + 1)
+    worker.journal_fault("disk-ok", f"free disk space is back; {skipped} sweep(s) not "
+                         "taken while held", "capturing resumed", worker.next_index)

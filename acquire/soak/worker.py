@@ -33,7 +33,13 @@ from acquire.soak import history
 from acquire.soak.alarm_log import AlarmLog
 from acquire.soak.alarms import AlarmBook
 from acquire.soak.devfile import DeviationFile
-from acquire.soak.diskhold import DiskGuard, Hold, disk_full
+from acquire.soak.diskhold import (
+    DiskGuard,
+    Hold,
+    disk_full,
+    pause_for_disk,
+    resume_after_disk,
+)
 from acquire.soak.drift import Reference, make_reference, measure_drift, reference_from_file
 from acquire.soak.ending import GiveUp, StopSignal, fail_job, finish_job
 from acquire.soak.link import Backoff, InstrumentLink, fault_kind
@@ -184,11 +190,11 @@ class SoakWorker:
             low = self.disk.low()
             if low:
                 if self.hold is None:
-                    self._hold(low)
+                    pause_for_disk(self, low)
                 self.stop.wait(min(HOLD_POLL_S, max(0.0, timeline.slot_end(k) - now)))
                 continue
             if self.hold is not None:
-                self._unhold()
+                resume_after_disk(self)
             try:
                 if not self._wait_until(timeline.due(k)) or not self._take(k):
                     continue  # a stop or cancel came first: the loop's top ends the job
@@ -217,30 +223,10 @@ class SoakWorker:
             if now >= slot_end:
                 self.rows.missed(k, k + 1, f"not taken: {problem}")
                 return True
-            if not link.ready:
-                if now < self._retry_at:
-                    self._wait_until(min(self._retry_at, slot_end))
-                    continue
-                try:
-                    ready = link.make_ready(self._note)
-                except InstrumentError as exc:
-                    delay = self.backoff.fail(now)
-                    self._retry_at = now + delay
-                    link.mark_suspect()
-                    self._fault(exc, k, f"instrument not ready; next try in {delay:.3g} s "
-                                        f"(try {self.backoff.failures})")
-                    problem = f"instrument not ready ({fault_kind(exc)})"
-                    self._check_give_up(now)
-                    continue
-                if self.backoff.failures:
-                    tries = self.backoff.failures
-                    self.journal_fault(
-                        "reconnected", f"instrument {link.resource}: ready again after "
-                        f"{tries} failed tr{'y' if tries == 1 else 'ies'}",
-                        f"sweeping again from sweep {k}", k)
-                elif ready.opened:
-                    log.info("job %s: connected to %s", self.job.id, link.resource)
-                self.backoff.reset()
+            ready, trouble = self._get_ready(k, now, slot_end)
+            if not ready:
+                problem = trouble or problem
+                continue
             started = self.clock.now()
             try:
                 cap = capture(link.session, link.cal, soak_job=self.job.id, soak_index=k)
@@ -261,6 +247,36 @@ class SoakWorker:
             self._record(k, cap, started)
             self.gap_reason = OVERRUN
             return True
+
+    def _get_ready(self, k: int, now: float, slot_end: float) -> tuple[bool, str | None]:
+        """Make the link ready for sweep ``k``: (ready, why not when a try just failed)."""
+        link = self.link
+        assert link is not None
+        if link.ready:
+            return True, None
+        if now < self._retry_at:  # backing off: wait (stop and cancel still heard)
+            self._wait_until(min(self._retry_at, slot_end))
+            return False, None
+        try:
+            ready = link.make_ready(self._note)
+        except InstrumentError as exc:
+            delay = self.backoff.fail(now)
+            self._retry_at = now + delay
+            link.mark_suspect()
+            self._fault(exc, k, f"instrument not ready; next try in {delay:.3g} s "
+                                f"(try {self.backoff.failures})")
+            self._check_give_up(now)
+            return False, f"instrument not ready ({fault_kind(exc)})"
+        if self.backoff.failures:
+            tries = self.backoff.failures
+            self.journal_fault(
+                "reconnected", f"instrument {link.resource}: ready again after "
+                f"{tries} failed tr{'y' if tries == 1 else 'ies'}",
+                f"sweeping again from sweep {k}", k)
+        elif ready.opened:
+            log.info("job %s: connected to %s", self.job.id, link.resource)
+        self.backoff.reset()
+        return True, None
 
     # -- recording -------------------------------------------------------------------------
     def _record(self, k: int, cap: Capture, started: float) -> None:
@@ -329,28 +345,6 @@ class SoakWorker:
         if limit is not None and since is not None and now - since > limit:
             raise GiveUp(f"job {self.job.id}: instrument {self.job.resource} not ready for "
                          f"{now - since:.0f} s (faults.give_up is {limit:g} s)")
-
-    # -- disk hold -------------------------------------------------------------------------
-    def _hold(self, why: str) -> None:
-        """Stop taking sweeps until space returns: one hold journalled, no row per sweep."""
-        self.state, self.reason = "held", why
-        self.job.write_state(state="held", reason=why)
-        self.journal_fault("disk-full", why, "capturing paused before any data is damaged; "
-                            "resumes by itself when space is freed", self.next_index)
-        assert self.journal is not None
-        self.hold = Hold(self.next_index, why)
-        self.hold.open_in(self.journal, self.run_id)  # no room: journalled when space returns
-
-    def _unhold(self) -> None:
-        assert self.journal is not None and self.hold is not None
-        first, last = self.hold.first_seq, self.next_index - 1
-        self.hold.close_in(self.journal, self.run_id, last)
-        self.hold = None
-        self.state, self.reason = "running", None
-        self.job.write_state(state="running", reason=None)
-        skipped = max(0, last - first + 1)
-        self.journal_fault("disk-ok", f"free disk space is back; {skipped} sweep(s) not "
-                            "taken while held", "capturing resumed", self.next_index)
 
     # -- waiting and stopping ----------------------------------------------------------------
     def _stop_reason(self) -> str | None:
