@@ -27,9 +27,12 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from acquire.errors import CheckError
-from acquire.jsonsafe import json_safe
+from acquire.jsonclean import json_safe
 from acquire.masks import EDGE_RTOL, Limit, Mask, MaskResult, Segment, evaluate_mask
+from acquire.metrics import bandwidth, key_metrics, resonance_min_gamma, resonance_reactance
 from acquire.sweep import Sweep
+from acquire.uncertainty.decision import SIMPLE
+from acquire.uncertainty.guarded import guarded_result
 from acquire.units import format_frequency
 from drivers.errors import SweepdError
 
@@ -105,8 +108,6 @@ class MaskCheck(Check):
 
     def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
         """Guarded acceptance (``acquire.uncertainty.decision``) of the same positions."""
-        from acquire.uncertainty.guarded import guarded_result
-
         return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
 
 
@@ -131,8 +132,6 @@ class BandwidthCheck(Check):
         return frozenset({self.parameter})
 
     def evaluate(self, sweep: Sweep) -> CheckResult:
-        from acquire.metrics import bandwidth
-
         f, g = sweep.freq_hz, _param(self, sweep)
         bw = bandwidth(f, g, swr_max=self.swr_max, return_loss_min_db=self.return_loss_min_db)
         band = bw.band
@@ -203,8 +202,6 @@ class ResonanceCheck(Check):
         return frozenset({self.parameter})
 
     def evaluate(self, sweep: Sweep) -> CheckResult:
-        from acquire.metrics import resonance_min_gamma, resonance_reactance
-
         f, g = sweep.freq_hz, _param(self, sweep)
         _inside_sweep(self, sweep, self.lo_hz, self.hi_hz)
         z0 = sweep.z0[int(self.parameter[1]) - 1]
@@ -276,8 +273,6 @@ class WorstSwrCheck(Check):
 
     def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
         """Guarded acceptance of the band's positions (``acquire.uncertainty.decision``)."""
-        from acquire.uncertainty.guarded import guarded_result
-
         return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
 
 
@@ -456,8 +451,6 @@ def _ascii(text: str) -> str:
 
 
 def _simple_decision() -> dict[str, Any]:
-    from acquire.uncertainty.decision import SIMPLE
-
     return SIMPLE.to_dict()
 
 
@@ -510,8 +503,6 @@ def evaluate_checks(
             info[key] = sweep.meta[key]
     key = {}
     if metrics and sweep.points:
-        from acquire.metrics import key_metrics
-
         key = key_metrics(sweep)
     rule = decision.to_dict() if decision is not None else {}
     return Verdict(tuple(results), info, json_safe(key), rule)

@@ -19,7 +19,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "calibrate": ("calibrate", "guided calibration: prompt each standard, check, save a cal set"),
     "fixture": ("fixture", "drive the simulator's fixture, device and faults (tests, demo)"),
     "check": ("check", "judge a Touchstone file against masks offline (0 pass, 1 fail, 2 error)"),
-    "plot": ("plot", "draw match, impedance and a Smith chart of a Touchstone file, with masks"),
+    "plot": ("plot", "match, impedance and Smith chart with masks and markers; overlays"),
     "export": ("export", "trace data of a Touchstone file as CSV: frequency plus quantities"),
     "dtf": ("dtf", "distance to fault: reflections along a cable from an S11 file, with limits"),
     "station": ("station", "production-line loop: serial in, sweep, verdict, file, yield"),
@@ -35,7 +35,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
                 "instrument"),
 }
 # Commands that talk to an instrument get --io-log (drivers.iolog); -vv shows the same.
-IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe", "dialect"}
+# (``dialect check`` adds it to its own sub-command.)
+IO_COMMANDS = {"run", "calibrate", "station", "measure", "serve", "demo", "probe"}
 IO_LOG_HELP = ("append every message sent to and received from the instrument to FILE, with "
                "monotonic times and byte counts (binary payloads summarised)")
 
@@ -115,15 +116,9 @@ def _error(message: str) -> None:
 
 
 def _check_resource(args: argparse.Namespace) -> bool:
-    """``--resource`` follows the rules plans follow; True when refused (with --json)."""
-    from acquire.commands.jsonout import run_with_json_errors
-    from drivers.resources import parse_resource
-
-    def check() -> int:
-        parse_resource(args.resource, where="--resource")
-        return EXIT_OK
-
-    return run_with_json_errors(args, args.command, check) != EXIT_OK
+    """``--resource`` follows the rules plans follow; True when refused (acquire.commands.
+    resource_option, loaded like a command so that this module stays light)."""
+    return _module("resource_option").run(args) != EXIT_OK
 
 
 def _module(name: str):

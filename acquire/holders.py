@@ -41,12 +41,11 @@ def soak_holder(resource: str, spool_root: Path | None = None) -> str | None:
     """The running soak job on ``resource`` in words, or None (no spool, no such job)."""
     from acquire.soak.spool import Spool
     from drivers.errors import SweepdError
-    from drivers.resources import resource_key
 
     try:
         spool = Spool(spool_root)
         for job in spool.jobs():
-            if resource_key(job.resource) != resource_key(resource):
+            if job.resource.strip().upper() != resource.strip().upper():  # case: same one
                 continue
             state = job.read_state()
             if state.get("state") != "running":

@@ -128,6 +128,6 @@ def _plan_key(plan: Any) -> Any:
 
 
 def _open_session(plan: Any, resource: str) -> Any:
-    from acquire.runner import Session
+    from acquire.capture.session import Session
 
     return Session(plan, resource).open()

@@ -129,7 +129,7 @@ def parse_plan(root: Node, source: Path) -> Plan:
     if not _NAME.match(name):
         root["plan"].fail(
             f"must be 1-64 letters, digits, '.', '_' or '-' (starting with a letter or digit), "
-            f"got {name!r}"
+            f"got {show(name)}"
         )
     measure = _measure(root["measure"])
     calibration = _calibration(root["calibration"])
@@ -165,7 +165,7 @@ def _instrument(node: Node) -> InstrumentSpec:
     resource = node["resource"].text()
     problem = resource_problem(resource)
     if problem is not None:
-        node["resource"].fail(f"not a supported VISA resource string: {resource!r} ({problem})")
+        node["resource"].fail(f"not a supported VISA resource string: {show(resource)} ({problem})")
     dialect_ref = node["dialect"].text("scpi-generic")
     try:
         dialect = find_config("dialects", dialect_ref, node.base_dir)
@@ -261,15 +261,15 @@ def _check_template(node: Node, template: str) -> None:
     try:
         fields = {f for _, f, spec, conv in string.Formatter().parse(template) if f is not None}
     except ValueError as exc:
-        node.fail(f"bad name template {template!r}: {exc}")
+        node.fail(f"bad name template {show(template)}: {exc}")
     unknown = fields - NAME_FIELDS
     if unknown or "" in fields:
         node.fail(
-            f"unknown field(s) {sorted(unknown) or ['{}']} in {template!r}; "
+            f"unknown field(s) {sorted(unknown) or ['{}']} in {show(template)}; "
             f"allowed: {', '.join(sorted(NAME_FIELDS))}"
         )
     if "/" in template or "\\" in template or template.startswith("."):
-        node.fail(f"must be a file name, not a path: {template!r}")
+        node.fail(f"must be a file name, not a path: {show(template)}")
 
 
 def _calibration(node: Node) -> CalibrationSpec | None:
@@ -340,7 +340,7 @@ def site_name_problem(name: object) -> str | None:
     if isinstance(name, str) and SITE_NAME.match(name):
         return None
     return (f"must be 1-32 letters, digits or _ . : + - (starting with a letter or digit), "
-            f"got {name!r}"[:160])
+            f"got {show(name)}"[:160])
 
 
 def _isolation(node: Node, method: Any) -> bool:

@@ -27,6 +27,11 @@ def load_yaml(path: Path | str, what: str, error: type[ConfigError] = ConfigErro
     return load_yaml_file(path, f"{what} {path}", error)
 
 
+# Default bounds (magnitude) per kind when a field gives none: a time or frequency beyond
+# these is a typing slip, and would overflow the date and time types later.
+KIND_LIMITS = {"time": 100 * 366 * 86400.0, "frequency": 1e15}
+
+
 class Node(YamlNode):
     """A value from a config file, with the file, its key path and typed accessors."""
 
@@ -49,4 +54,10 @@ class Node(YamlNode):
                 number = parse_quantity(self.value, kind)
             except (ValueError, OverflowError) as exc:
                 self.fail(str(exc) if isinstance(exc, ValueError) else "number out of range")
-        return self.check_number(number, lo, hi, positive, f" {BASE_SYMBOL[kind]}")
+        unit = f" {BASE_SYMBOL[kind]}"
+        self.check_number(number, lo, hi, positive, unit)  # the field's own range first
+        limit = KIND_LIMITS.get(kind)
+        if limit is not None:
+            self.check_number(number, -limit if lo is None else lo,
+                              limit if hi is None else hi, positive, unit)
+        return number

@@ -11,6 +11,7 @@ Five ways to fetch the same 1-port trace (S11, re/im pairs) from one simulator:
 - public: the same over the raw socket with the fast path off, i.e. the fallback through
   pyvisa's public read/write calls that is taken when pyvisa-py's internals change;
 - hislip: the same over HiSLIP (IVI-6.1) through pyvisa-py's HiSLIP client;
+- vxi11: the same over VXI-11 through pyvisa-py's VXI-11 client;
 - floor: a raw socket sends the same message and reads the same block, whose length it
   knows in advance, into a preallocated buffer (``recv_into``); no parsing, no checks;
 - naive: pyvisa's ``query_ascii_values`` of the same message with ``FORMat ASCii``.
@@ -54,9 +55,9 @@ COMMAND = ":INIT:IMM;*WAI;:TRAC:DATA? S11"
 BUSY = b"-300"
 
 
-def start_simulator() -> tuple[subprocess.Popen, str, str]:
+def start_simulator() -> tuple[subprocess.Popen, str, str, str]:
     """The simulator as a child process (it inherits this process's CPU affinity);
-    (process, raw-socket resource, HiSLIP resource)."""
+    (process, raw-socket resource, HiSLIP resource, VXI-11 resource)."""
     args = [
         sys.executable,
         "-m",
@@ -67,6 +68,8 @@ def start_simulator() -> tuple[subprocess.Popen, str, str]:
         "0",
         "--no-noise",
         "--frozen",
+        "--vxi11-port",
+        "0",
     ]
     child = subprocess.Popen(args, cwd=HERE, stdout=subprocess.PIPE, text=True)
     assert child.stdout is not None
@@ -79,7 +82,8 @@ def start_simulator() -> tuple[subprocess.Popen, str, str]:
         lines.append(line)
     socket_resource = next(r for r in lines if r.endswith("::SOCKET"))
     hislip_resource = next(r for r in lines if "::hislip" in r)
-    return child, socket_resource, hislip_resource
+    vxi11_resource = next(r for r in lines if "," in r and "::hislip" not in r)
+    return child, socket_resource, hislip_resource, vxi11_resource
 
 
 def timed(run: Callable[[], object], seconds: float, minimum: int = 5) -> tuple[float, float]:
@@ -184,7 +188,7 @@ def show(seconds: float) -> str:
     return f"{seconds * 1e6:8.1f} us"
 
 
-def measure(resource: str, hislip: str, counts: list[int], seconds: float
+def measure(resource: str, hislip: str, vxi11: str, counts: list[int], seconds: float
             ) -> tuple[list[tuple], float | None]:
     """One round: every method at every point count; (rows, 201-point sweep rate)."""
     rows = []
@@ -196,8 +200,10 @@ def measure(resource: str, hislip: str, counts: list[int], seconds: float
         assert np.array_equal(got, reference), "public path read different data"
         over_hislip, _, got = sweepd_path(hislip, points, seconds)
         assert np.array_equal(got, reference), "HiSLIP read different data"
+        over_vxi11, _, got = sweepd_path(vxi11, points, seconds)
+        assert np.array_equal(got, reference), "VXI-11 read different data"
         naive = naive_path(resource, seconds, reference)
-        rows.append((points, ours, floor, naive, public, over_hislip))
+        rows.append((points, ours, floor, naive, public, over_hislip, over_vxi11))
         if points == 201:
             rate_201 = rate
     return rows, rate_201
@@ -217,17 +223,17 @@ def main() -> int:
     args = parser.parse_args()
     counts = [int(p) for p in args.points.split(",")]
     os.sched_setaffinity(0, {args.core})
-    child, resource, hislip = start_simulator()
+    child, resource, hislip, vxi11 = start_simulator()
     rounds = []
     try:
         for _ in range(args.rounds):
-            rounds.append(measure(resource, hislip, counts, args.seconds))
+            rounds.append(measure(resource, hislip, vxi11, counts, args.seconds))
     finally:
         child.terminate()
         child.wait(5)
     # Best round per cell: other load on the shared machine only ever adds time.
     rows = [
-        (points, *(min(r[0][i][k] for r in rounds) for k in (1, 2, 3, 4, 5)))
+        (points, *(min(r[0][i][k] for r in rounds) for k in (1, 2, 3, 4, 5, 6)))
         for i, points in enumerate(counts)
     ]
     rates = [r[1] for r in rounds if r[1] is not None]
@@ -238,20 +244,21 @@ def main() -> int:
     )
     print(
         f"{'points':>8} {'sweepd':>11} {'floor':>11} {'public':>11} {'hislip':>11}"
-        f" {'naive ascii':>11} {'sweepd/floor':>13} {'public/floor':>13}"
-        f" {'hislip/floor':>13} {'naive/sweepd':>13}"
+        f" {'vxi11':>11} {'naive ascii':>11} {'sweepd/floor':>13} {'public/floor':>13}"
+        f" {'hislip/floor':>13} {'vxi11/floor':>12} {'naive/sweepd':>13}"
     )
-    for points, ours, floor, naive, public, over_hislip in rows:
+    for points, ours, floor, naive, public, over_hislip, over_vxi11 in rows:
         print(
             f"{points:>8} {show(ours)} {show(floor)} {show(public)} {show(over_hislip)}"
-            f" {show(naive)} {ours / floor:>12.2f}x {public / floor:>12.2f}x"
-            f" {over_hislip / floor:>12.2f}x {naive / ours:>12.1f}x"
+            f" {show(over_vxi11)} {show(naive)} {ours / floor:>12.2f}x"
+            f" {public / floor:>12.2f}x {over_hislip / floor:>12.2f}x"
+            f" {over_vxi11 / floor:>11.2f}x {naive / ours:>12.1f}x"
         )
     if rate_201 is not None:
         each = ", ".join(f"{r:,.0f}" for r in rates)
         print(f"201-point sweep rate: {rate_201:,.0f} sweeps/s (rounds: {each}; target >= 5,000)")
     checks = []
-    for points, ours, floor, naive, _, _ in rows:
+    for points, ours, floor, naive, *_ in rows:
         if points == 10001:
             checks.append((f"sweepd/floor at {points} <= 2.5", ours / floor <= 2.5))
         if points in (10001, 100001):

@@ -53,9 +53,9 @@ def _plan(folder: Path, resource: str, points: int) -> Path:
 
 
 def bare(plan_path: Path, resource: str, units: int) -> list[float]:
+    from acquire.capture.session import Session
     from acquire.plan import load_plan
-    from acquire.runner import Session
-    from acquire.station.single import Request, measure_one
+    from acquire.station.measure import Request, measure_one
 
     plan = load_plan(plan_path)
     times = []

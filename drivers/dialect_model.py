@@ -31,8 +31,8 @@ class SettingSpec:
     """
 
     name: str
-    set: tuple[Template, ...]
-    query: Template
+    set: tuple[Template, ...]  # empty for a fixed setting
+    query: Template | None  # None for a fixed setting
     integer: bool
     scale: float = 1.0
     read_scale: float = 1.0  # SI units per unit of the read-back (another unit than set)
@@ -41,6 +41,7 @@ class SettingSpec:
     state_on: str | None = None  # averaging only: token for {state} when averaging > 1
     state_off: str | None = None
     state_query: Template | None = None
+    fixed: float | None = None  # the instrument's unchangeable value (SI), when it has one
 
     def matches(self, sent: float, read: float) -> bool:
         return abs(read - sent) <= self.absolute + self.relative * abs(sent)
@@ -194,6 +195,24 @@ class Dialect:
     def source(self) -> str:
         """``dialect <path>``: the prefix of every message about this file."""
         return f"dialect {shown_path(self.path)}"
+
+    @property
+    def frequency_query(self) -> Template | None:
+        """The axis list query, when the axis is read as a list (else None)."""
+        axis = self.frequency
+        return axis.query if axis is not None and axis.kind == "list" else None
+
+    @property
+    def frequency_scale(self) -> float:
+        """Hz per instrument unit of the frequency axis."""
+        return self.frequency.scale if self.frequency is not None else 1.0
+
+    def trace_tokens(self, name: str) -> dict[str, str]:
+        """The placeholders for trace ``name``: ``{trace}`` and its measurement tokens."""
+        tokens = {"trace": self.traces[name]}
+        if self.measurement is not None:
+            tokens.update(self.measurement.tokens[name])
+        return tokens
 
     def data_format(self, encoding: str) -> DataFormat:
         for fmt in self.formats:

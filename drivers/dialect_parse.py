@@ -32,6 +32,7 @@ from drivers.stimulus import S_PARAMETERS
 from drivers.templates import Template
 from drivers.yamltext import load_yaml_file
 
+FIXABLE_SETTINGS = ("power", "if_bandwidth")
 TERMINATORS = ("\n", "\r\n", "\r")
 TOP_KEYS = (
     "dialect",
@@ -142,6 +143,9 @@ def _settings(node: Node) -> dict[str, SettingSpec]:
         entry = node[name]
         if not entry.present:
             continue
+        if isinstance(entry.value, dict) and "fixed" in entry.value:
+            specs[name] = _fixed_setting(entry, name)
+            continue
         keys = ("set", "query", "type", "unit_scale", "read_scale", "tolerance")
         if name == "averaging":
             keys += ("state",)
@@ -156,12 +160,7 @@ def _settings(node: Node) -> dict[str, SettingSpec]:
         sets = entry["set"].templates(fields, query=False)
         if not any("value" in t.fields for t in sets):
             entry["set"].fail("at least one command must use {value}")
-        tolerance = entry["tolerance"]
-        absolute = relative = 0.0
-        if tolerance.present:
-            tolerance.mapping(("absolute", "relative"))
-            absolute = tolerance["absolute"].number(0.0, lo=0.0)
-            relative = tolerance["relative"].number(0.0, lo=0.0)
+        absolute, relative = _tolerance(entry["tolerance"])
         state_on = state_off = None
         state_query = None
         uses_state = any("state" in t.fields for t in sets)
@@ -187,6 +186,24 @@ def _settings(node: Node) -> dict[str, SettingSpec]:
             state_query=state_query,
         )
     return specs
+
+
+def _tolerance(node: Node) -> tuple[float, float]:
+    if not node.present:
+        return 0.0, 0.0
+    node.mapping(("absolute", "relative"))
+    return node["absolute"].number(0.0, lo=0.0), node["relative"].number(0.0, lo=0.0)
+
+
+def _fixed_setting(entry: Node, name: str) -> SettingSpec:
+    """``{fixed: <SI value>, tolerance: ...}``: an instrument that cannot change it."""
+    if name not in FIXABLE_SETTINGS:
+        entry["fixed"].fail(f"only {' and '.join(FIXABLE_SETTINGS)} may be fixed")
+    entry.mapping(("fixed", "tolerance"))
+    low, high = (-200.0, 100.0) if name == "power" else (1e-3, 1e9)
+    absolute, relative = _tolerance(entry["tolerance"])
+    return SettingSpec(name=name, set=(), query=None, integer=False, absolute=absolute,
+                       relative=relative, fixed=entry["fixed"].number(lo=low, hi=high))
 
 
 def _data_formats(node: Node) -> tuple[tuple[DataFormat, ...], Template | None, ByteOrders | None]:

@@ -1,6 +1,6 @@
 """Byte links under the transport: exact reads, reads up to a terminator, deadlines.
 
-Two implementations over a resource opened by pyvisa with the pyvisa-py backend:
+Implementations over a resource opened by pyvisa with the pyvisa-py backend:
 
 - ``SocketLink`` for ``TCPIP::host::port::SOCKET``. pyvisa-py opens the connection; this
   link then does the I/O on the session's own socket (pyvisa-py keeps it as
@@ -13,18 +13,18 @@ Two implementations over a resource opened by pyvisa with the pyvisa-py backend:
   This link receives payloads straight into the caller's buffer (``recv_into``), scans only
   new bytes for the terminator, reports a closed peer at once, and keeps monotonic
   deadlines for reads and writes.
-- ``VisaLink`` for everything else (serial ``ASRL...::INSTR`` through pyserial, VXI-11,
-  USB-TMC): reads and writes through the pyvisa-py session, switching the terminator on
+- ``VisaLink`` (``drivers.visalinks``) for serial ``ASRL...::INSTR`` (pyserial) and
+  USB-TMC: reads and writes through the pyvisa-py session, switching the terminator on
   for line reads and off for exact-length binary reads (a binary payload may hold 0x0A
   bytes). With ``public=True`` it uses only pyvisa's documented library calls: the
   fallback for a socket when pyvisa-py's internals are not as tested
   (``fast_socket_problem``).
-- ``HislipLink`` for HiSLIP: a ``VisaLink`` over pyvisa-py's HiSLIP client. Messages are
-  framed by the protocol (DataEnd ends a reply), so a line read returns at the end of the
-  message; after a fault the transport reconnects rather than draining
+- ``HislipLink`` (``drivers.visalinks``) for HiSLIP and VXI-11 through pyvisa-py's
+  clients. Both protocols frame messages (DataEnd; the END flag), so a line read returns
+  at the end of the message; after a fault the transport reconnects rather than draining
   (``resync_by_reconnect``).
 
-Both raise ``LinkTimeout`` (with the bytes that did arrive) and ``LinkClosed``; the
+All raise ``LinkTimeout`` (with the bytes that did arrive) and ``LinkClosed``; the
 transport turns them into messages that name the resource and the command.
 """
 
@@ -32,7 +32,6 @@ from __future__ import annotations
 
 import errno
 import socket
-import struct
 from typing import Any, Protocol
 
 from drivers.deadline import Deadline
@@ -123,7 +122,7 @@ class SocketLink:
         except TimeoutError:
             raise LinkTimeout() from None
         except OSError as exc:
-            raise LinkClosed(_os_text(exc)) from None
+            raise LinkClosed(os_text(exc)) from None
         if count == 0:
             raise LinkClosed("the instrument closed the connection")
         return count
@@ -135,7 +134,7 @@ class SocketLink:
         except TimeoutError:
             raise LinkTimeout() from None
         except OSError as exc:
-            raise LinkClosed(_os_text(exc)) from None
+            raise LinkClosed(os_text(exc)) from None
 
     # -- the sweep's fast path -----------------------------------------------------------
     def exchange_block(
@@ -238,7 +237,7 @@ class SocketLink:
             except (BlockingIOError, InterruptedError):
                 return said
             except OSError as exc:
-                raise LinkClosed(_os_text(exc), said) from None
+                raise LinkClosed(os_text(exc), said) from None
             if not chunk:
                 raise LinkClosed("the instrument closed the connection", said)
             said = (said + chunk)[:256]
@@ -258,162 +257,6 @@ class SocketLink:
         except LinkClosed as exc:
             raise LinkClosed(exc.args[0], bytes(self._buf[:256])) from None
         self._buf += rx[:count]
-
-
-class VisaLink:
-    """Reads and writes through the pyvisa-py session (serial ports and the rest)."""
-
-    resync_by_reconnect = False
-
-    def __init__(self, resource: Any, public: bool = False) -> None:
-        from pyvisa import constants
-
-        self._c = constants
-        self._lib = resource.visalib
-        self._session = resource.session
-        # pyvisa-py's session object returns (data, status) without raising, so the
-        # bytes that did arrive before a timeout are kept for the message.
-        self._raw = None if public else getattr(self._lib, "sessions", {}).get(self._session)
-        self._quiet = (constants.StatusCode.success_max_count_read,
-                       constants.StatusCode.success_termination_character_read)
-        self._serial = resource.resource_name.upper().startswith("ASRL")
-        self._timeout_ms: int | None = None
-        self._mode: tuple[str, int] | None = None
-        attr = constants.ResourceAttribute
-        if self._serial:
-            self._set(attr.asrl_end_out, constants.SerialTermination.none)
-
-    def send(self, data: bytes, deadline: Deadline) -> None:
-        from pyvisa import errors
-
-        self._timeout(deadline.remaining())
-        try:
-            self._lib.write(self._session, data)
-        except errors.VisaIOError as exc:
-            if exc.error_code == self._c.StatusCode.error_timeout:
-                raise LinkTimeout() from None
-            raise LinkClosed(_one_line(exc)) from None
-        except OSError as exc:  # pyserial reports a vanished port as SerialException(OSError)
-            raise LinkClosed(_os_text(exc)) from None
-
-    def read_exact(self, count: int, deadline: Deadline) -> bytes:
-        self._terminator(None)
-        out = bytearray()
-        while len(out) < count:
-            out += self._read(count - len(out), deadline, bytes(out))
-        return bytes(out)
-
-    def read_into(self, view: memoryview, deadline: Deadline) -> None:
-        view[:] = self.read_exact(len(view), deadline)
-
-    def read_until(self, byte: int, deadline: Deadline, limit: int) -> bytes:
-        self._terminator(byte)
-        out = bytearray()
-        while not out or out[-1] != byte:
-            if len(out) > limit:
-                raise LinkOverflow(bytes(out[:64]))
-            out += self._read(limit + 1 - len(out), deadline, bytes(out))
-        return bytes(out)
-
-    def discard_input(self) -> bytes:
-        try:
-            self._lib.flush(self._session, self._c.BufferOperation.discard_read_buffer)
-        except OSError as exc:
-            raise LinkClosed(_os_text(exc)) from None
-        return b""
-
-    def _read(self, count: int, deadline: Deadline, partial: bytes) -> bytes:
-        from pyvisa import errors
-
-        remaining = deadline.remaining()
-        if remaining is not None and remaining <= 0:
-            raise LinkTimeout(partial)
-        self._timeout(remaining)
-        status_code = self._c.StatusCode
-        try:
-            if self._raw is not None:
-                data, status = self._raw.read(count)
-            else:
-                # A read that fills ``count`` or stops at the terminator is what we asked
-                # for; pyvisa would warn about it (VI_SUCCESS_MAX_CNT, VI_SUCCESS_TERM_CHAR).
-                with self._lib.ignore_warning(self._session, *self._quiet):
-                    data, status = self._lib.read(self._session, count)
-        except errors.VisaIOError as exc:
-            if exc.error_code == status_code.error_timeout:
-                raise LinkTimeout(partial) from None
-            raise LinkClosed(_one_line(exc)) from None
-        except OSError as exc:  # pyserial reports a vanished port as SerialException(OSError)
-            raise LinkClosed(_os_text(exc)) from None
-        if status == status_code.error_timeout:
-            raise LinkTimeout(partial + bytes(data))
-        if status < 0:
-            raise LinkClosed(f"VISA status {status!r}")
-        if not data and deadline.expired():
-            raise LinkTimeout(partial)
-        return bytes(data)
-
-    def _terminator(self, byte: int | None) -> None:
-        mode = ("none", 0) if byte is None else ("char", byte)
-        if mode == self._mode:
-            return
-        attr, c = self._c.ResourceAttribute, self._c
-        if byte is None:
-            self._set(attr.termchar_enabled, c.VI_FALSE)
-            if self._serial:
-                self._set(attr.asrl_end_in, c.SerialTermination.none)
-        else:
-            self._set(attr.termchar, byte)
-            self._set(attr.termchar_enabled, c.VI_TRUE)
-            if self._serial:
-                self._set(attr.asrl_end_in, c.SerialTermination.termination_char)
-        self._mode = mode
-
-    def _timeout(self, seconds: float | None) -> None:
-        wanted = None if seconds is None else max(1, int(seconds * 1000))
-        current = self._timeout_ms
-        # Re-arm only when needed (pyserial reconfigures the port on every set): never
-        # wait past the deadline by more than 20 ms, never give up before it.
-        if wanted == current or (
-            current is not None and wanted is not None and current - 20 <= wanted <= current
-        ):
-            return
-        value = self._c.VI_TMO_INFINITE if wanted is None else wanted
-        self._set(self._c.ResourceAttribute.timeout_value, value)
-        self._timeout_ms = wanted
-
-    def _set(self, attribute: Any, value: Any) -> None:
-        self._lib.set_attribute(self._session, attribute, value)
-
-
-class HislipLink(VisaLink):
-    """HiSLIP through pyvisa-py's client; see the module docstring."""
-
-    resync_by_reconnect = True
-
-    def read_until(self, byte: int, deadline: Deadline, limit: int) -> bytes:
-        out = bytearray()
-        while not out or out[-1] != byte:
-            if len(out) > limit:
-                raise LinkOverflow(bytes(out[:64]))
-            # The client allocates the whole count per call: ask for modest pieces.
-            out += self._read(min(RECV_CHUNK, limit + 1 - len(out)), deadline, bytes(out))
-        return bytes(out)
-
-    def discard_input(self) -> bytes:
-        return b""  # replies are framed; after a fault the transport reconnects
-
-    def _terminator(self, byte: int | None) -> None:
-        return  # DataEnd ends each message; no termination character is involved
-
-    def _read(self, count: int, deadline: Deadline, partial: bytes) -> bytes:
-        try:
-            return super()._read(count, deadline, partial)
-        except (RuntimeError, AssertionError, KeyError, struct.error) as exc:
-            # pyvisa-py's client raises these on a closed channel or a malformed message
-            text = _one_line(exc)
-            if "dropped" in text.lower():
-                raise LinkClosed("the instrument closed the connection") from None
-            raise LinkClosed(f"HiSLIP protocol error: {text}") from None
 
 
 def fast_socket_problem(resource: Any) -> str | None:
@@ -436,12 +279,12 @@ def fast_socket_problem(resource: Any) -> str | None:
     return None
 
 
-def _os_text(exc: OSError) -> str:
+def os_text(exc: OSError) -> str:
     if exc.errno in (errno.EPIPE, errno.ECONNRESET):
         return "the instrument closed the connection"
-    return _one_line(exc)
+    return one_line(exc)
 
 
-def _one_line(exc: BaseException) -> str:
+def one_line(exc: BaseException) -> str:
     text = " ".join(str(exc).split()) or type(exc).__name__
     return text

@@ -54,7 +54,15 @@ class SettingsIO:
         for name in order:
             spec = self.talk.dialect.settings[name]
             got = applied[name]
+            if spec.fixed is not None and not spec.matches(wanted[name], got):
+                raise SettingMismatch(
+                    f"instrument {self.talk.resource}: setting {name}: the plan asks "
+                    f"{wanted[name]:.12g} {UNITS[name]}, the instrument has a fixed "
+                    f"{got:.12g} {UNITS[name]} ({self.talk.dialect.source}: "
+                    f"settings.{name}.fixed)"
+                )
             if not spec.matches(wanted[name], got):
+                assert spec.query is not None
                 raise SettingMismatch(
                     f"instrument {self.talk.resource}: setting {name}: sent "
                     f"{wanted[name]:.12g} {UNITS[name]} ('{sent[name]}'), read back "
@@ -104,8 +112,10 @@ class SettingsIO:
         return names
 
     def _setting_commands(self, name: str, value: float) -> list[str]:
-        """The commands that set ``name`` to ``value`` (SI units)."""
+        """The commands that set ``name`` to ``value`` (SI units); none for a fixed one."""
         spec = self.talk.dialect.settings[name]
+        if spec.fixed is not None:
+            return []
         try:
             number = format_number(
                 value if spec.integer else value / spec.scale, integer=spec.integer
@@ -122,6 +132,9 @@ class SettingsIO:
         return {name: self.read_setting(spec) for name, spec in settings.items()}
 
     def read_setting(self, spec: SettingSpec) -> float:
+        if spec.query is None:
+            assert spec.fixed is not None
+            return spec.fixed
         return self.talk.number(spec.query.render(), integer=spec.integer, scale=spec.read_scale)
 
     def _check_averaging_state(self, averaging: int) -> None:

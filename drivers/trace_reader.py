@@ -21,6 +21,7 @@ from drivers.format_choice import FormatChoice
 from drivers.layouts import FREQ_PREFIX, split_frequency, to_complex, values_per_point
 from drivers.replies import parse_number, same_token
 from drivers.stimulus import S_PARAMETERS, Stimulus
+from drivers.templates import Template
 
 SWEEP_TIME_MARGIN = 2.0  # wait up to twice the reported sweep time on top of the I/O timeout
 
@@ -123,22 +124,18 @@ class TraceReader:
     def define_measurements(self) -> None:
         """Send the dialect's define commands once for every trace it lists."""
         spec = self.talk.dialect.measurement
-        if spec is None:
-            return
-        for name in self.talk.dialect.traces:
-            tokens = trace_tokens(self.talk.dialect, name)
-            for template in spec.define:
-                self.talk.send_setting(template.render(**tokens))
+        self._per_trace(spec.define if spec else (), self.talk.send_setting)
 
     def cleanup_measurements(self) -> None:
         """Send the dialect's cleanup commands for every trace (on close)."""
         spec = self.talk.dialect.measurement
-        if spec is None:
-            return
-        for name in self.talk.dialect.traces:
+        self._per_trace(spec.cleanup if spec else (), self.talk.write)
+
+    def _per_trace(self, templates: tuple[Template, ...], send: Callable[[str], None]) -> None:
+        for name in self.talk.dialect.traces if templates else ():
             tokens = trace_tokens(self.talk.dialect, name)
-            for template in spec.cleanup:
-                self.talk.write(template.render(**tokens))
+            for template in templates:
+                send(template.render(**tokens))
 
     def sweep_timeout(self) -> float:
         return self.talk.transport.timeout_s + SWEEP_TIME_MARGIN * self.sweep_time_s
@@ -250,11 +247,8 @@ class TraceReader:
 
 
 def trace_tokens(dialect: Dialect, name: str) -> dict[str, str]:
-    """The placeholders for trace ``name``: ``{trace}`` and its measurement tokens."""
-    tokens = {"trace": dialect.traces[name]}
-    if dialect.measurement is not None:
-        tokens.update(dialect.measurement.tokens[name])
-    return tokens
+    """The placeholders for trace ``name`` (see ``Dialect.trace_tokens``)."""
+    return dialect.trace_tokens(name)
 
 
 def wait_by_polling(talk: Conversation, timeout_s: float, sweep_time_s: float) -> None:

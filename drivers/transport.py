@@ -1,18 +1,16 @@
 """Message transport to one instrument: pyvisa with the pyvisa-py backend.
 
-Resources are VISA resource strings checked by ``drivers.resources``: raw socket
-``TCPIP::host::port::SOCKET``, HiSLIP ``TCPIP::host::hislip0[,port]::INSTR``, VXI-11
-``TCPIP::host[,port]::INSTR``, serial ``ASRL<device>::INSTR`` (pyserial) and USB-TMC.
-The transport frames messages (terminators, IEEE 488.2 blocks), keeps connect and I/O
-deadlines apart (seconds, monotonic clock) and turns every pyvisa, pyserial and OS failure
-into a ``drivers.errors`` exception whose one-line message names the resource and the
-command.
+Resources are VISA resource strings checked by ``drivers.resources`` (socket, HiSLIP,
+VXI-11, serial, USB-TMC). The transport frames messages (terminators, IEEE 488.2 blocks),
+keeps connect and I/O deadlines apart (seconds, monotonic clock) and turns every pyvisa,
+pyserial and OS failure into a ``drivers.errors`` exception whose one-line message names
+the resource and the command.
 
-After a timeout or a malformed reply the input may still hold (or later receive) the rest
-of a reply, so the transport resynchronises before the next command (``resync``): it drops
-input until the line has been quiet for a moment; after a timeout it first waits for the
-late reply and, on a socket, reconnects if none comes. A late reply is never read as the
-answer to the next query. Not thread-safe: one owner, one command in flight.
+After a timeout or a malformed reply the transport resynchronises before the next command
+(``resync``): it drops input until the line has been quiet for a moment; after a timeout
+it first waits for the late reply and, on a socket, reconnects if none comes (HiSLIP and
+VXI-11 always reconnect). A late reply is never read as the answer to the next query.
+Not thread-safe: one owner, one command in flight.
 """
 
 from __future__ import annotations
@@ -23,30 +21,29 @@ import os
 import socket
 import time
 from collections.abc import Mapping
-from dataclasses import dataclass, fields
 from typing import Any
 
 from drivers import iolog
-from drivers.blocks import encode_header, parse_header, quote
+from drivers.blockread import BlockReading
+from drivers.blocks import encode_header, quote
 from drivers.deadline import Deadline
 from drivers.errors import (
-    BlockError,
     ConnectError,
     ConnectionLost,
     InstrumentTimeout,
     ReplyError,
 )
 from drivers.links import (
-    HislipLink,
     Link,
     LinkClosed,
     LinkOverflow,
     LinkTimeout,
     SocketLink,
-    VisaLink,
     fast_socket_problem,
 )
 from drivers.resources import parse_resource
+from drivers.serialsettings import SerialSettings, visa_serial_kwargs
+from drivers.visalinks import HislipLink, VisaLink
 from drivers.visaopen import OpenFailed, describe, open_session, resource_manager
 
 LOG = logging.getLogger("sweepd.transport")
@@ -55,64 +52,9 @@ _WARNED: set[str] = set()
 MAX_LINE = 64 * 1024 * 1024  # longest text reply accepted (a 200,001-point ASCII trace is ~8 MB)
 REFUSAL_WAIT_S = 0.05  # how long a refusing instrument gets to say so and hang up
 RESYNC_QUIET_S = 0.1  # input must stay silent this long before the next command after an error
-PARITIES = ("none", "odd", "even", "mark", "space")
-FLOW_CONTROLS = ("none", "xon_xoff", "rts_cts", "dtr_dsr")
 
 
-@dataclass(frozen=True)
-class SerialSettings:
-    """Line settings for ``ASRL`` resources (SCPI leaves these to the instrument)."""
-
-    baud_rate: int = 115200
-    data_bits: int = 8
-    parity: str = "none"
-    stop_bits: float = 1.0
-    flow_control: str = "none"
-
-    @classmethod
-    def from_mapping(cls, values: Mapping[str, Any], resource: str = "") -> SerialSettings:
-        known = {f.name for f in fields(cls)}
-        where = f"instrument {resource}: " if resource else ""
-        for key in values:
-            if key not in known:
-                raise ConnectError(
-                    f"{where}serial.{key}: unknown setting; allowed: {', '.join(sorted(known))}"
-                )
-        settings = cls(**{k: v for k, v in values.items() if v is not None})
-        settings.check(resource)
-        return settings
-
-    def check(self, resource: str = "") -> None:
-        where = f"instrument {resource}: " if resource else ""
-        if (
-            isinstance(self.baud_rate, bool)
-            or not isinstance(self.baud_rate, int)
-            or self.baud_rate < 50
-        ):
-            raise ConnectError(
-                f"{where}serial.baud_rate: must be an integer of at least 50, "
-                f"got {self.baud_rate!r}"
-            )
-        if self.data_bits not in (5, 6, 7, 8):
-            raise ConnectError(
-                f"{where}serial.data_bits: must be 5, 6, 7 or 8, got {self.data_bits!r}"
-            )
-        if self.parity not in PARITIES:
-            raise ConnectError(
-                f"{where}serial.parity: must be one of {', '.join(PARITIES)}, got {self.parity!r}"
-            )
-        if self.stop_bits not in (1, 1.5, 2):
-            raise ConnectError(
-                f"{where}serial.stop_bits: must be 1, 1.5 or 2, got {self.stop_bits!r}"
-            )
-        if self.flow_control not in FLOW_CONTROLS:
-            raise ConnectError(
-                f"{where}serial.flow_control: must be one of {', '.join(FLOW_CONTROLS)}, "
-                f"got {self.flow_control!r}"
-            )
-
-
-class Transport:
+class Transport(BlockReading):
     """One instrument connection; constructing it does no I/O."""
 
     def __init__(
@@ -166,7 +108,7 @@ class Transport:
             return
         kwargs: dict[str, Any] = {"open_timeout": max(1, int(self.connect_timeout_s * 1000))}
         if self.is_serial:
-            kwargs.update(self._serial_kwargs())
+            kwargs.update(visa_serial_kwargs(self.serial))
         else:
             self._resolve_host()
         try:
@@ -212,7 +154,7 @@ class Transport:
     def _make_link(self, resource: Any) -> Link:
         resource.read_termination = None
         resource.write_termination = ""
-        if self.kind == "hislip":
+        if self.kind in ("hislip", "vxi11"):
             return HislipLink(resource)
         if self.kind != "socket":
             return VisaLink(resource)
@@ -237,35 +179,6 @@ class Transport:
         if error:
             # pyvisa-py reports a refused connect as success; the socket knows better.
             raise ConnectError(f"instrument {self.resource}: cannot open: {os.strerror(error)}")
-
-    def _serial_kwargs(self) -> dict[str, Any]:
-        from pyvisa import constants
-
-        parity = {
-            "none": constants.Parity.none,
-            "odd": constants.Parity.odd,
-            "even": constants.Parity.even,
-            "mark": constants.Parity.mark,
-            "space": constants.Parity.space,
-        }[self.serial.parity]
-        stop = {
-            1: constants.StopBits.one,
-            1.5: constants.StopBits.one_and_a_half,
-            2: constants.StopBits.two,
-        }[self.serial.stop_bits]
-        flow = {
-            "none": constants.ControlFlow.none,
-            "xon_xoff": constants.ControlFlow.xon_xoff,
-            "rts_cts": constants.ControlFlow.rts_cts,
-            "dtr_dsr": constants.ControlFlow.dtr_dsr,
-        }[self.serial.flow_control]
-        return {
-            "baud_rate": self.serial.baud_rate,
-            "data_bits": self.serial.data_bits,
-            "parity": parity,
-            "stop_bits": stop,
-            "flow_control": flow,
-        }
 
     # -- messages ------------------------------------------------------------------
     def write(self, command: str) -> None:
@@ -344,31 +257,6 @@ class Transport:
         except LinkClosed as exc:
             self._lost(command, exc)
         return self._read_block(command, expected, into, deadline, what)
-
-    def _read_block(
-        self, command: str, expected: int, into: memoryview | None, deadline: Deadline, what: str
-    ) -> memoryview:
-        link = self._require_open(command)
-        prefix = f"instrument {self.resource}: '{command}'"
-        try:
-            length = self._read_header(prefix, link, deadline)
-            if length is not None and length != expected:
-                self._skip_wrong_block(link, length, expected, deadline)
-                raise BlockError(f"{prefix} {_wrong_length(length, expected, what)}")
-            target = into if into is not None else memoryview(bytearray(expected))
-            if len(target) != expected:
-                raise ValueError("buffer size differs from the expected payload")
-            self._read_payload(prefix, link, target, deadline)
-            self._expect_terminator(prefix, link, deadline)
-            self._io("<", block=(self._header, expected, self.read_termination))
-            return target
-        except BlockError:
-            self._dirty = self._dirty or "garbled"
-            raise
-        except LinkTimeout as exc:
-            self._timed_out(command, deadline, exc)
-        except LinkClosed as exc:
-            self._lost(command, exc)
 
     # -- recovery ------------------------------------------------------------------
     def clear_input(self) -> bytes:
@@ -484,75 +372,6 @@ class Transport:
             return raw[: -len(term)]
         return raw[:-1].rstrip(b"\r")
 
-    def _read_header(self, prefix: str, link: Link, deadline: Deadline) -> int | None:
-        """Consume ``#<d><digits>``; the payload length, or ``None`` for ``#0``."""
-        head = link.read_exact(1, deadline)
-        if head == b"#":
-            head += link.read_exact(1, deadline)
-            if head[1:].isdigit() and head[1:] != b"0":
-                head += link.read_exact(head[1] - 0x30, deadline)
-        self._header = head
-        try:
-            _, length = parse_header(head)
-        except BlockError as exc:
-            if self.read_termination[-1] not in head:
-                head += self._rest_of_line(link, deadline)
-            self._io("<", head)
-            detail = str(exc).split(": starts ")[0]
-            raise BlockError(f"{prefix} {detail}: starts {quote(head)}") from None
-        return length
-
-    def _rest_of_line(self, link: Link, deadline: Deadline) -> bytes:
-        short = Deadline(min(deadline.remaining() or 1.0, 1.0))
-        try:
-            return link.read_until(self.read_termination[-1], short, 4096)
-        except (LinkTimeout, LinkOverflow) as exc:
-            self._dirty = "timeout"
-            return exc.partial
-
-    def _skip_wrong_block(self, link: Link, length: int, expected: int, deadline: Deadline) -> None:
-        """Consume a block of the wrong size so the next reply starts in step."""
-        if length > 4 * expected + (1 << 20):
-            self._dirty = "timeout"  # absurd length: resynchronise instead of reading it
-            return
-        try:
-            link.read_exact(length + len(self.read_termination), deadline)
-        except LinkTimeout:
-            self._dirty = "timeout"
-
-    def _read_payload(self, prefix: str, link: Link, view: memoryview, deadline: Deadline) -> None:
-        try:
-            link.read_into(view, deadline)
-        except LinkTimeout:
-            self._dirty = "timeout"
-            raise BlockError(
-                f"{prefix} block truncated: {len(view)} payload bytes announced, fewer arrived "
-                f"within {deadline.seconds:.3g} s"
-            ) from None
-        except LinkClosed as exc:
-            self.close()
-            raise ConnectionLost(f"{prefix} block truncated: {exc.args[0]}") from None
-
-    def _expect_terminator(self, prefix: str, link: Link, deadline: Deadline) -> None:
-        term = self.read_termination
-        tail = b""
-        try:
-            tail = link.read_exact(1, deadline)
-            if tail == term[-1:]:
-                return  # a lone LF is accepted for CR LF
-            if len(term) > 1 and tail == term[:1]:
-                tail += link.read_exact(len(term) - 1, deadline)
-                if tail == term:
-                    return
-        except LinkTimeout:
-            pass
-        self._dirty = self._dirty or "garbled"
-        shown = quote(tail) if tail else "nothing"
-        raise BlockError(
-            f"{prefix} block payload is followed by {shown}, expected the terminator {term!r} "
-            "(more data than announced)"
-        )
-
     def _timed_out(self, command: str, deadline: Deadline, exc: LinkTimeout) -> Any:
         self._dirty = "timeout"
         self._io(f"timeout after {deadline.seconds:.3g} s", exc.partial)
@@ -569,13 +388,8 @@ class Transport:
     def _lost(self, command: str, exc: LinkClosed) -> Any:
         self._io(f"lost ({exc.args[0]})")
         self.close()
-        raise ConnectionLost(
-            f"instrument {self.resource}: connection lost during '{command}': {exc.args[0]}"
-        ) from None
-
-
-def _wrong_length(length: int, expected: int, what: str) -> str:
-    return f"block holds {length} bytes, expected {expected}" + (f" ({what})" if what else "")
+        where = f"instrument {self.resource}: connection lost during '{command}'"
+        raise ConnectionLost(f"{where}: {exc.args[0]}") from None
 
 
 def _quiet_close(resource: Any) -> None:

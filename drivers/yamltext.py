@@ -35,8 +35,9 @@ def load_yaml_text(text: str, source: str, error: type[Exception]) -> Any:
     """Bounded ``yaml.safe_load`` of ``text`` (``source`` names it in messages)."""
     import yaml
 
-    loader = yaml.SafeLoader(text)
+    loader = None
     try:
+        loader = yaml.SafeLoader(text)  # its reader refuses control characters here
         node = loader.get_single_node()
         if node is None:
             return None
@@ -55,7 +56,8 @@ def load_yaml_text(text: str, source: str, error: type[Exception]) -> Any:
     except ValueError as exc:  # an integer beyond Python's digit limit, a bad date
         raise error(_one_line(f"{source}: value out of range: {str(exc)[:80]}")) from None
     finally:
-        loader.dispose()
+        if loader is not None:
+            loader.dispose()
 
 
 def _read_text(path: Path, source: str, error: type[Exception]) -> str:

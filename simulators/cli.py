@@ -42,7 +42,8 @@ def serve(args: argparse.Namespace, out: Any = None) -> int:
 
     hislip_port = None if getattr(args, "no_hislip", False) else args.hislip_port
     sim = SimServer(personality=args.personality, tcp_port=None if args.no_tcp else args.port,
-                    hislip_port=hislip_port, serial=args.serial, control_port=args.control_port,
+                    hislip_port=hislip_port, vxi11_port=getattr(args, "vxi11_port", None),
+                    serial=args.serial, control_port=args.control_port,
                     time_scale=args.time_scale, noise=args.noise, seed=args.seed,
                     frozen=args.frozen, kit=args.kit, lot=args.lot, clock_rate=args.clock_rate)
     if args.device != "patch-2g45" or args.param:

@@ -15,7 +15,8 @@ Kinds and their options (defaults in brackets):
 Each armed fault fires on an event, ``on``: ``data`` (the next reply carrying trace data),
 ``reply`` (the next reply of any query), ``sweep`` (the next sweep start) or ``now`` (at
 once; error and reboot only). Defaults: ``sweep`` for error and reboot, ``data`` for the
-rest. ``count=N`` fires on N events; ``endpoint`` ("tcp"/"serial"/"hislip") restricts
+rest. ``count=N`` fires on N events; ``endpoint`` ("tcp"/"serial"/"hislip"/"vxi11")
+restricts
 where.
 ``schedule(every=N, kind=...)`` arms a one-shot fault at every Nth sweep;
 ``schedule(at=[(index, kind), ...])`` at given sweep indices (1 = first sweep after start).
@@ -34,7 +35,7 @@ from simulators.errors import SimError
 KINDS = ("drop", "stall", "garbage", "truncate", "wrong_count", "error", "reboot")
 REPLY_KINDS = ("drop", "stall", "garbage", "truncate")
 EVENTS = ("data", "reply", "sweep", "now")
-ENDPOINTS = ("tcp", "serial", "hislip")
+ENDPOINTS = ("tcp", "serial", "hislip", "vxi11")
 _OPTIONS: dict[str, dict[str, Any]] = {
     "drop": {},
     "stall": {"seconds": 2.0},

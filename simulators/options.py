@@ -16,6 +16,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--hislip-port", type=int, default=0, metavar="N",
                         help="HiSLIP port on 127.0.0.1 (0 picks a free one; default 0)")
     parser.add_argument("--no-hislip", action="store_true", help="do not serve HiSLIP")
+    parser.add_argument("--vxi11-port", type=int, default=None, metavar="N",
+                        help="also serve VXI-11 on this port (0 picks a free one)")
     parser.add_argument("--serial", action="store_true",
                         help="also serve on a pseudo-terminal (ASRL/dev/pts/N::INSTR)")
     parser.add_argument("--personality", default="generic",

@@ -33,6 +33,11 @@ class SimProcess:
         return next((r for r in self.resources if r.upper().endswith("::SOCKET")), None)
 
     @property
+    def vxi11_resource(self) -> str | None:
+        return next((r for r in self.resources if "," in r and "::HISLIP" not in r.upper()),
+                    None)
+
+    @property
     def hislip_resource(self) -> str | None:
         return next((r for r in self.resources if "::HISLIP" in r.upper()), None)
 

@@ -5,6 +5,7 @@
         sim.tcp_resource        # "TCPIP::127.0.0.1::<port>::SOCKET"
         sim.serial_resource     # "ASRL/dev/pts/<n>::INSTR" (None without serial=True)
         sim.hislip_resource     # "TCPIP::127.0.0.1::hislip0,<port>::INSTR" (with hislip_port)
+        sim.vxi11_resource      # "TCPIP::127.0.0.1,<port>::INSTR" (with vxi11_port)
         sim.control_address     # ("127.0.0.1", port)
         sim.bench.connect("open")
         sim.faults.arm("drop")
@@ -37,6 +38,7 @@ class SimServer:
 
     def __init__(self, personality: str = "generic", tcp_port: int | None = 0,
                  serial: bool = False, hislip_port: int | None = None,
+                 vxi11_port: int | None = None,
                  control_port: int | None = 0, time_scale: float = 0.0,
                  noise: bool = False, seed: int = 1, frozen: bool = False,
                  kit: str | Path = DEFAULT_KIT, device: str = "patch-2g45",
@@ -66,6 +68,8 @@ class SimServer:
         self.serial: SerialEndpoint | None = None
         self._hislip_port = hislip_port
         self.hislip: Any = None
+        self._vxi11_port = vxi11_port
+        self.vxi11: Any = None
         self.control: Any = None
         self._started = False
 
@@ -88,6 +92,12 @@ class SimServer:
                 self.hislip = HislipEndpoint(self.core, self.tree, self.terminator,
                                              self._hislip_port, seed=self._seed)
                 self.hislip.start()
+            if self._vxi11_port is not None:
+                from simulators.vxi11 import VxiEndpoint
+
+                self.vxi11 = VxiEndpoint(self.core, self.tree, self.terminator,
+                                         self._vxi11_port, seed=self._seed)
+                self.vxi11.start()
             if self._control_port is not None:
                 from simulators.control import ControlServer
 
@@ -101,7 +111,7 @@ class SimServer:
     def stop(self) -> None:
         """Close every endpoint and join the threads (a few hundred ms at most)."""
         self.core.stop()
-        for part in (self.control, self.tcp, self.serial, self.hislip):
+        for part in (self.control, self.tcp, self.serial, self.hislip, self.vxi11):
             if part is not None:
                 part.stop()
 
@@ -125,11 +135,16 @@ class SimServer:
         return self.hislip.resource if self.hislip else None
 
     @property
+    def vxi11_resource(self) -> str | None:
+        return self.vxi11.resource if self.vxi11 else None
+
+    @property
     def control_address(self) -> tuple[str, int] | None:
         return self.control.address if self.control else None
 
     def resources(self) -> list[str]:
-        return [r for r in (self.tcp_resource, self.serial_resource, self.hislip_resource) if r]
+        return [r for r in (self.tcp_resource, self.serial_resource, self.hislip_resource,
+                            self.vxi11_resource) if r]
 
     # -- knobs -------------------------------------------------------------------------
     @property
@@ -165,7 +180,7 @@ class SimServer:
 
     # -- internals -----------------------------------------------------------------------
     def _on_reboot(self, down_s: float) -> None:
-        for endpoint in (self.tcp, self.serial, self.hislip):
+        for endpoint in (self.tcp, self.serial, self.hislip, self.vxi11):
             if endpoint is not None:
                 endpoint.on_reboot()
 

@@ -12,7 +12,8 @@ It speaks just enough of the generic SCPI dialect (configs/dialects/scpi-generic
 - ``garbage``       answers the trace query with bytes that are no block;
 - ``wrong_length``  sends a block one value short;
 - ``huge_header``   announces a block of 999,999,999 bytes and sends a few;
-- ``endless_line``  answers the sweep-time query with 2 MB of digits and no terminator.
+- ``endless_line``  answers the sweep-time query with 2 MB of digits and no terminator;
+- ``never_done``    its condition register (``:STAT:OPER:COND?``) says "sweeping" forever.
 
 Quirk options shape honest replies: ``triplets`` (each point as frequency, re, im),
 ``pad`` (NUL bytes and blanks around replies),
@@ -30,7 +31,7 @@ import threading
 import numpy as np
 
 MODES = ("honest", "slow_claim", "liar", "flood", "truncate", "silent", "garbage",
-         "wrong_length", "huge_header", "endless_line")
+         "wrong_length", "huge_header", "endless_line", "never_done")
 
 
 class FakeInstrument:
@@ -135,6 +136,8 @@ class FakeInstrument:
             return self._trace()
         if head in ("*OPC?",):
             return b"1"
+        if head == "STAT:OPER:COND?":  # bit 4: sweeping
+            return b"16" if self.mode == "never_done" else b"0"
         if head.startswith("FORM:DATA"):
             if head.endswith("?"):
                 return self._text(self.format)

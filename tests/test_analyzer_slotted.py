@@ -16,7 +16,7 @@ from test_analyzer import STIM, TWO_PORT, columns, expected_raw
 
 from drivers.analyzer import Analyzer
 from drivers.dialect import DIALECT_DIR, load_dialect
-from drivers.errors import DialectError, InstrumentError, ReplyError
+from drivers.errors import DialectError, InstrumentError, ReplyError, SettingMismatch
 from drivers.replies import Identity
 from drivers.stimulus import Stimulus
 from drivers.transport import Transport
@@ -185,3 +185,18 @@ def test_a_freq_layout_takes_no_axis_query(tmp_path: Path) -> None:
     with pytest.raises(DialectError, match=r"data\.frequency: layout freq_db_deg sends the "
                                            r"frequencies with each trace"):
         load_dialect(path)
+
+
+def test_a_fixed_power_is_never_sent_and_a_plan_asking_another_is_refused(
+    tmp_path: Path,
+) -> None:
+    fixed = variant(tmp_path, GENERIC, settings__power={"fixed": 0.0,
+                                                        "tolerance": {"absolute": 0.01}})
+    with FakeInstrument() as fake, Analyzer(fake.resource, fixed) as an:
+        stim = Stimulus(1e9, 2e9, 11, 0.0, 1e3)
+        assert an.configure(stim) == stim
+        assert not any("POW" in line.upper() for line in fake.received)
+        with pytest.raises(SettingMismatch) as info:
+            an.configure(Stimulus(1e9, 2e9, 11, -10.0, 1e3))
+    assert "setting power: the plan asks -10 dBm, the instrument has a fixed 0 dBm" in str(
+        info.value) and "settings.power.fixed" in str(info.value)

@@ -3,12 +3,14 @@ that holds it when one on this computer does; no raw bytes in the message."""
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import pytest
 from test_station_support import write_plan
 
+from acquire.capture.session import Session
 from acquire.holders import busy_message
 from acquire.plan import load_plan
-from acquire.runner import Session
 from acquire.soak.spool import Spool
 from drivers.errors import ConnectError
 from simulators.server import SimServer
@@ -46,8 +48,8 @@ def test_a_second_session_on_a_busy_simulator(tmp_path, monkeypatch):
     with SimServer(time_scale=0.0, noise=False) as sim:
         plan = load_plan(write_plan(tmp_path, sim.tcp_resource))
         with Session(plan, sim.tcp_resource):
-            second = Session(plan, sim.tcp_resource)
-            second.analyzer.transport.connect_timeout_s = 0.3
+            quick = replace(plan, instrument=replace(plan.instrument, connect_timeout_s=0.3))
+            second = Session(quick, sim.tcp_resource)
             with pytest.raises(ConnectError) as info:
                 second.open()
     message = str(info.value)

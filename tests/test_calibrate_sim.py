@@ -17,11 +17,11 @@ import pytest
 
 import acquire.utc
 from acquire.calibration import CalSet, load_kit
+from acquire.capture.session import Session
 from acquire.cli import main
 from acquire.errors import CalError
 from acquire.guided import Aborted, Options, calibrate
 from acquire.plan import load_plan
-from acquire.runner import Session
 from simulators.bench import noise_sigma
 from simulators.server import SimServer
 

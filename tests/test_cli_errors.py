@@ -135,3 +135,19 @@ def test_numpy_runtime_warnings_never_reach_stderr(unit: Path) -> None:
     assert quiet.returncode == 0 and quiet.stderr == ""
     loud = run_limited(["-vv", "check", str(unit), "--mask", "patch-2g45"], code=code)
     assert loud.returncode == 0 and "DEBUG sweepd.warnings: RuntimeWarning" in loud.stderr
+
+
+def test_measure_json_prints_one_object_even_on_an_unexpected_exception(
+        monkeypatch, capsys, tmp_path: Path) -> None:
+    plan = tmp_path / "p.yaml"
+    plan.write_text("plan: patch-check\n"
+                    "instrument: {resource: \"TCPIP::127.0.0.1::5025::SOCKET\", "
+                    "dialect: scpi-generic}\n"
+                    "stimulus: {start: 2.3 GHz, stop: 2.6 GHz, points: 31, power: -10 dBm, "
+                    "if_bandwidth: 1 kHz}\nmeasure: S11\n")
+    monkeypatch.setattr("acquire.station.measure.measure_one", _explode)
+    code = main(["measure", str(plan), "--serial", "PA-0001", "--json"])
+    out, err = capsys.readouterr()
+    doc = json.loads(out)
+    assert code == 2 and "internal error (RuntimeError" in doc["error"]
+    assert "\n" not in doc["error"] and err.count("\n") == 1

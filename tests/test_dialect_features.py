@@ -57,6 +57,12 @@ def test_a_select_makes_the_trace_placeholder_unneeded(tmp_path: Path) -> None:
     assert load_dialect(write(tmp_path, doc)).trace_query.text == "FETCh:SLOT?"
 
 
+def test_a_fixed_setting_has_no_commands(tmp_path: Path) -> None:
+    doc = mutated(SLOTTED, "settings.power", {"fixed": -5.0, "tolerance": {"absolute": 0.1}})
+    spec = load_dialect(write(tmp_path, doc)).settings["power"]
+    assert (spec.fixed, spec.set, spec.query, spec.absolute) == (-5.0, (), None, 0.1)
+
+
 def test_opc_query_is_needed_only_where_it_is_used(tmp_path: Path) -> None:
     doc = mutated(SLOTTED, "session.opc_query", DELETE)  # wait: poll never asks it
     assert load_dialect(write(tmp_path, doc)).opc_query is None
@@ -154,6 +160,10 @@ BAD: list[tuple[str, Any, str]] = [
      "session.identity_reply.separator: must be 1 to 4 printable characters, got ' -- ,'"),
     ("settings.start.read_scale", -1e3, "settings.start.read_scale: must be above 0"),
     ("settings.points.read_scale", 10, "settings.points.read_scale: applies to real settings"),
+    ("settings.start", {"fixed": 1e9}, "settings.start.fixed: only power and if_bandwidth"),
+    ("settings.power", {"fixed": 0.0, "set": "X {value}"}, "settings.power: unknown key 'set'"),
+    ("settings.power", {"fixed": float("nan")}, "settings.power.fixed: must be a finite"),
+    ("settings.if_bandwidth", {"fixed": 0}, "settings.if_bandwidth.fixed: must be"),
 ]
 
 

@@ -225,8 +225,8 @@ def test_titles_and_zone_names_are_drawn_as_typed() -> None:
     fig = render(profile, find_peaks(profile), title=title,
                  zones=(Zone(0, zone, 1.0, None, "return_loss", 20.0),))
     texts = [fig._suptitle, *(t for ax in fig.axes for t in ax.texts)]
-    shown = {t.get_text(): t._preprocess_math(t.get_text()) for t in texts}
-    assert shown[title] == (title, False) and shown[zone] == (zone, False)
+    drawn = [t._preprocess_math(t.get_text()) for t in texts]  # what the library draws
+    assert (title, False) in drawn and (zone, False) in drawn
 
 
 def test_every_json_key_is_documented(s1p, capsys) -> None:

@@ -21,9 +21,10 @@ import pytest
 import drivers.transport
 from drivers.analyzer import Analyzer
 from drivers.dialect import load_dialect
-from drivers.links import TESTED_PYVISA_PY, SocketLink, VisaLink, fast_socket_problem
+from drivers.links import TESTED_PYVISA_PY, SocketLink, fast_socket_problem
 from drivers.stimulus import Stimulus
 from drivers.transport import Transport
+from drivers.visalinks import VisaLink
 from simulators.server import SimServer
 
 ROOT = Path(__file__).resolve().parents[1]

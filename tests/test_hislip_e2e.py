@@ -1,7 +1,8 @@
-"""Calibrate, run, station and soak over HiSLIP (generic personality), end to end.
+"""Calibrate, run, station and soak over HiSLIP and VXI-11 (generic personality), end to
+end.
 
-The same paths the TCP and serial tests take, through pyvisa-py's HiSLIP client and the
-simulator's HiSLIP server. Outside reference for the corrected data: the simulator's
+The same paths the TCP and serial tests take, through pyvisa-py's HiSLIP and VXI-11
+clients and the simulator's servers. Outside reference for the corrected data: the simulator's
 ground truth of the device in the fixture (independent code: its own kit reader, error
 box and device models).
 """
@@ -34,23 +35,29 @@ STORM = [
 
 @pytest.fixture
 def sim():
-    with SimServer(tcp_port=None, hislip_port=0, time_scale=0.0, noise=False) as server:
+    with SimServer(tcp_port=None, hislip_port=0, vxi11_port=0, time_scale=0.0,
+                   noise=False) as server:
         yield server
 
 
-def test_calibrate_then_run_over_hislip(sim: SimServer, tmp_path: Path,
-                                        capsys: pytest.CaptureFixture) -> None:
+def _resource(sim: SimServer, protocol: str) -> str:
+    return sim.hislip_resource if protocol == "hislip" else sim.vxi11_resource
+
+
+@pytest.mark.parametrize("protocol", ["hislip", "vxi11"])
+def test_calibrate_then_run_over_the_lan(sim: SimServer, tmp_path: Path,
+                                         capsys: pytest.CaptureFixture, protocol: str) -> None:
     from acquire.touchstone import read_touchstone
 
+    resource = _resource(sim, protocol)
     patch = tmp_path / "plans" / "patch-line-a.yaml"
     patch.parent.mkdir()
     patch.write_text(PATCH.read_text())
-    assert main(["calibrate", str(patch), "--resource", sim.hislip_resource,
+    assert main(["calibrate", str(patch), "--resource", resource,
                  "--prompt", "switch", "--verify", "load"]) == 0
     assert "verification passed" in capsys.readouterr().out
     out = tmp_path / "out"
-    assert main(["run", str(patch), "--resource", sim.hislip_resource, "--output",
-                 str(out)]) == 0
+    assert main(["run", str(patch), "--resource", resource, "--output", str(out)]) == 0
     (path,) = out.glob("*.s1p")
     got = read_touchstone(path).to_sweep()
     truth = sim.bench.truth(got.freq_hz)[:, 0, 0]
@@ -79,11 +86,13 @@ def test_station_batch_over_hislip(sim: SimServer, tmp_path: Path) -> None:
 
 
 @pytest.mark.timeout(120)
-def test_soak_over_hislip_with_every_wire_fault(sim: SimServer, tmp_path: Path) -> None:
+@pytest.mark.parametrize("protocol", ["hislip", "vxi11"])
+def test_soak_over_the_lan_with_every_wire_fault(sim: SimServer, tmp_path: Path,
+                                                 protocol: str) -> None:
     spool = Spool(tmp_path / "spool").ensure()
     sim.faults.schedule(at=STORM)
-    job = submit(spool, soak_plan(tmp_path / "p.yaml", sim.hislip_resource, tmp_path / "out",
-                                  count=60, points=51))
+    job = submit(spool, soak_plan(tmp_path / "p.yaml", _resource(sim, protocol),
+                                  tmp_path / "out", count=60, points=51))
     result: dict[str, str] = {}
     worker = threading.Thread(target=lambda: result.__setitem__("r", SoakWorker(
         job, StopSignal()).run()))
@@ -94,4 +103,4 @@ def test_soak_over_hislip_with_every_wire_fault(sim: SimServer, tmp_path: Path) 
     assert states["stored"] + states["measured"] >= 60 - 8
     kinds = {f["kind"] for f in journal_rows(job)[2]}
     assert {"connection-lost", "timeout", "bad-block", "scpi-error", "settings-lost"} <= kinds
-    assert {f["endpoint"] for f in sim.faults.fired if f["event"] != "now"} <= {"hislip", None}
+    assert {f["endpoint"] for f in sim.faults.fired if f["event"] != "now"} <= {protocol, None}

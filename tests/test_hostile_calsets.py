@@ -153,3 +153,35 @@ def test_a_bad_cal_set_is_skipped_with_a_warning_and_a_good_one_used(
         found = find_latest(tmp_path, "patch-line-a", IDN)
     assert found is not None and found.id == CalSet.load(good).id
     assert f"skipping cal set {bad}" in caplog.text
+
+
+# -- unfinished calibration files (calibrate --resume) read with the same bounds ----------
+
+def _partial_image(tmp_path: Path) -> bytes:
+    from acquire.guided.partial import Fingerprint, Partial, partial_path
+
+    fp = Fingerprint("patch", "one-port", IDN, STIM, KIT.name, KIT.sha256)
+    partial = Partial(fp, freq_hz=STIM.frequencies())
+    partial.readings["open"] = {"S11": np.ones(STIM.points, complex)}
+    partial.status["open"] = "done"
+    return partial.save(partial_path(tmp_path, "patch")).read_bytes()
+
+
+@pytest.mark.parametrize(("change", "message"), [
+    (lambda img: rebuild(img, header=raw_value("plan", "[" * 100_000 + "]" * 100_000)),
+     r"nested deeper than 16 levels"),
+    (lambda img: rebuild(img, members={"freq_hz.npy": npy_claiming((10**12,))}),
+     r"array 'freq_hz.npy' is float64\[1000000000000\], expected float64\[51\]"),
+    (lambda img: rebuild(img, members={"raw/open.S11.npy": npy_claiming((51,), np.complex128)}),
+     r"array 'raw/open.S11.npy' is damaged \(64 data bytes for \[51\]\)"),
+    (lambda img: rebuild(img, compress="freq_hz.npy"), r"member 'freq_hz.npy' is compressed"),
+])
+def test_hostile_unfinished_calibration_is_one_line(tmp_path: Path, change, message: str) -> None:
+    from acquire.guided.partial import load_partial
+
+    path = tmp_path / "x.partial-cal"
+    path.write_bytes(change(_partial_image(tmp_path)))
+    with pytest.raises(CalError, match=message) as info:
+        load_partial(path)
+    assert str(info.value).startswith(f"unfinished calibration {path}: ")
+    assert "\n" not in str(info.value)

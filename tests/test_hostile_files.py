@@ -203,6 +203,7 @@ def _load_any(kind: str, path: Path):
     ("a: " + "{b: " * 3000 + "1" + "}" * 3000 + "\n", r"nested too deeply \(at most 64 levels\)"),
     (f"a: {'9' * 5000}\n", r"value out of range"),
     ("a: 2020-99-99\n", r"value out of range"),
+    ("\x00lan: x\n", r"YAML error: unacceptable character #x0000"),  # found by the fuzz suite
 ])
 def test_hostile_yaml_is_one_line_for_every_file_kind(tmp_path: Path, kind: str, text: str,
                                                       message: str) -> None:
@@ -239,3 +240,19 @@ def test_the_bomb_from_the_report_fails_fast_in_a_subprocess(tmp_path: Path) -> 
     result = run_limited(["check", str(unit), "--plan", str(path)], memory_mb=512, timeout=30)
     assert result.returncode == 2, result.stderr
     assert result.stderr.count("\n") == 1 and "aliases expand" in result.stderr
+
+
+@pytest.mark.parametrize(("section", "message"), [
+    ("calibration: {method: one-port, kit: generic-sma-50, max_age: 1e300 s}",
+     r"calibration\.max_age: must be from 1 s to 3\.16224e\+09 s"),
+    ("stimulus: {start: 1e300 Hz, stop: 2e300 Hz, points: 3, power: 0 dBm, "
+     "if_bandwidth: 1 kHz}", r"stimulus\.start: must be from 1 Hz to 1e\+15 Hz"),
+])
+def test_times_and_frequencies_have_a_range_even_when_a_field_gives_none(
+        tmp_path: Path, section: str, message: str) -> None:
+    plan = tmp_path / "p.yaml"
+    key = section.split(":")[0]
+    lines = [line for line in PLAN.splitlines() if not line.startswith(f"{key}:")]
+    plan.write_text("\n".join([*lines, section]) + "\n")
+    with pytest.raises(ConfigError, match=message):
+        load_plan(plan)

@@ -19,6 +19,7 @@ import yaml
 from fake_instrument import FakeInstrument
 
 from acquire.cli import main
+from drivers.dialect import DIALECT_DIR
 
 TIMEOUT_S = 0.5
 
@@ -112,3 +113,23 @@ def test_a_flood_is_counted_not_spelled_out(tmp_path: Path, capsys: pytest.Captu
     assert err.count("(+63 more)") == 3 and err.count('-350 "') == 3
     texts = re.findall(r'-350 "([^"]*)"', err)
     assert len(texts) == 3 and all(len(text) <= 80 for text in texts), texts
+
+
+def test_polling_gives_up_at_the_sweep_time_aware_deadline(
+    tmp_path: Path, capsys: pytest.CaptureFixture
+) -> None:
+    # A dialect that polls a condition register whose bit 4 means "sweeping".
+    doc = yaml.safe_load((DIALECT_DIR / "scpi-generic.yaml").read_text())
+    doc["trigger"] = {"command": ":INIT:IMM", "wait": "poll", "sweep_time_query":
+                      ":SENS:SWE:TIME?", "poll": {"query": ":STAT:OPER:COND?", "done_bit": 4,
+                                                  "done_when": "clear", "interval": 0.01}}
+    dialect = tmp_path / "polling.yaml"
+    dialect.write_text(yaml.safe_dump(doc))
+    for mode, want in (("honest", 0), ("never_done", 2)):
+        with FakeInstrument(mode) as fake:
+            code, err, elapsed = run_against(fake, tmp_path, capsys, dialect=str(dialect))
+        assert code == want, err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and "':STAT:OPER:COND?' still not done after 0.52 s" in lines[0]
+    assert "sweep time 0.01 s" in lines[0]
+    assert elapsed < TIMEOUT_S + 3.0

@@ -80,3 +80,17 @@ def test_metadata_comments_with_deep_json_stay_comments() -> None:
             "# GHz S RI R 50\n1 0 0\n")
     ts = parse_touchstone(text, ports=1)
     assert ts.meta == {"plan": "p"}  # the rest stays comment text, nothing raises
+
+
+@pytest.mark.parametrize("text", [
+    "[Version] " + "9" * 1_000_000 + "\n",
+    "[Version] 2.0\n# GHz S RI R 50\n[Number of Ports] 1\n[Two-Port Data Order] "
+    + "x" * 1_000_000 + "\n",
+    "[Version] 2.0\n" + "y" * 1_000_000 + "\n",
+    "# GHz S RI R 50 " + "Q" * 1_000_000 + "\n1 0 0\n",
+    "# GHz S RI R 50\n1 0 " + "z" * 1_000_000 + "\n",
+])
+def test_messages_show_a_bounded_part_of_a_huge_line(text: str) -> None:
+    with pytest.raises(TouchstoneError) as info:
+        parse_touchstone(text, ports=1)
+    assert len(str(info.value)) < 400 and "\n" not in str(info.value)

@@ -155,12 +155,12 @@ def _header_of(data: bytes) -> str:
 
 def test_ctrl_c_with_json_prints_the_error_document_and_exits_130(
         tmp_path: Path, capsys: pytest.CaptureFixture, monkeypatch: pytest.MonkeyPatch) -> None:
-    import acquire.measure
+    import acquire.capture.run
 
     def interrupted(*args: object, **kwargs: object) -> None:
         raise KeyboardInterrupt  # what Ctrl-C raises in the middle of a sweep
 
-    monkeypatch.setattr(acquire.measure, "measure_and_save", interrupted)
+    monkeypatch.setattr(acquire.capture.run, "run_plan", interrupted)
     plan = copy_plan(tmp_path, "cable-line")
     code, out, err = cli(capsys, "run", str(plan), "--json")
     assert code == 130 and err == "sweepd: interrupted\n"

@@ -163,5 +163,24 @@ def test_check_prints_markers_and_json_lists_them(tmp_path, capsys):
     assert check_cmd.run(parser.parse_args([str(path), "--mask", "patch-2g45", "--json",
                                             "--marker", "2.45GHz"])) == 0
     doc = json.loads(capsys.readouterr().out)
+    from schema_support import validate
+
+    validate(doc, "verdict")  # configs/schemas/verdict.schema.json describes the markers
     (mk,) = doc["markers"]
     assert mk["frequency_hz"] == 2.45e9 and mk["swr"] == pytest.approx(100 / 90, abs=1e-3)
+
+
+def test_check_with_markers_only_reads_them_out(tmp_path, capsys):
+    from schema_support import validate
+
+    from acquire.touchstone import write_touchstone
+
+    path = write_touchstone(tmp_path / "unit.s1p", Sweep(F, antenna(F)))
+    parser = argparse.ArgumentParser()
+    check_cmd.add_arguments(parser)
+    assert check_cmd.run(parser.parse_args([str(path), "--marker", "min"])) == 0
+    out = capsys.readouterr().out
+    assert out.startswith(f"{path}: NONE") and "marker 1 minimum |S11|" in out
+    assert check_cmd.run(parser.parse_args([str(path), "--marker", "min", "--json"])) == 0
+    doc = validate(capsys.readouterr().out, "verdict")
+    assert doc["verdict"] == "none" and doc["markers"][0]["what"] == "minimum |S11|"

@@ -14,7 +14,7 @@ from schema_support import validate
 from test_station_support import BAD, GOOD, captures, install_cal, rows, write_plan
 
 from acquire.cli import main
-from acquire.station.single import RESULT_KEYS
+from acquire.station.measure import RESULT_KEYS
 from simulators.server import SimServer
 
 

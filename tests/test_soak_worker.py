@@ -100,11 +100,12 @@ def test_a_full_disk_holds_the_job_and_it_resumes_when_space_is_back(
         worker = SoakWorker(job)
         thread = threading.Thread(target=worker.run)
         thread.start()
-        for _ in range(200):  # the state file says held first, then the status file
+        for _ in range(600):  # the state file says held first, then the status file
             if job.read_state().get("state") == job.read_status().get("state") == "held":
                 break
             threading.Event().wait(0.05)
         status = job.read_status()
+        assert status.get("state") == "held", (job.read_state(), status)
         assert job.read_state()["state"] == "held"
         assert "disk nearly full: 10.0 MB free" in job.read_state()["reason"]
         assert not list(job.data_dir.glob("*.s1p"))  # nothing captured while held
@@ -148,3 +149,49 @@ def test_cancel_stops_cleanly_and_a_bad_plan_fails_with_one_line(tmp_path: Path)
     assert "not ready for" in reason and "faults.give_up is 1 s" in reason
     assert "\n" not in reason
     check_invariants(bad, len(journal_rows(bad)[1]))
+
+
+def test_a_hold_goes_on_across_a_daemon_restart_as_one_hold(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """The daemon stops while the job is held and starts again with the disk still full:
+    the same hold goes on (one row), the job shows held, and ends when space returns."""
+    from collections import namedtuple
+
+    usage = namedtuple("usage", "total used free")
+    free = {"bytes": 10**9}
+    monkeypatch.setattr("acquire.soak.worker.shutil.disk_usage",
+                        lambda _path: usage(10**9, 10**9 - free["bytes"], free["bytes"]))
+    with SimServer(time_scale=0.0) as sim:
+        job = _job(tmp_path, sim.tcp_resource, every="0.05 s", count=40,
+                   soak={"disk_reserve": "50 MB"})
+        stop = StopSignal()
+        first = threading.Thread(target=SoakWorker(job, stop).run)
+        first.start()
+        wait = threading.Event().wait
+        for _ in range(400):  # a few sweeps first
+            if (job.read_status().get("sweeps") or {}).get("done", 0) >= 3:
+                break
+            wait(0.02)
+        free["bytes"] = 10**6  # the disk fills
+        for _ in range(200):
+            if job.read_state().get("state") == "held":
+                break
+            wait(0.02)
+        stop.set("SIGTERM")
+        first.join(30)
+        assert [h["last_seq"] for h in holds(job)] == [None]  # still open
+        second = SoakWorker(job)
+        thread = threading.Thread(target=second.run)
+        thread.start()
+        for _ in range(200):
+            if second.state == "held" and job.read_state().get("state") == "held":
+                break
+            wait(0.02)
+        assert job.read_state()["state"] == "held"
+        wait(0.3)
+        free["bytes"] = 10**9  # space returns
+        thread.join(30)
+    assert second.state == "finished"
+    (hold,) = holds(job)
+    assert hold["last_seq"] >= hold["first_seq"]
+    check_invariants(job, 40)

@@ -178,6 +178,17 @@ def test_hook_settings_are_checked_when_the_plan_loads(tmp_path, hooks, message)
         station_config(load_plan(plan))
 
 
+def test_a_hook_program_others_may_write_is_refused(tmp_path):
+    lamp = hook_script(tmp_path, "lamp")
+    lamp.chmod(0o777)
+    plan = write_plan(tmp_path, "TCPIP::127.0.0.1::5025::SOCKET",
+                      station={"hooks": {"fail": [str(lamp), "red"]}})
+    with pytest.raises(ConfigError, match=r"writable by group or others \(mode 0777\)"):
+        station_config(load_plan(plan))
+    lamp.chmod(0o755)
+    assert station_config(load_plan(plan)).hooks.commands["fail"] == (str(lamp), "red")
+
+
 def test_a_hung_hook_is_ended_and_reported(tmp_path):
     from acquire.station.hooks import Hooks, run_hook
 

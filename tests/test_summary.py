@@ -18,10 +18,10 @@ import pytest
 from schema_support import validate
 from test_station_support import PLAN
 
+from acquire.capture.records import worst_margin
 from acquire.checks import evaluate_checks
 from acquire.cli import main
 from acquire.journal import StoredFields, journal_in
-from acquire.measure import worst_margin
 from acquire.plan import load_plan
 from acquire.station.counters import count_yield
 from acquire.station.errors import StationError

@@ -112,7 +112,7 @@ def test_plausibility_a_thru_left_out_and_a_thru_left_in(sim: SimServer, tmp_pat
     assert outcome.exit_code == 0
     truth = _truth(tmp_path, 101)
     sim.bench.connect("device")
-    from acquire.runner import Session
+    from acquire.capture.session import Session
 
     with Session(load_plan(plan), sim.tcp_resource) as session:
         raw = session.measure()
@@ -183,7 +183,7 @@ def test_command_backend_is_told_the_port(sim: SimServer, tmp_path: Path) -> Non
         "thru both", "device both"]
     truth = _truth(tmp_path, 101)
     sim.bench.connect("device")
-    from acquire.runner import Session
+    from acquire.capture.session import Session
 
     with Session(load_plan(plan), sim.tcp_resource) as session:
         raw = session.measure()
@@ -203,7 +203,7 @@ def test_two_port_through_the_tabletop_personality_over_serial(tmp_path: Path) -
                                                      prompt="switch"), stdout=io.StringIO())
         assert outcome.exit_code == 0
         table.bench.connect("device")
-        from acquire.runner import Session
+        from acquire.capture.session import Session
 
         with Session(load_plan(plan), table.serial_resource) as session:
             raw = session.measure()

@@ -71,6 +71,8 @@ def test_capture_uncertainty_and_guarded_verdict(tmp_path: Path,
         ts = read_touchstone(summary["capture"]["touchstone"])
         assert any(c.strip().startswith("sweepd uncertainty (k=2) |S11|: max U")
                    for c in ts.comments)
+        assert main(["run", str(first), "--resource", sim.tcp_resource]) == 0
+        assert "\nuncertainty (k=2) |S11|: max U " in capsys.readouterr().out
         gamma = np.abs(ts.data[:, 0, 0])
         inside = (ts.freq_hz >= 2.40e9) & (ts.freq_hz <= 2.50e9)
         worst = float(((1 + gamma) / (1 - gamma))[inside].max())

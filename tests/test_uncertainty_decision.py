@@ -193,3 +193,38 @@ def test_bandwidth_guarded(need_mhz: float, want: str) -> None:
     assert guard["sure_hz"] == pytest.approx(_rlc_band(1 / 3 - 0.01), abs=0.2e6)
     assert guard["possible_hz"] == pytest.approx(_rlc_band(1 / 3 + 0.01), abs=0.2e6)
     assert verdict.verdict == want
+
+
+def test_s21_magnitude_segment_uses_the_transmission_uncertainty() -> None:
+    """|S21| = 0.5 (−6.02 dB) with U = 0.01 in |S21|: a floor at −6.10 dB passes simply
+    (0.08 dB inside) but is indeterminate guarded (20·log10(0.49) = −6.196 dB); a floor
+    at −6.25 dB passes both ways (−6.196 dB is above it)."""
+    from acquire.checks import MaskCheck
+    from acquire.masks import parse_mask
+    from acquire.uncertainty.transmission import TransmissionUncertainty
+
+    s = np.zeros((F.size, 2, 2), complex)
+    s[:, 1, 0] = s[:, 0, 1] = 0.5
+    sweep = Sweep(F, s)
+    n = F.size
+    trans = TransmissionUncertainty(np.full(n, 0.5), np.full(n, 0.005), np.zeros(n),
+                                    np.full(n, 0.01))
+    unc = SweepUncertainty(F, {}, U_001, transmission={"S21": trans})
+    for floor, simple, guarded in (("-6.10 dB", "pass", "indeterminate"),
+                                   ("-6.25 dB", "pass", "pass")):
+        mask = {"name": "pad", "parameter": "S21", "segments": [
+            {"from": "2.40 GHz", "to": "2.50 GHz", "quantity": "magnitude_db", "lower": floor}]}
+        check = MaskCheck(parse_mask(Node(mask, "mask pad.yaml"), default_name="pad",
+                                     source="pad.yaml"))
+        assert evaluate_checks([check], sweep).verdict == simple
+        assert evaluate_checks([check], sweep, decision=GUARDED,
+                               uncertainty=unc).verdict == guarded
+
+
+def test_shipped_guarded_example_plan() -> None:
+    from acquire.library import library_dir
+    from acquire.plan import load_plan
+
+    plan = load_plan(library_dir("plans") / "patch-line-guarded.yaml")
+    assert plan.decision.guarded and plan.decision.guard == 1.0
+    assert plan.decision.budget.load_error == pytest.approx(0.01) and plan.decision.noise_auto

@@ -16,9 +16,9 @@ import numpy as np
 import pytest
 
 from acquire.calibration import OnePortTerms, load_kit
+from acquire.capture.session import Session
 from acquire.guided import Options, calibrate
 from acquire.plan import load_plan
-from acquire.runner import Session
 from acquire.uncertainty.budget import Budget
 from acquire.uncertainty.capture import sweep_uncertainty
 from acquire.uncertainty.transmission import (

@@ -44,7 +44,7 @@ import numpy as np
 from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
 from acquire.calibration.methods import ErrorModel, canonical_name
 from acquire.errors import CalError
-from acquire.jsonsafe import json_safe
+from acquire.jsonclean import json_safe
 from acquire.storage import safe_component, write_new
 from acquire.sweep import Sweep
 from acquire.utc import compact_utc, minute_text, parse_utc, utc_text
@@ -373,6 +373,6 @@ def _parse_time(text: str) -> datetime:
         return parse_utc(text)
     except (AttributeError, TypeError, ValueError):
         raise ValueError(f"created_utc must look like 2026-12-02T06:10:00.000000Z, "
-                         f"got {text!r}") from None
+                         f"got {show(text)}") from None
 
 

@@ -62,8 +62,9 @@ def _run(args: argparse.Namespace) -> int:
                               "is missing or empty); add some, or give --mask MASK")
         checks += list(plan.checks)
         decision = plan.decision
-    if not checks:
-        raise ConfigError("check: nothing to judge against; give --mask MASK or --plan PLAN")
+    if not checks and not args.marker:  # markers alone: their values, verdict "none"
+        raise ConfigError("check: nothing to judge against; give --mask MASK, --plan PLAN "
+                          "or --marker SPEC")
     sweep = read_sweep(args.file)
     readouts = sweep_markers(sweep, args.marker)
     from acquire.uncertainty.capture import from_summary

@@ -24,6 +24,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     check.add_argument("--timeout", type=float, default=DEFAULT_TIMEOUT_S, metavar="S",
                        help=f"seconds to wait for each reply (default {DEFAULT_TIMEOUT_S:g})")
     check.add_argument("--json", action="store_true", help="print one JSON object")
+    check.add_argument("--io-log", metavar="FILE",
+                       help="append every message sent to and received from the instrument "
+                            "to FILE (monotonic times, byte counts)")
 
 
 def run(args: argparse.Namespace) -> int:
@@ -58,6 +61,8 @@ def _check(args: argparse.Namespace) -> int:
 
 def explain(dialect: Any) -> list[dict[str, str]]:
     """Every command template of the file with its key path and what sweepd uses it for."""
+    from drivers.trace_reader import trace_tokens
+
     d = dialect
     rows: list[tuple[str, Any, str]] = [
         ("session.identity", d.identity, "asked on opening (IEEE 488.2 identification)"),
@@ -81,11 +86,21 @@ def explain(dialect: Any) -> list[dict[str, str]]:
         for order in ("big", "little"):
             rows.append((f"data.byte_order.{order}.set", d.byte_orders.command(order)[0],
                          f"selects {order}-endian binary values"))
-    rows += [(f"data.traces.{n}", d.trace_query.render(trace=tok),
-              f"reads {n} ({d.layout} pairs per point)") for n, tok in d.traces.items()]
-    rows += [("data.frequency.query", d.frequency_query, "reads the frequency axis"),
-             ("trigger.command", d.trigger, f"starts one sweep; then waits by {d.wait}"),
+    rows += _measurement_rows(d)
+    rows += [(f"data.traces.{n}", d.trace_query.render(**trace_tokens(d, n)),
+              f"reads {n} ({d.layout} pairs per point)") for n in d.traces]
+    axis = d.frequency
+    if axis is not None:
+        rows += [(f"data.frequency.{k}", t, f"reads the frequency axis ({axis.kind}, "
+                  f"{axis.scale:g} Hz per unit)") for k, t in (
+                      ("query", axis.query), ("start", axis.start), ("stop", axis.stop),
+                      ("points", axis.points))]
+    rows += [("trigger.command", d.trigger, f"starts one sweep; then waits by {d.wait}"),
              ("trigger.wai", d.wai, "holds later commands until the sweep is done"),
+             ("trigger.poll.arm", d.poll.arm if d.poll else None, "sent once after the trigger"),
+             ("trigger.poll.query", d.poll.query if d.poll else None,
+              "asked until the sweep is done"),
+             ("quirks.read_request", d.quirks.read_request, "sent after each query"),
              ("trigger.sweep_time_query", d.sweep_time_query, "sizes the sweep's deadline"),
              ("errors.query", d.error_query,
               f"reads one error-queue entry ({d.error_none_code} = empty)")]
@@ -100,6 +115,24 @@ def explain(dialect: Any) -> list[dict[str, str]]:
         text = template if isinstance(template, str) else template.text
         out.append({"key": key, "command": text, "purpose": purpose})
     return out
+
+
+def _measurement_rows(d: Any) -> list[tuple[str, Any, str]]:
+    from drivers.trace_reader import trace_tokens
+
+    spec = d.measurement
+    if spec is None:
+        return []
+    rows = []
+    for name in d.traces:
+        tokens = trace_tokens(d, name)
+        rows += [(f"measurement.{part}[{name}]", t.render(**tokens), purpose)
+                 for part, group, purpose in (
+                     ("define", spec.define, "defines the measurement at each configure"),
+                     ("select", spec.select, "selects it before its trace is read"),
+                     ("cleanup", spec.cleanup, "removes it on close"))
+                 for t in group]
+    return rows
 
 
 def render(report: dict[str, Any]) -> str:

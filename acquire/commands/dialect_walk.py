@@ -16,11 +16,15 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
+from drivers.conversation import Conversation
 from drivers.dialect import Dialect, SettingSpec
 from drivers.errors import BlockError, InstrumentTimeout, ReplyError
-from drivers.replies import parse_error_entry, parse_flag
+from drivers.replies import parse_error_entry, parse_flag, parse_number, parse_quantity
 from drivers.templates import format_number
+from drivers.trace_reader import trace_tokens, wait_by_polling
 from drivers.transport import Transport
+
+VALUE_SIZE = {"real32": 4, "real64": 8}
 
 
 @dataclass
@@ -44,13 +48,14 @@ class Walker:
     def __init__(self, transport: Transport, dialect: Dialect) -> None:
         self.t = transport
         self.d = dialect
+        self.talk = Conversation(transport, dialect, transport.resource)
         self.steps: list[Step] = []
         self.read: dict[str, str] = {}  # key -> first reply
 
     # -- primitives ------------------------------------------------------------------
     def ask(self, key: str, command: str) -> str | None:
         try:
-            reply: str | None = self.t.query(command).strip()
+            reply: str | None = self.talk.query(command).strip()
         except (InstrumentTimeout, ReplyError, BlockError) as exc:
             reply = None
             note = str(exc).split(": ", 1)[-1]
@@ -63,7 +68,7 @@ class Walker:
         return reply if step.ok else None
 
     def send(self, key: str, command: str, note: str = "") -> bool:
-        self.t.write(command)
+        self.talk.write(command)
         step = Step(key, command, note=note)
         self._finish(step)
         return step.ok
@@ -78,7 +83,7 @@ class Walker:
         entries: list[tuple[int, str]] = []
         for _ in range(self.d.error_max_entries):
             try:
-                code, text = parse_error_entry(self.t.query(self.d.error_query.text),
+                code, text = parse_error_entry(self.talk.query(self.d.error_query.text),
                                                self.d.error_query.text)
             except (InstrumentTimeout, ReplyError, BlockError):
                 break
@@ -97,7 +102,8 @@ class Walker:
                                note="the error queue as found, drained"))
         self._queries()
         for name, spec in self.d.settings.items():
-            self._restore_setting(name, spec)
+            if spec.fixed is None:  # a fixed setting has no commands to walk
+                self._restore_setting(name, spec)
         self._formats()
         self._sweep()
         self._switch()
@@ -110,6 +116,8 @@ class Walker:
 
     def _queries(self) -> None:
         for name, spec in self.d.settings.items():
+            if spec.query is None:
+                continue  # fixed by the dialect: nothing to ask
             self.ask(f"settings.{name}.query", spec.query.text)
             if spec.state_query is not None:
                 self.ask(f"settings.{name}.state.query", spec.state_query.text)
@@ -136,10 +144,10 @@ class Walker:
                                    note="its query gave no value to restore"))
             return
         try:
-            value = float(before.split()[0].strip("'\""))
+            value = self._instrument_units(before, spec)
             values = {"value": format_number(round(value) if spec.integer else value,
                                              spec.integer)}
-        except (ValueError, IndexError):
+        except (ValueError, ReplyError):
             self.steps.append(Step(f"{key}.set", None, ok=False,
                                    note=f"the query's reply {before!r} is no number"))
             return
@@ -210,21 +218,90 @@ class Walker:
             self.steps.append(Step("data.trace_query", None, note=(
                 "traces are read in ASCII here and the dialect offers none")))
             return
-        try:
-            points: int | None = int(float(self.read.get("settings.points.query", "")))
-        except ValueError:
-            points = None  # counts are then shown, not checked
+        points = self._points()
         if ascii_fmt.set is not None:
             self.send("data.formats[ascii].set", ascii_fmt.set.text, note="to read traces")
+        self._define("define", "defined for this check")
         self.send("trigger.command", d.trigger.text, note="one sweep at the present settings")
-        self.ask("session.opc_query", d.opc_query.text)
-        for name, token in d.traces.items():
-            self._count(f"data.traces.{name}", d.trace_query.render(trace=token),
+        self._wait()
+        for name in d.traces:
+            tokens = trace_tokens(d, name)
+            if d.measurement is not None:
+                for template in d.measurement.select:
+                    self.send(f"measurement.select[{name}]", template.render(**tokens))
+            self._count(f"data.traces.{name}", d.trace_query.render(**tokens),
                         None if points is None else 2 * points)
-        if d.frequency_query is not None:
-            self._count("data.frequency.query", d.frequency_query.text, points)
+        self._axis(points)
+        self._define("cleanup", "removed again")
         if ascii_fmt.set is not None:
             self._restore_format(self.read.get("data.format_query"))
+
+    def _points(self) -> int | None:
+        """The point count read at the start (None: counts are shown, not checked)."""
+        spec = self.d.settings.get("points")
+        try:
+            return round(self._instrument_units(self.read.get("settings.points.query", ""),
+                                                spec))
+        except (ValueError, ReplyError):
+            return None
+
+    def _instrument_units(self, reply: str, spec: SettingSpec | None) -> float:
+        """A setting's reply as the number its set template takes."""
+        integer = bool(spec and spec.integer)
+        if self.d.quirks.unit_suffixes:
+            value, in_si = parse_quantity(reply, "reply", integer=integer)
+            return value / (spec.scale if spec else 1.0) if in_si and not integer else value
+        return parse_number(reply, "reply", integer=integer)
+
+    def _define(self, part: str, note: str) -> None:
+        spec = self.d.measurement
+        if spec is None:
+            return
+        for name in self.d.traces:
+            for template in getattr(spec, part):
+                self.send(f"measurement.{part}[{name}]",
+                          template.render(**trace_tokens(self.d, name)), note=note)
+
+    def _wait(self) -> None:
+        d = self.d
+        if d.wait != "poll" or d.poll is None:
+            self.ask("session.opc_query", d.opc_query.text)
+            return
+        step = Step("trigger.poll.query", d.poll.query.text, note="asked until done")
+        try:
+            wait_by_polling(self.talk, self.t.timeout_s * 10, 0.0)
+            step.reply = d.poll.done_reply or f"bit {d.poll.done_bit} set"
+        except (InstrumentTimeout, ReplyError, BlockError) as exc:
+            step.ok, step.note = False, str(exc).split(": ", 1)[-1]
+        self._finish(step)
+
+    def _axis(self, points: int | None) -> None:
+        axis = self.d.frequency
+        if axis is None:
+            return
+        if axis.kind == "edges":
+            for key, template in (("start", axis.start), ("stop", axis.stop),
+                                  ("points", axis.points)):
+                if template is not None:
+                    self.ask(f"data.frequency.{key}", template.text)
+            return
+        assert axis.query is not None
+        if axis.encoding == "ascii":
+            self._count("data.frequency.query", axis.query.text, points)
+            return
+        step = Step("data.frequency.query", axis.query.text)
+        if points is None:
+            step.ok, step.note = False, "not read: the point count is unknown"
+            step.sent = None
+        else:
+            size = points * VALUE_SIZE[axis.encoding]
+            try:
+                self.talk.ask(axis.query.text)
+                self.t.read_block(axis.query.text, size)
+                step.reply = f"block of {size} bytes ({points} {axis.encoding} values)"
+            except (InstrumentTimeout, ReplyError, BlockError) as exc:
+                step.ok, step.note = False, str(exc).split(": ", 1)[-1]
+        self._finish(step)
 
     def _count(self, key: str, command: str, want: int | None) -> None:
         reply = self.ask(key, command)

@@ -167,7 +167,7 @@ def _plot(args, profile, peaks, checks, verdict) -> None:
 def _json(args, spec, profile, peaks, verdict) -> str:
     import json
 
-    from acquire.jsonsafe import json_safe
+    from acquire.jsonclean import json_safe
 
     body = {
         "format": DTF_FORMAT,

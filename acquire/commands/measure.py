@@ -32,7 +32,7 @@ def run(args: argparse.Namespace) -> int:
     import sys
 
     from acquire.commands import cli_path
-    from acquire.station.single import Request, measure_one, result_dict, result_line
+    from acquire.station.measure import Request, measure_one, result_dict, result_line
     from drivers.errors import SweepdError
 
     plan_name = None
@@ -45,12 +45,16 @@ def run(args: argparse.Namespace) -> int:
                           out_dir=cli_path(args.output) if args.output else None,
                           station_id=args.station)
         outcome = measure_one(plan, request)
-    except SweepdError as exc:
+    except Exception as exc:  # an error, or anything unforeseen: with --json still one object
         if not args.json:
             raise
-        print(json.dumps(result_dict(None, plan=plan_name, serial=args.serial, error=str(exc)),
+        from acquire.errors import internal_error_text
+        from drivers.yamlnode import one_line
+
+        message = one_line(str(exc) if isinstance(exc, SweepdError) else internal_error_text(exc))
+        print(json.dumps(result_dict(None, plan=plan_name, serial=args.serial, error=message),
                          sort_keys=False))
-        print(f"sweepd: error: {exc}", file=sys.stderr)
+        print(f"sweepd: error: {message}", file=sys.stderr)
         return 2
     if args.json:
         print(json.dumps(result_dict(outcome), allow_nan=False))

@@ -20,6 +20,7 @@ _QUANTITIES = {**_SCALES, "phase": "phase", "group-delay": "group_delay",
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
+
     parser.add_argument("file", nargs="+",
                         help="Touchstone file (.s1p, .s2p, ..., .ts); several for an overlay")
     parser.add_argument(

@@ -98,7 +98,7 @@ def identify(resource: str, timeout_s: float) -> dict[str, Any]:
     transport.open()
     try:
         transport.clear_input()
-        idn = _ask(transport, "*IDN?")
+        idn, idn_query = _identity_reply(transport, dialects)
         errors, error_query, tried = _drain_first(transport, dialects)
         trials = [_try(transport, d, error_query) for d in dialects]
         transport.write_termination = b"\n"
@@ -106,7 +106,8 @@ def identify(resource: str, timeout_s: float) -> dict[str, Any]:
         transport.close()
     match = next((t.name for t in trials if t.matches), None)
     return {
-        "resource": resource, "identity": _identity(idn), "error_queue": errors,
+        "resource": resource, "identity": _identity(idn), "identity_query": idn_query,
+        "error_queue": errors,
         "error_query": error_query[0] if error_query else None,
         "error_queue_note": (f"may include errors caused by the probe's own tries of {tried}"
                              if tried else ""),
@@ -114,6 +115,15 @@ def identify(resource: str, timeout_s: float) -> dict[str, Any]:
                      for t in trials],
         "match": match,
     }
+
+
+def _identity_reply(transport: Any, dialects: list[Any]) -> tuple[str | None, str | None]:
+    """``*IDN?`` (IEEE Std 488.2), else the first shipped dialect's own identity query."""
+    for query in dict.fromkeys(["*IDN?", *(d.identity.text for d in dialects)]):
+        reply = _ask(transport, query)
+        if reply is not None:
+            return reply.strip("\"'"), query
+    return None, None
 
 
 def _ask(transport: Any, command: str) -> str | None:
@@ -187,7 +197,8 @@ def _try(transport: Any, dialect: Any, errors: tuple[str, int] | None) -> Trial:
 def _identity(reply: str | None) -> dict[str, str] | None:
     if reply is None:
         return None
-    fields = [part.strip() for part in reply.split(",")]
+    separator = "," if reply.count(",") >= reply.count("/") else "/"
+    fields = [part.strip() for part in reply.split(separator)]
     names = ("maker", "model", "serial", "firmware")
     out = {"raw": reply}
     if len(fields) == 4:
@@ -205,7 +216,8 @@ def render(report: dict[str, Any]) -> str:
         return "\n".join(lines)
     idn = report["identity"]
     lines = [f"instrument {report['resource']}",
-             f"  identity: {idn['raw'] if idn else 'no reply to *IDN?'}"]
+             f"  identity ({report['identity_query']}): {idn['raw']}" if idn else
+             "  identity: no reply to *IDN? nor to any shipped dialect's identity query"]
     if idn and "maker" in idn:
         lines.append(f"    maker {idn['maker']}, model {idn['model']}, serial {idn['serial']}, "
                      f"firmware {idn['firmware']}")

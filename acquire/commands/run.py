@@ -24,13 +24,13 @@ def run(args: argparse.Namespace) -> int:
 def _run(args: argparse.Namespace) -> int:
     import json
 
+    from acquire.capture.run import run_plan
     from acquire.commands import cli_path
-    from acquire.measure import measure_and_save
     from acquire.plan import load_plan
 
     plan = load_plan(args.plan)
     out_dir = cli_path(args.output) if args.output else plan.output.dir
-    result = measure_and_save(plan, out_dir, resource=args.resource, serial=args.serial)
+    result = run_plan(plan, out_dir, resource=args.resource, serial=args.serial)
     if args.json:
         print(json.dumps(result.summary(), sort_keys=True))
     else:

@@ -118,19 +118,19 @@ class SwitchConnector:
 
     manual = False
 
-    def __init__(self, analyzer: Any) -> None:
-        self.analyzer = analyzer
-        if analyzer.dialect.switch is None:
-            raise CalError(f"dialect {analyzer.dialect.name} has no standard switch (no 'switch' "
-                           "section): use --prompt terminal or a switch command")
-        self.description = f"by the analyzer's standard switch ({analyzer.dialect.name})"
+    def __init__(self, session: Any) -> None:
+        self.session = session  # acquire.capture.session.Session (open)
+        if session.switch_name is None:
+            raise CalError(f"dialect {session.dialect.name} has no standard switch (no "
+                           "'switch' section): use --prompt terminal or a switch command")
+        self.description = f"by the analyzer's standard switch ({session.switch_name})"
 
     def connect(self, standard: str, port: int = 0) -> None:
         from drivers.errors import DialectError, ScpiErrorQueue, SettingMismatch
 
         _check_name(standard)
         try:
-            self.analyzer.select_standard(standard)
+            self.session.select_standard(standard)
         except (DialectError, SettingMismatch, ScpiErrorQueue) as exc:
             raise FixtureError(f"standard switch: {exc}") from None
 

@@ -24,6 +24,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.calibration.calfile import Refused, check_members, parse_json, read_file, read_npy
 from acquire.calibration.methods import canonical_name
 from acquire.errors import CalError
 from acquire.storage import replace_atomic, safe_component
@@ -125,8 +126,9 @@ def load_partial(path: Path) -> Partial:
     """Read an unfinished-calibration file; ``CalError`` (one line) if it is damaged."""
     where = f"unfinished calibration {path}"
     try:
-        with zipfile.ZipFile(path) as zf:
-            header = json.loads(zf.read(HEADER).decode("utf-8"))
+        with zipfile.ZipFile(io.BytesIO(read_file(path))) as zf:
+            check_members(zf)  # bounded like a cal set: size, members, no compression
+            header = parse_json(zf.read(HEADER), HEADER)
             if header.get("format") != FORMAT or header.get("version") != VERSION:
                 raise CalError(f"{where}: not a version {VERSION} {FORMAT} file")
             st = header["stimulus"]
@@ -134,13 +136,13 @@ def load_partial(path: Path) -> Partial:
                              str(header["instrument"]), Stimulus(**st),
                              str(header["kit_name"]), str(header["kit_sha256"]))
             partial = Partial(fp, updated_utc=str(header["updated_utc"]))
+            points = (fp.stimulus.points,)
             for step, info in header["steps"].items():
                 partial.status[step] = "repeat" if info["status"] == "repeat" else "done"
                 partial.measured_utc[step] = str(info.get("measured_utc", ""))
                 partial.readings[step] = {}
             if "freq_hz.npy" in zf.namelist():
-                freq = np.lib.format.read_array(io.BytesIO(zf.read("freq_hz.npy")),
-                                                allow_pickle=False)
+                freq = read_npy(zf.read("freq_hz.npy"), "freq_hz.npy", np.float64, points)
                 partial.freq_hz = np.asarray(freq, np.float64)
             for name in zf.namelist():
                 if not (name.startswith("raw/") and name.endswith(".npy")):
@@ -148,7 +150,7 @@ def load_partial(path: Path) -> Partial:
                 step, _, param = name[4:-4].rpartition(".")
                 if step not in partial.readings:
                     raise CalError(f"{where}: member {name} belongs to no listed step")
-                arr = np.lib.format.read_array(io.BytesIO(zf.read(name)), allow_pickle=False)
+                arr = read_npy(zf.read(name), name, np.complex128, points)
                 partial.readings[step][param] = np.asarray(arr, np.complex128)
             parse_utc(partial.updated_utc)
             return partial
@@ -156,9 +158,13 @@ def load_partial(path: Path) -> Partial:
         raise
     except FileNotFoundError:
         raise CalError(f"{where}: file not found") from None
+    except Refused as exc:
+        raise CalError(f"{where}: {exc}") from None
     except (OSError, zipfile.BadZipFile, KeyError, TypeError, ValueError, AttributeError,
-            json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise CalError(f"{where}: damaged or unreadable ({type(exc).__name__}: {exc})") from None
+            json.JSONDecodeError, UnicodeDecodeError, OverflowError) as exc:
+        detail = " ".join(str(exc).split())[:120]
+        raise CalError(f"{where}: damaged or unreadable ({type(exc).__name__}: {detail})") \
+            from None
 
 
 def readings_fit(partial: Partial, steps: Mapping[str, tuple[str, ...]], points: int) -> str:

@@ -57,7 +57,7 @@ class Setup:
     """Everything a procedure needs, gathered by ``acquire.guided.start``."""
 
     plan: Any  # acquire.plan.Plan
-    session: Any  # acquire.runner.Session (open)
+    session: Any  # acquire.capture.session.Session (open)
     kit: CalKit
     steps: tuple[Step, ...]
     connector: Connector

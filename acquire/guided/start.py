@@ -58,8 +58,8 @@ class Options:
 def calibrate(plan: Plan, options: Options = Options(), *, stdin: TextIO | None = None,
               stdout: TextIO | None = None) -> Outcome:
     """Run the guided calibration of ``plan``; one-line ``SweepdError`` on any problem."""
-    from acquire.measure import cal_dir_for
-    from acquire.runner import Session
+    from acquire.capture.calchoice import cal_dir_for
+    from acquire.capture.session import Session
 
     spec = plan.calibration
     if spec is None:
@@ -109,7 +109,7 @@ def _connector(prompt: str, switch_command: str | None, session: object,
     if prompt == "command" or (prompt == "scripted" and switch_command):
         assert switch_command is not None
         return CommandConnector(switch_command, names=names)
-    return SwitchConnector(session.analyzer)  # type: ignore[attr-defined]
+    return SwitchConnector(session)
 
 
 def _backend(prompt: str, options: Options, console: Console, stdin: TextIO | None,

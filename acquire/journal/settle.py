@@ -1,7 +1,7 @@
 """Settling what a killed process left in the journal, from the files on disk.
 
 Captures are written summary first, then the raw copy, then the Touchstone file itself
-(see ``acquire.measure.store``), so a Touchstone file that exists is complete and so is
+(see ``acquire.capture.files.store``), so a Touchstone file that exists is complete and so is
 everything written before it: a pending row whose file exists is adopted (``stored``,
 with its summary, raw copy, verdict and metrics read from those files). A pending row
 whose Touchstone file never landed becomes ``interrupted``, and the files written ahead

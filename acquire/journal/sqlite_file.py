@@ -57,6 +57,9 @@ class SqliteFile:
         self._db = db
         _retry_busy(self._enter_wal, timeout_s)
         db.execute("PRAGMA synchronous=FULL")
+        # checkpoint the WAL at about 1 MB (the default lets it reach about 4 MB), so a
+        # nearly full disk is not eaten by the journal's own log
+        db.execute(f"PRAGMA wal_autocheckpoint={WAL_CHECKPOINT_PAGES}")
         db.execute("PRAGMA foreign_keys=ON")
         _retry_busy(self._migrate, timeout_s)
         return db
@@ -168,6 +171,7 @@ def refuse_links(path: Path) -> None:
                                "journal must be a real file (remove the link)")
 
 
+WAL_CHECKPOINT_PAGES = 256
 FULL_BELOW = 1 << 20  # an I/O error with less free space than this is a full disk
 
 

@@ -166,7 +166,7 @@ class Readout:
     def values_text(self) -> str:
         """Every quantity in one ASCII run: SWR, RL and Z (reflection), dB, phase, delay."""
         mk = self.marker
-        parts = [f"{mk.db:.2f} dB", f"{mk.phase_deg:.1f} deg"]
+        parts = [f"mag {mk.db:.2f} dB", f"phase {mk.phase_deg:.1f} deg"]
         if self.reflection:
             z = mk.impedance
             sign = "+" if z.imag >= 0 else "-"

@@ -7,7 +7,7 @@ from typing import Any
 
 import numpy as np
 
-from acquire.jsonsafe import finite_or_none
+from acquire.jsonclean import finite_or_none
 from acquire.metrics import conversions as cv
 from acquire.metrics.errors import MetricError
 from acquire.metrics.features import Bandwidth, Resonance, bandwidth, q_factor, resonance_min_gamma

@@ -15,7 +15,7 @@ log = logging.getLogger(__name__)
 def measure_unit(service: Any, body: MeasureRequest) -> tuple[int, dict[str, Any]]:
     """(HTTP status, measure document) for one request; never raises a ``SweepdError``."""
     from acquire.service.statuses import status_for
-    from acquire.station.single import Request, measure_one, result_dict, unit_serial
+    from acquire.station.measure import Request, measure_one, result_dict, unit_serial
     from drivers.resources import resource_problem
 
     plan_name = body.plan

@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from acquire.errors import PlanError
-from acquire.jsonsafe import finite_or_none
+from acquire.jsonclean import finite_or_none
 from acquire.metrics import db20, resonance_min_gamma, swr
 from acquire.sweep import Sweep
 

@@ -16,10 +16,10 @@ import logging
 from collections.abc import Callable
 from dataclasses import dataclass
 
+from acquire.capture.calchoice import CalChoice, choose_calibration
+from acquire.capture.session import Session
 from acquire.errors import CalError, JournalError, PlanError, StorageError, TouchstoneError
-from acquire.measure import CalChoice, choose_calibration
 from acquire.plan import Plan
-from acquire.runner import Session
 from drivers.errors import (
     BlockError,
     ConnectError,
@@ -106,8 +106,7 @@ class InstrumentLink:
 
     @property
     def ready(self) -> bool:
-        return (self.session is not None and self.session.analyzer.transport.is_open
-                and not self.suspect)
+        return self.session is not None and self.session.is_open and not self.suspect
 
     def make_ready(self, on_note: Callable[[str, str, str], None]) -> Readiness:
         """Open, or reopen and check the settings; ``on_note(kind, message, action)``
@@ -115,7 +114,7 @@ class InstrumentLink:
         done = Readiness()
         if self.session is None:
             self.session = Session(self.plan, self.resource)
-        analyzer = self.session.analyzer
+        session = self.session
         if not self.ever_opened:
             self.session.open()
             self.cal = choose_calibration(self.plan, self.session)
@@ -123,16 +122,14 @@ class InstrumentLink:
             self.suspect = False
             done.opened = True
             return done
-        if self.reopen or not analyzer.transport.is_open:
-            analyzer.reconnect()
+        if self.reopen or not session.is_open:
+            session.reconnect()
             done.reconnected = True
             self.reopen = False
-        if not analyzer.settings_match(self.plan.stimulus):
-            analyzer.reconnect()  # a restarted instrument forgot its data format too
-            before = self.session.applied
-            self.session.applied = analyzer.configure(self.plan.stimulus)
+        if session.settings_lost():
+            session.reconnect()  # a restarted instrument forgot its data format too
             done.reconfigured = True
-            done.cal_kept = self.session.applied == before
+            done.cal_kept = session.reconfigure()
             if not done.cal_kept:
                 self.cal = choose_calibration(self.plan, self.session)
             cal_text = ("host-side calibration kept (settings as before)" if done.cal_kept

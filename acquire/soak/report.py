@@ -247,7 +247,9 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
                                            and sched.count is None else ""),
         "sweeps": (f"{int(done.sum())} done ({states.get('stored', 0)} kept as Touchstone), "
                    f"{states.get('missed', 0)} missed, {states.get('failed', 0)} failed, "
-                   f"{states.get('pending', 0)} pending"),
+                   f"{states.get('pending', 0)} pending"
+                   + (f", {states['interrupted']} interrupted" if states.get("interrupted")
+                      else "")),
         "verdicts": ", ".join(f"{n} {v}" for v, n in sorted(verdicts.items())) or "no checks",
         "drift": _drift_lines(spec, ser, t_s, done, deviation),
         "alarms": [f"{a['time_utc'][11:19]} UTC, sweep {a['seq']}: {a['message']}"
@@ -294,7 +296,7 @@ def _instruments(ser: history.Series, run: dict[str, Any], resource: str) -> lis
 def _calibrations(ser: history.Series, plan: Any) -> list[str]:
     """Each calibration used: its id, method, when made and its age while in use."""
     from acquire.calibration.calset import SUFFIX, read_header
-    from acquire.measure import cal_dir_for
+    from acquire.capture.calchoice import cal_dir_for
 
     ages: dict[str, list[float]] = {}
     for cal_id, age in zip(ser.cal_id, ser.cal_age_s, strict=True):

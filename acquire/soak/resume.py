@@ -15,9 +15,10 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from acquire.jsonsafe import json_text
-from acquire.measure import worst_margin
+from acquire.capture.records import worst_margin
+from acquire.jsonclean import json_text
 from acquire.soak import history
+from acquire.soak.diskhold import Hold
 from acquire.soak.drift import SweepDrift, make_reference, measure_drift
 from acquire.utc import parse_utc
 
@@ -38,6 +39,24 @@ def settle_interrupted(worker: SoakWorker) -> None:
                          f"after an interruption; {len(settled)} sweep(s) in flight "
                          f"settled ({len(adopted)} adopted from complete files)",
                          "resumed on its schedule")
+
+
+def restore_counts(worker: SoakWorker) -> None:
+    """Counters, the next index and a hold left open by a stop, from the journal."""
+    journal = worker.journal
+    assert journal is not None
+    counts = history.counts(journal, worker.run_id)
+    worker.tally = {**counts.by_state, "missed": counts.missed}
+    worker.next_index = counts.next_seq
+    held = history.open_hold(journal, worker.run_id)
+    if held is None:
+        return
+    # stopped while held: the same hold goes on until space returns
+    reason = str(held["reason"])
+    worker.hold = Hold(int(held["first_seq"]), reason, int(held["id"]))
+    worker.next_index = max(worker.next_index, worker.hold.first_seq)
+    worker.state, worker.reason = "held", reason
+    worker.job.write_state(state="held", reason=reason)
 
 
 def restore_progress(worker: SoakWorker) -> None:

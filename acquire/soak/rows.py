@@ -14,9 +14,11 @@ import logging
 from collections.abc import Callable
 from pathlib import Path
 
+from acquire.capture.files import Stored, plan_path, store
+from acquire.capture.judge import Capture
+from acquire.capture.records import journal_stored, stored_fields
 from acquire.errors import JournalError
 from acquire.journal import JournalStore
-from acquire.measure import Capture, Stored, journal_stored, plan_path, store, stored_fields
 from acquire.plan import Plan
 from acquire.soak.diskhold import DiskGuard, disk_full
 from acquire.soak.spec import KeepRule

@@ -222,7 +222,7 @@ def _alarms(node: Node, parameter: str) -> Thresholds:
         try:
             command = tuple(shlex.split(text))
         except ValueError as exc:
-            node["command"].fail(f"cannot split {text!r} into words: {exc}")
+            node["command"].fail(f"cannot split {show(text)} into words: {exc}")
         if not command:
             node["command"].fail("is empty")
     return Thresholds(

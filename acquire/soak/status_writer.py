@@ -13,7 +13,7 @@ import os
 from typing import TYPE_CHECKING, Any
 
 from acquire.journal import JOURNAL_NAME
-from acquire.jsonsafe import json_safe
+from acquire.jsonclean import json_safe
 from acquire.soak import history
 from acquire.utc import epoch_text, utc_text
 

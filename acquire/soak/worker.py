@@ -22,13 +22,10 @@ import math
 import os
 from typing import Any
 
+from acquire.capture.calchoice import cal_dir_for
+from acquire.capture.judge import Capture, capture
 from acquire.errors import JournalError
 from acquire.journal import JournalStore, journal_in
-from acquire.measure import (
-    Capture,
-    cal_dir_for,
-    capture,
-)
 from acquire.soak import history
 from acquire.soak.alarm_log import AlarmLog
 from acquire.soak.alarms import AlarmBook
@@ -44,7 +41,7 @@ from acquire.soak.drift import Reference, make_reference, measure_drift, referen
 from acquire.soak.ending import GiveUp, StopSignal, fail_job, finish_job
 from acquire.soak.link import Backoff, InstrumentLink, fault_kind
 from acquire.soak.ownership import check_job_paths
-from acquire.soak.resume import restore_progress, settle_interrupted
+from acquire.soak.resume import restore_counts, restore_progress, settle_interrupted
 from acquire.soak.rows import SweepRows, keep_reasons
 from acquire.soak.spec import SoakSpec, parse_soak
 from acquire.soak.spool import Job
@@ -133,16 +130,9 @@ class SoakWorker:
         job.write_state(state="running", run_id=self.run_id, start_epoch=start,
                         started_utc=state.get("started_utc") or utc_text(), reason=None,
                         pid=os.getpid())
-        counts = history.counts(journal, self.run_id)
-        self.tally = {**counts.by_state, "missed": counts.missed}
+        restore_counts(self)
         self.rows = SweepRows(journal, self.run_id, plan, job.data_dir, job.id, self.tally,
                               self.disk, self._fault)
-        self.next_index = counts.next_seq
-        held = history.open_hold(journal, self.run_id)
-        if held is not None:  # stopped while held: the same hold goes on until space returns
-            self.hold = Hold(int(held["first_seq"]), str(held["reason"]), int(held["id"]))
-            self.next_index = max(self.next_index, self.hold.first_seq)
-            self.state, self.reason = "held", str(held["reason"])
         persisted = sorted(state.get("alarms_active", []))
         self.alarms = AlarmBook(self.spec.alarms, job.id, set(persisted),
                                 on_command_failure=self._alarm_command_failed)
@@ -230,7 +220,7 @@ class SoakWorker:
             started = self.clock.now()
             try:
                 cap = capture(link.session, link.cal, soak_job=self.job.id, soak_index=k)
-                link.session.analyzer.check_errors(f"after sweep {k}")
+                link.session.check_errors(f"after sweep {k}")
             except InstrumentError as exc:
                 attempts += 1
                 link.mark_suspect(reopen=not isinstance(exc, ScpiErrorQueue))

@@ -8,7 +8,7 @@ Modules (small on purpose):
 - ``figures``: the key figures shown for every unit (resonance, usable bandwidth, worst
   SWR in band, worst margin).
 - ``unit``: one unit (or the golden unit) measured, judged, filed and journalled;
-  ``single``: the same for one ``sweepd measure`` call, with its JSON result.
+  ``measure``: the same for one ``sweepd measure`` call, with its JSON result.
 - ``golden`` and ``schedule``: comparing the golden unit with its reference, and when the
   line is stopped or a golden check is due (from the journal).
 - ``counters``, ``stats``, ``records``, ``report``, ``export``, ``summary``: yield,

@@ -117,7 +117,7 @@ def check_station_id(text: str, node: Node | None = None) -> str:
     if STATION_ID.fullmatch(text):
         return text
     message = (f"station id must be 1-32 letters, digits, '.', '_' or '-' (starting with a "
-               f"letter or digit), got {text!r}")
+               f"letter or digit), got {show(text)}")
     if node is not None:
         node.fail(message)
     raise StationError(message)

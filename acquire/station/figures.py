@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 
 from acquire.checks import MaskCheck, Verdict, WorstSwrCheck
-from acquire.jsonsafe import finite_or_none
+from acquire.jsonclean import finite_or_none
 from acquire.plan import Plan
 from acquire.sweep import Sweep
 from acquire.units import format_frequency

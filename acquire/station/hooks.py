@@ -15,8 +15,9 @@ Each command is a list: the program (a path, relative to the plan's folder, or a
 found on PATH), then its arguments. ``{serial}``, ``{verdict}``, ``{touchstone}``,
 ``{summary}``, ``{plot}``, ``{plan}``, ``{station}`` and ``{reason}`` are replaced by
 their values as whole text, never read by a shell (no quoting, no globbing, no pipes).
-A hook that fails (cannot start, exits non-zero, runs past its timeout) is journalled as
-a fault and shown in one line; measuring goes on.
+A program must be owned by the station's user (or root) and writable by nobody else. A
+hook that fails (cannot start, exits non-zero, runs past its timeout) is journalled as a
+fault and shown in one line; measuring goes on.
 """
 
 from __future__ import annotations
@@ -24,6 +25,7 @@ from __future__ import annotations
 import logging
 import os
 import shutil
+import stat
 import string
 import subprocess
 from collections.abc import Callable
@@ -103,11 +105,26 @@ def _program(node: Node, program: str) -> str:
         path = node.file_path()
         if not (path.is_file() and os.access(path, os.X_OK)):
             node.fail(f"program not found or not executable: {path}")
-        return str(path)
-    found = shutil.which(program)
-    if found is None:
-        node.fail(f"program {program!r} not found on PATH")
-    return found
+    else:
+        found = shutil.which(program)
+        if found is None:
+            node.fail(f"program {program!r} not found on PATH")
+        path = Path(found)
+    _trusted(node, path)
+    return str(path)
+
+
+def _trusted(node: Node, path: Path) -> None:
+    """A program the station runs must be owned by its user (or root) and writable by
+    nobody else: otherwise another user could make the station run anything."""
+    for probe in {path, path.resolve()}:
+        info = probe.stat()
+        if info.st_uid not in (os.geteuid(), 0):
+            node.fail(f"program {probe} is owned by uid {info.st_uid}, not by the user "
+                      "running the station (or root); refusing to run it")
+        if info.st_mode & (stat.S_IWGRP | stat.S_IWOTH):
+            node.fail(f"program {probe} is writable by group or others (mode "
+                      f"{stat.S_IMODE(info.st_mode):04o}); refusing to run it (chmod go-w)")
 
 
 @dataclass(frozen=True)

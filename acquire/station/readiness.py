@@ -10,7 +10,7 @@ from __future__ import annotations
 import contextlib
 from datetime import datetime
 
-from acquire.measure import CalChoice, choose_calibration
+from acquire.capture.calchoice import CalChoice, choose_calibration
 from acquire.plan import Plan
 from acquire.station.interrupts import QUIT, Quit
 from acquire.station.serials import shown
@@ -31,7 +31,7 @@ class Readiness:
 
     def connect(self) -> None:
         """Open a session on the instrument, asking the operator until it answers."""
-        from acquire.runner import Session
+        from acquire.capture.session import Session
 
         while True:
             session = Session(self.plan, self.resource)

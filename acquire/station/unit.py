@@ -1,7 +1,7 @@
 """One unit (or the golden unit) measured, judged, filed and journalled.
 
 The same path serves ``sweepd station`` and ``sweepd measure``, and reuses the parts of
-``sweepd run`` (``acquire.measure``): ``capture`` sweeps, corrects and judges; the file
+``sweepd run`` (``acquire.capture``): ``capture`` sweeps, corrects and judges; the file
 name comes from the plan's template with the serial sanitised and made unique; the
 journal gets the measurement as pending before its files are written and marks it
 stored after. Interrupts are held while files and rows are written, so Ctrl-C never
@@ -14,10 +14,13 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
+from acquire.capture.calchoice import CalChoice
+from acquire.capture.files import Stored, plan_path
+from acquire.capture.judge import Capture, capture
+from acquire.capture.records import store_journalled
+from acquire.capture.session import Session
 from acquire.journal import JournalStore, Planned
-from acquire.measure import CalChoice, Capture, Stored, capture, plan_path, store_journalled
 from acquire.plan import Plan
-from acquire.runner import Session
 from acquire.station.config import StationConfig
 from acquire.station.errors import GoldenError
 from acquire.station.figures import KeyFigures, key_figures, with_figures

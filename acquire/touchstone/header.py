@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from drivers.yamlnode import show
+
 from .numparse import is_number
 
 UNIT_EXPONENTS = {"hz": 0, "khz": 3, "mhz": 6, "ghz": 9}
@@ -63,9 +65,9 @@ def parse_option_line(text: str, line: int) -> OptionLine:
                     f"option line: reference resistance must be positive, got {bad[0]:g}")
             opt.resistance = tuple(values)
         else:
-            raise ValueError(f"option line: unknown field {tok!r} (allowed: {_ALLOWED})")
+            raise ValueError(f"option line: unknown field {show(tok)} (allowed: {_ALLOWED})")
         if kind in seen:
-            raise ValueError(f"option line: {kind} given twice ({tok!r})")
+            raise ValueError(f"option line: {kind} given twice ({show(tok)})")
         seen.add(kind)
         k += 1
     return opt

@@ -13,6 +13,8 @@ import math
 import re
 from dataclasses import dataclass, field
 
+from drivers.yamlnode import show
+
 from .header import split_keyword
 from .limits import MAX_FREQUENCIES, MAX_PORTS
 from .numparse import is_number
@@ -87,7 +89,8 @@ def read_keywords(lines: list[tuple[int, str, str | None]], name_ports: int | No
             continue
         parts = split_keyword(text)
         if parts is None:
-            raise HeaderError(no, f"expected a keyword such as [Number of Ports], found {text!r}")
+            raise HeaderError(no, "expected a keyword such as [Number of Ports], "
+                                  f"found {show(text)}")
         key, arg = parts
         if key in kw.lines:
             raise HeaderError(no, f"{display(key)} given twice (first on line {kw.lines[key]})")
@@ -113,7 +116,7 @@ def _apply(kw: Keywords, no: int, key: str, arg: str, name_ports: int | None) ->
     """Apply one keyword; True when [Reference] still needs values."""
     if key == "version":
         if arg not in ("2.0", "2.1"):
-            raise HeaderError(no, f"[Version] must be 2.0 or 2.1, got {arg!r}")
+            raise HeaderError(no, f"[Version] must be 2.0 or 2.1, got {show(arg)}")
         kw.version = arg
     elif key == "number of ports":
         kw.ports = _count(no, key, arg)
@@ -122,7 +125,7 @@ def _apply(kw: Keywords, no: int, key: str, arg: str, name_ports: int | None) ->
                                   f"{name_ports}")
     elif key == "two-port data order":
         if arg not in ("12_21", "21_12"):
-            raise HeaderError(no, f"[Two-Port Data Order] must be 12_21 or 21_12, got {arg!r}")
+            raise HeaderError(no, f"[Two-Port Data Order] must be 12_21 or 21_12, got {show(arg)}")
         kw.order = arg
     elif key == "number of frequencies":
         kw.frequencies = _count(no, key, arg)
@@ -130,7 +133,7 @@ def _apply(kw: Keywords, no: int, key: str, arg: str, name_ports: int | None) ->
         kw.noise_frequencies = _count(no, key, arg)
     elif key == "matrix format":
         if arg.lower() not in ("full", "lower", "upper"):
-            raise HeaderError(no, f"[Matrix Format] must be Full, Lower or Upper, got {arg!r}")
+            raise HeaderError(no, f"[Matrix Format] must be Full, Lower or Upper, got {show(arg)}")
         kw.matrix = arg.lower()
     elif key == "reference":
         if kw.ports is None:
@@ -144,7 +147,7 @@ def _apply(kw: Keywords, no: int, key: str, arg: str, name_ports: int | None) ->
                                   f"found {len(labels)}")
         bad = [label for label in labels if not _MIXED.match(label)]
         if bad:
-            raise HeaderError(no, f"[Mixed-Mode Order] label {bad[0]!r} is not D<i>,<j>, "
+            raise HeaderError(no, f"[Mixed-Mode Order] label {show(bad[0])} is not D<i>,<j>, "
                                   "C<i>,<j> or S<i>")
         kw.mixed = labels
     else:
@@ -157,7 +160,7 @@ def _count(no: int, key: str, arg: str) -> int:
     digits = arg.lstrip("0")
     if not arg.isdigit() or not digits:
         shown = arg if len(arg) <= 20 else arg[:17] + "..."
-        raise HeaderError(no, f"{display(key)} must be an integer >= 1, got {shown!r}")
+        raise HeaderError(no, f"{display(key)} must be an integer >= 1, got {show(shown)}")
     if len(digits) > 9 or int(digits) > limit:
         shown = digits if len(digits) <= 20 else f"a number of {len(digits)} digits"
         raise HeaderError(no, f"{display(key)} is {shown}: sweepd reads at most {limit:,}")
@@ -167,7 +170,7 @@ def _count(no: int, key: str, arg: str) -> int:
 def _reference_values(kw: Keywords, no: int, text: str) -> bool:
     for tok in text.split():
         if not is_number(tok.encode("ascii")):
-            raise HeaderError(no, f"[Reference] value {tok!r} is not a number")
+            raise HeaderError(no, f"[Reference] value {show(tok)} is not a number")
         value = float(tok)
         if not 0 < value < math.inf:
             raise HeaderError(no, f"[Reference] value {tok} must be a positive resistance")

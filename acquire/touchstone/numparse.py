@@ -26,6 +26,8 @@ import sys
 
 import numpy as np
 
+from drivers.yamlnode import show
+
 ALLOWED_DATA_BYTES = b"0123456789+-.eE \t\n"
 _NUMBER = re.compile(rb"([+-]?)(\d*)(\.?)(\d*)(?:([eE])([+-]?)(\d+))?\Z")
 _BAD_BYTE = re.compile(rb"[^0-9+\-.eE \t\n]")
@@ -338,7 +340,7 @@ def parse_tokens(tokens: list[bytes], lines: np.ndarray) -> np.ndarray:
         return values
     for k, tok in enumerate(tokens):
         if not is_number(tok):
-            raise NumberError(int(lines[k]), f"{tok.decode('ascii')!r} is not a number")
+            raise NumberError(int(lines[k]), f"{show(tok.decode('ascii'))} is not a number")
         if not np.isfinite(float(tok)):
-            raise NumberError(int(lines[k]), f"{tok.decode('ascii')!r} is out of range")
+            raise NumberError(int(lines[k]), f"{show(tok.decode('ascii'))} is out of range")
     raise AssertionError("unreachable: float() failed but every token is valid")

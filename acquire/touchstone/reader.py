@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from acquire.errors import TouchstoneError
+from drivers.yamlnode import show
 
 from .comments import comment_text, split_meta
 from .convert import normalisation
@@ -334,9 +335,9 @@ class _Parser:
         text = self.data[offset:stop if stop >= 0 else None].decode("ascii")
         parts = split_keyword(text.partition("!")[0].strip())
         if parts is None:
-            raise self.error(line, f"malformed keyword line {text.strip()!r}")
+            raise self.error(line, f"malformed keyword line {show(text.strip())}")
         if parts[1]:
-            raise self.error(line, f"{display(parts[0])} takes no argument, found {parts[1]!r}")
+            raise self.error(line, f"{display(parts[0])} takes no argument, found {show(parts[1])}")
         return parts[0]
 
     def _after_end(self, end: int) -> None:

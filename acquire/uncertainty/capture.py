@@ -12,6 +12,7 @@ averaging, unless the plan states a level; drift grows with the cal set's age.
 
 from __future__ import annotations
 
+import functools
 import json
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -117,6 +118,25 @@ class SweepUncertainty:
                          f"noise {float(np.max(b.noise)):.2e} ({b.noise_source}), "
                          f"drift {b.drift:.4f}")
         return lines
+
+
+def cached_kit(path: Path | str) -> Any:
+    """The cal kit at ``path``, parsed once per file version (soaks and stations capture
+    many sweeps with one kit)."""
+    p = Path(path)
+    try:
+        st = p.stat()
+        version = (st.st_mtime_ns, st.st_size)
+    except OSError:
+        version = (0, 0)  # load_kit then names the problem
+    return _kit(str(p), version)
+
+
+@functools.lru_cache(maxsize=8)
+def _kit(path: str, version: tuple[int, int]) -> Any:
+    from acquire.calibration import load_kit
+
+    return load_kit(path)
 
 
 def unavailable(sweep: Sweep, why: str) -> SweepUncertainty:

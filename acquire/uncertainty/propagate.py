@@ -36,6 +36,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.jsonclean import finite_or_none
 from acquire.uncertainty.budget import COVERAGE_FACTOR, Budget
 
 BIVARIATE_95 = float(np.sqrt(-2.0 * np.log(0.05)))  # 2.448: √χ²₂(0.95)
@@ -84,17 +85,14 @@ class ReflectionUncertainty:
             "at_best_match_hz": float(freq_hz[best]),
             "at_best_match_gamma_abs": float(self.gamma_abs[best]),
             "at_best_match_expanded": float(self.expanded[best]),
-            "at_best_match_return_loss_db": [_finite(rl[0][best]), _finite(rl[1][best])],
+            "at_best_match_return_loss_db": [finite_or_none(rl[0][best]),
+                                             finite_or_none(rl[1][best])],
             "points_near_match": int(self.near_match.sum()),
         }
 
 
 def _swr(g: np.ndarray) -> np.ndarray:
     return np.where(g < 1.0, (1.0 + g) / np.maximum(1.0 - g, 1e-300), np.inf)
-
-
-def _finite(x: float) -> float | None:
-    return float(x) if np.isfinite(x) else None
 
 
 def lagrange(gamma: np.ndarray, nodes: Mapping[str, np.ndarray]) -> dict[str, np.ndarray]:

@@ -14,15 +14,17 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from acquire.capture.calchoice import choose_calibration
+from acquire.capture.records import journalled_run
+from acquire.capture.session import Session
 from acquire.journal import journal_in
-from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
+from acquire.station.golden import load_reference
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial
 from acquire.station.unit import Line, UnitResult, measure_unit
-from drivers.errors import SweepdError
 
 RESULT_FORMAT = "sweepd-measure"
 RESULT_VERSION = 1
@@ -56,53 +58,40 @@ class Outcome:
         return self.result.exit_code
 
 
-def measure_one(plan: Plan, request: Request, session: Any = None) -> Outcome:
+def measure_one(plan: Plan, request: Request, session: Session | None = None) -> Outcome:
     """Measure one unit (or the golden unit); ``SweepdError`` with one line on failure.
 
     ``session`` is an open ``Session`` for this plan on the request's instrument (the
     measurement service keeps one open between calls); without it one is opened and
     closed here.
     """
-    from acquire.measure import choose_calibration, record_failure
-    from acquire.runner import Session
-
     config = station_config(plan)
     golden = config.golden
     serial = unit_serial(plan, request)
     station_id = request.station_id or config.station_id or ""
     if station_id:
         check_station_id(station_id)
-    reference = None
-    if golden is not None:
-        from acquire.station.golden import load_reference
-
-        reference = load_reference(golden, plan)
+    reference = load_reference(golden, plan) if golden is not None else None
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
-    with journal_in(out_dir) as journal, RunOwner(out_dir) as owner:
-        settle_dead_runs(journal, out_dir)  # runs of killed processes: settled first
-        run_id = journal.start_run("measure", plan.name, plan_path=str(plan.source),
-                                   station=station_id or None, resource=resource,
-                                   **owner.fields())
-        try:
-            with contextlib.nullcontext(session) if session is not None \
-                    else Session(plan, resource) as session:
-                journal.update_run(run_id, instrument=session.identity_text)
-                cal = choose_calibration(plan, session)
-                line = Line(plan, config, out_dir, journal, run_id, station_id, session, cal,
-                            reference)
-                if golden is not None and not request.golden:
-                    _check_line_open(journal, plan, golden, cal, request)
-                result = measure_unit(line, serial, golden=request.golden)
-        except SweepdError as exc:
-            record_failure(journal, run_id, exc, "not measured")
-            raise
-        except KeyboardInterrupt:
-            with contextlib.suppress(SweepdError):
-                journal.end_run(run_id, "stopped", note="interrupted")
-            raise
-        journal.end_run(run_id)
-        return Outcome(result, Path(journal.where), run_id, resource)
+    with journal_in(out_dir) as journal, journalled_run(
+            journal, out_dir, "measure", plan, fault_action="not measured",
+            station=station_id or None, resource=resource) as run, \
+            _opened(session, plan, resource) as session:
+        journal.update_run(run.id, instrument=session.identity_text)
+        cal = choose_calibration(plan, session)
+        line = Line(plan, config, out_dir, journal, run.id, station_id, session, cal,
+                    reference)
+        if golden is not None and not request.golden:
+            _check_line_open(journal, plan, golden, cal, request)
+        result = measure_unit(line, serial, golden=request.golden)
+    return Outcome(result, Path(journal.where), run.id, resource)
+
+
+def _opened(session: Session | None, plan: Plan,
+            resource: str) -> contextlib.AbstractContextManager[Session]:
+    """The caller's open session (left open), or a new one opened and closed here."""
+    return contextlib.nullcontext(session) if session is not None else Session(plan, resource)
 
 
 def unit_serial(plan: Plan, request: Request) -> str:

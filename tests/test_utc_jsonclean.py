@@ -14,7 +14,7 @@ from datetime import datetime, timedelta, timezone
 import numpy as np
 import pytest
 
-from acquire.jsonsafe import finite_or_none, json_safe, json_text
+from acquire.jsonclean import finite_or_none, json_safe, json_text
 from acquire.utc import compact_utc, epoch_text, parse_iso, parse_utc, utc_text
 
 MOMENT = datetime(2026, 12, 2, 6, 10, 0, 123456, tzinfo=timezone.utc)
