@@ -57,6 +57,10 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     for name, (module, help_text) in COMMANDS.items():
         command = sub.add_parser(name, help=help_text, description=help_text)
+        # -v/-vv after the command as well as before it (they add up)
+        command.add_argument("-v", "--verbose", action="count", default=0,
+                             dest="command_verbose", help="more log output on stderr "
+                             "(-vv: debug, with the instrument traffic)")
         if name in IO_COMMANDS:
             command.add_argument("--io-log", metavar="FILE", help=IO_LOG_HELP)
         _module(module).add_arguments(command)
@@ -70,6 +74,7 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "command", None):
         parser.print_help()
         return EXIT_ERROR
+    args.verbose += getattr(args, "command_verbose", 0)
     _configure_logging(args.verbose)
     from drivers.errors import SweepdError
 

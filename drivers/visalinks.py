@@ -10,6 +10,8 @@ from typing import Any
 from drivers.deadline import Deadline
 from drivers.links import RECV_CHUNK, LinkClosed, LinkOverflow, LinkTimeout, one_line, os_text
 
+DRAIN_S = 0.05  # the longest the public path spends dropping input that is waiting
+
 
 class VisaLink:
     """Reads and writes through the pyvisa-py session (serial ports and the rest)."""
@@ -24,6 +26,7 @@ class VisaLink:
         self._session = resource.session
         # pyvisa-py's session object returns (data, status) without raising, so the
         # bytes that did arrive before a timeout are kept for the message.
+        self._public = public
         self._raw = None if public else getattr(self._lib, "sessions", {}).get(self._session)
         self._quiet = (constants.StatusCode.success_max_count_read,
                        constants.StatusCode.success_termination_character_read)
@@ -67,11 +70,26 @@ class VisaLink:
         return bytes(out)
 
     def discard_input(self) -> bytes:
+        if self._public:
+            return self._drain()
         try:
             self._lib.flush(self._session, self._c.BufferOperation.discard_read_buffer)
         except OSError as exc:
             raise LinkClosed(os_text(exc)) from None
         return b""
+
+    def _drain(self) -> bytes:
+        """Read what is waiting, briefly (pyvisa-py's socket flush spins forever on a peer
+        that has closed, so the public path drains by short reads instead)."""
+        self._terminator(None)
+        said = b""
+        overall = Deadline(DRAIN_S)
+        while not overall.expired():
+            try:
+                said = (said + self._read(RECV_CHUNK, Deadline(0.002), b""))[:256]
+            except LinkTimeout:
+                break
+        return said
 
     def _read(self, count: int, deadline: Deadline, partial: bytes) -> bytes:
         from pyvisa import errors

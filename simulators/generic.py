@@ -8,6 +8,8 @@ automatic standard switch: 1 open, 2 short, 3 load, 4 thru, 5 device.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 from simulators.common_cmds import add_common
 from simulators.encoding import ascii_list, interleaved, real_block
 from simulators.instrument import AnalyzerCore
@@ -27,27 +29,42 @@ def build(core: AnalyzerCore) -> CommandTree:
     """The command tree of this personality, bound to ``core``."""
     tree = CommandTree()
     add_common(tree, core)
+    _add_frequency(tree, core)
+    _add_sweep(tree, core)
+    _add_trigger(tree, core)
+    _add_format(tree, core)
+    _add_trace(tree, core)
+    _add_route(tree, core)
+    _add_system(tree, core)
+    return tree
+
+
+def numeric(tree: CommandTree, core: AnalyzerCore, pattern: str, name: str, lo: float,
+            hi: float, default: float, units: dict | None = None, integer: bool = False,
+            apply: Callable[[float], None] | None = None) -> None:
+    """A numeric setting: set (with units, MIN/MAX/DEF) and query (the value, or the
+    limits asked with MIN/MAX/DEF)."""
+    def set_(call: Call) -> None:
+        value = call.one().number(lo, hi, default, units, integer)
+        value = int(value) if integer else value
+        if apply is None:
+            core.change(**{name: value})
+        else:
+            apply(value)
+
+    def query(call: Call) -> str:
+        param = call.optional()
+        if param is not None:
+            if param.kind != "char":
+                raise ScpiError(-224, f"{call.header} {param.text}; use MIN, MAX or DEF")
+            return format_number(param.number(lo, hi, default, units, integer))
+        return format_number(getattr(core.settings, name))  # *RST replaces the settings
+
+    tree.add(pattern, set=set_, query=query)
+
+
+def _add_frequency(tree: CommandTree, core: AnalyzerCore) -> None:
     s = lambda: core.settings  # noqa: E731  (settings object is replaced by *RST)
-
-    def numeric(pattern: str, name: str, lo: float, hi: float, default: float,
-                units: dict | None = None, integer: bool = False, apply=None) -> None:
-        def set_(call: Call) -> None:
-            value = call.one().number(lo, hi, default, units, integer)
-            value = int(value) if integer else value
-            if apply is None:
-                core.change(**{name: value})
-            else:
-                apply(value)
-
-        def query(call: Call) -> str:
-            param = call.optional()
-            if param is not None:
-                if param.kind != "char":
-                    raise ScpiError(-224, f"{call.header} {param.text}; use MIN, MAX or DEF")
-                return format_number(param.number(lo, hi, default, units, integer))
-            return format_number(getattr(s(), name))
-
-        tree.add(pattern, set=set_, query=query)
 
     def set_start(v: float) -> None:
         core.change(start_hz=v, stop_hz=max(v, s().stop_hz))
@@ -59,10 +76,10 @@ def build(core: AnalyzerCore) -> CommandTree:
         half = max(0.0, min(span / 2.0, center - F_MIN, F_MAX - center))
         core.change(start_hz=center - half, stop_hz=center + half)
 
-    numeric("[:SENSe#]:FREQuency:STARt", "start_hz", F_MIN, F_MAX, 10e6, FREQUENCY_UNITS,
-            apply=set_start)
-    numeric("[:SENSe#]:FREQuency:STOP", "stop_hz", F_MIN, F_MAX, 6e9, FREQUENCY_UNITS,
-            apply=set_stop)
+    numeric(tree, core, "[:SENSe#]:FREQuency:STARt", "start_hz", F_MIN, F_MAX, 10e6,
+            FREQUENCY_UNITS, apply=set_start)
+    numeric(tree, core, "[:SENSe#]:FREQuency:STOP", "stop_hz", F_MIN, F_MAX, 6e9,
+            FREQUENCY_UNITS, apply=set_stop)
 
     def center_query(call: Call) -> str:
         call.none()
@@ -82,26 +99,31 @@ def build(core: AnalyzerCore) -> CommandTree:
 
     tree.add("[:SENSe#]:FREQuency:CENTer", set=center_set, query=center_query)
     tree.add("[:SENSe#]:FREQuency:SPAN", set=span_set, query=span_query)
-    numeric("[:SENSe#]:SWEep:POINts", "points", 1, 200001, 201, integer=True)
+
+
+def _add_sweep(tree: CommandTree, core: AnalyzerCore) -> None:
+    numeric(tree, core, "[:SENSe#]:SWEep:POINts", "points", 1, 200001, 201, integer=True)
 
     def sweep_time(call: Call) -> str:
         call.none()
         return format_number(core.sweep_time_s())
 
     tree.add("[:SENSe#]:SWEep:TIME", query=sweep_time)
-    numeric("[:SENSe#]:BANDwidth|BWIDth[:RESolution]", "ifbw_hz", 1.0, 1e6, 1e3,
+    numeric(tree, core, "[:SENSe#]:BANDwidth|BWIDth[:RESolution]", "ifbw_hz", 1.0, 1e6, 1e3,
             FREQUENCY_UNITS)
     boolean(tree, core, "[:SENSe#]:AVERage[:STATe]", "avg_on")
-    numeric("[:SENSe#]:AVERage:COUNt", "avg_count", 1, 1000, 1, integer=True)
+    numeric(tree, core, "[:SENSe#]:AVERage:COUNt", "avg_count", 1, 1000, 1, integer=True)
 
     def aver_clear(call: Call) -> None:
         call.none()
 
     tree.add("[:SENSe#]:AVERage:CLEar", set=aver_clear)
-    numeric(":SOURce#:POWer[:LEVel][:IMMediate][:AMPLitude]", "power_dbm", -90.0, 10.0, 0.0,
-            POWER_UNITS)
+    numeric(tree, core, ":SOURce#:POWer[:LEVel][:IMMediate][:AMPLitude]", "power_dbm",
+            -90.0, 10.0, 0.0, POWER_UNITS)
     boolean(tree, core, ":OUTPut#[:STATe]", "output_on")
 
+
+def _add_trigger(tree: CommandTree, core: AnalyzerCore) -> None:
     def init(call: Call) -> None:
         call.none()
         core.initiate(call.session.name)
@@ -119,14 +141,9 @@ def build(core: AnalyzerCore) -> CommandTree:
 
     def trig_query(call: Call) -> str:
         call.none()
-        return s().trigger_source
+        return core.settings.trigger_source
 
     tree.add(":TRIGger#[:SEQuence]:SOURce", set=trig_set, query=trig_query)
-    _add_format(tree, core)
-    _add_trace(tree, core)
-    _add_route(tree, core)
-    _add_system(tree, core)
-    return tree
 
 
 def boolean(tree: CommandTree, core: AnalyzerCore, pattern: str, name: str) -> None:

@@ -38,7 +38,7 @@ import threading
 import time
 from typing import Any
 
-from simulators.endpoints import Session, TcpEndpoint
+from simulators.endpoints import TcpEndpoint
 from simulators.hislip_frames import (
     ASYNC_DEVICE_CLEAR,
     ASYNC_DEVICE_CLEAR_ACKNOWLEDGE,
@@ -83,6 +83,7 @@ from simulators.hislip_frames import (
     read_frame,
 )
 from simulators.instrument import AnalyzerCore
+from simulators.link_session import Session
 from simulators.scpi_tree import CommandTree
 
 

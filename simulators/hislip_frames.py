@@ -11,7 +11,7 @@ import socket
 import struct
 from dataclasses import dataclass
 
-from simulators.endpoints import MAX_MESSAGE
+from simulators.link_session import MAX_MESSAGE
 
 HEADER = struct.Struct("!2sBBIQ")
 PROLOGUE = b"HS"

@@ -13,6 +13,7 @@ above HIGH (and more than one point) queues −221 and does not sweep.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 
 from simulators.common_cmds import add_common
 from simulators.encoding import db_deg_pairs, fixed_list
@@ -41,28 +42,38 @@ def build(core: AnalyzerCore) -> CommandTree:
     add_common(tree, core, ("*IDN", "*RST", "*CLS", "*OPC", "*WAI"))
     opc_set = tree.common["*OPC"]
     opc_set.set = None  # only *OPC? exists here
+    _add_settings(tree, core)
+    _add_measure(tree, core)
+    _add_switch(tree, core)
+    _add_errors(tree, core)
+    return tree
 
-    def setting(pattern: str, name: str, lo: float, hi: float, default: float,
-                scale: float = 1.0, integer: bool = False, convert=None) -> None:
-        def set_(call: Call) -> None:
-            value = call.one().number(lo, hi, default, integer=integer)
-            value = int(value) if integer else value * scale
-            if convert is not None:
-                value = convert(value)
-            core.defer(SETTLE_S, lambda: core.change(**{name: value}))
 
-        def query(call: Call) -> str:
-            call.none()
-            core.apply_due()
-            return format_number(getattr(core.settings, name) / scale)
+def _setting(tree: CommandTree, core: AnalyzerCore, pattern: str, name: str, lo: float,
+             hi: float, default: float, scale: float = 1.0, integer: bool = False,
+             convert: Callable[[float], float] | None = None) -> None:
+    """A setting that takes effect after ``SETTLE_S`` (read back in instrument units)."""
+    def set_(call: Call) -> None:
+        value = call.one().number(lo, hi, default, integer=integer)
+        value = int(value) if integer else value * scale
+        if convert is not None:
+            value = convert(value)
+        core.defer(SETTLE_S, lambda: core.change(**{name: value}))
 
-        tree.add(pattern, set=set_, query=query)
+    def query(call: Call) -> str:
+        call.none()
+        core.apply_due()
+        return format_number(getattr(core.settings, name) / scale)
 
-    setting("STIMulus:LOW", "start_hz", 0.01, 20000.0, 10.0, scale=1e6)
-    setting("STIMulus:HIGH", "stop_hz", 0.01, 20000.0, 6000.0, scale=1e6)
-    setting("STIMulus:COUNt", "points", 1, 200001, 201, integer=True)
-    setting("STIMulus:LEVel", "power_dbm", -90.0, 10.0, 0.0)
-    setting("RECeiver:WIDTh", "ifbw_hz", 1.0, 1e6, 1e3, convert=nearest_width)
+    tree.add(pattern, set=set_, query=query)
+
+
+def _add_settings(tree: CommandTree, core: AnalyzerCore) -> None:
+    _setting(tree, core, "STIMulus:LOW", "start_hz", 0.01, 20000.0, 10.0, scale=1e6)
+    _setting(tree, core, "STIMulus:HIGH", "stop_hz", 0.01, 20000.0, 6000.0, scale=1e6)
+    _setting(tree, core, "STIMulus:COUNt", "points", 1, 200001, 201, integer=True)
+    _setting(tree, core, "STIMulus:LEVel", "power_dbm", -90.0, 10.0, 0.0)
+    _setting(tree, core, "RECeiver:WIDTh", "ifbw_hz", 1.0, 1e6, 1e3, convert=nearest_width)
 
     def avg_set(call: Call) -> None:
         n = int(call.one().number(1, 1000, 1, integer=True))
@@ -75,6 +86,8 @@ def build(core: AnalyzerCore) -> CommandTree:
 
     tree.add("RECeiver:AVERage", set=avg_set, query=avg_query)
 
+
+def _add_measure(tree: CommandTree, core: AnalyzerCore) -> None:
     def run(call: Call) -> None:
         call.none()
         core.apply_due()
@@ -109,6 +122,8 @@ def build(core: AnalyzerCore) -> CommandTree:
     tree.add("MEASure:AXIS", query=axis)
     tree.add("MEASure:VALues", query=values)
 
+
+def _add_switch(tree: CommandTree, core: AnalyzerCore) -> None:
     def switch_set(call: Call) -> None:
         target = STANDARDS[call.one().choice(*STANDARDS)]
         core.defer(SETTLE_S, lambda: core.bench.connect(target))
@@ -121,6 +136,8 @@ def build(core: AnalyzerCore) -> CommandTree:
 
     tree.add("SWITch:STANdard", set=switch_set, query=switch_query)
 
+
+def _add_errors(tree: CommandTree, core: AnalyzerCore) -> None:
     def err_next(call: Call) -> str:
         call.none()
         return format_entry(core.status.pop())
@@ -131,4 +148,3 @@ def build(core: AnalyzerCore) -> CommandTree:
 
     tree.add("ERRor:NEXT", query=err_next)
     tree.add("ERRor:CLEar", set=err_clear)
-    return tree

@@ -28,8 +28,9 @@ import threading
 import time
 from typing import Any
 
-from simulators.endpoints import TcpEndpoint, find_message_end
+from simulators.endpoints import TcpEndpoint
 from simulators.instrument import LinkDown, Stopped
+from simulators.link_session import find_message_end
 from simulators.scpi_parser import Interpreter
 
 CORE_PROG, CORE_VERS = 0x0607AF, 1

@@ -183,11 +183,13 @@ def test_io_log_records_every_message_with_times_and_sizes(tmp_path: Path,
     assert events[-1][3] == "close"
 
 
-def test_vv_shows_the_traffic_on_stderr(tmp_path: Path) -> None:
+@pytest.mark.parametrize("where", ["before", "after"])
+def test_vv_shows_the_traffic_on_stderr(tmp_path: Path, where: str) -> None:
     with SimServer() as sim:
-        proc = subprocess.run(
-            [sys.executable, "-m", "acquire.cli", "-vv", "probe", sim.tcp_resource,
-             "--timeout", "0.3"], capture_output=True, text=True, timeout=60, cwd=ROOT)
+        words = ["probe", sim.tcp_resource, "--timeout", "0.3"]
+        words = ["-vv", *words] if where == "before" else [*words, "-v", "-v"]
+        proc = subprocess.run([sys.executable, "-m", "acquire.cli", *words],
+                              capture_output=True, text=True, timeout=60, cwd=ROOT)
     assert proc.returncode == 0, proc.stderr
     traffic = [line for line in proc.stderr.splitlines() if " sweepd.io: " in line]
     assert any(f"{sim.tcp_resource} > 6 B '*IDN?\\n'" in line for line in traffic), traffic

@@ -91,7 +91,7 @@ def test_a_full_disk_holds_the_job_and_it_resumes_when_space_is_back(
 
     usage = namedtuple("usage", "total used free")
     free = {"bytes": 10 * 10**6}
-    monkeypatch.setattr("acquire.soak.worker.shutil.disk_usage",
+    monkeypatch.setattr("acquire.soak.diskhold.shutil.disk_usage",
                         lambda _path: usage(10**9, 10**9 - free["bytes"], free["bytes"]))
     del shutil
     with SimServer(time_scale=0.0) as sim:
@@ -159,7 +159,7 @@ def test_a_hold_goes_on_across_a_daemon_restart_as_one_hold(
 
     usage = namedtuple("usage", "total used free")
     free = {"bytes": 10**9}
-    monkeypatch.setattr("acquire.soak.worker.shutil.disk_usage",
+    monkeypatch.setattr("acquire.soak.diskhold.shutil.disk_usage",
                         lambda _path: usage(10**9, 10**9 - free["bytes"], free["bytes"]))
     with SimServer(time_scale=0.0) as sim:
         job = _job(tmp_path, sim.tcp_resource, every="0.05 s", count=40,

@@ -16,13 +16,10 @@ unit is reported as not measured, and the station reconnects.
 
 from __future__ import annotations
 
-import contextlib
 import shlex
 from dataclasses import dataclass
-from datetime import datetime
 from pathlib import Path
 
-from acquire.capture.calchoice import CalChoice, choose_calibration
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
 from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
@@ -35,13 +32,13 @@ from acquire.station.folder_lock import StationLock
 from acquire.station.hold import handle_indeterminate
 from acquire.station.hooks import LineHooks
 from acquire.station.interrupts import QUIT, Quit, deferred_interrupt, terminate_as_interrupt
+from acquire.station.readiness import Readiness
 from acquire.station.schedule import line_state
 from acquire.station.serials import check_serial, shown
 from acquire.station.swap import SwapGuard, confirm_step
 from acquire.station.terminal import Terminal
 from acquire.station.unit import Line, UnitResult, measure_unit, save_fail_plot
 from acquire.storage import sweep_stale_temps
-from acquire.units import format_duration
 from drivers.errors import InstrumentError, SweepdError
 
 CAUTIONS = (
@@ -90,6 +87,7 @@ class Station:
         self.stop_shown = ""  # the stop reason already shown in full
         self.swap = SwapGuard()  # a unit left on the fixture under a new label
         self.hooks = LineHooks(self.config.hooks, {"plan": plan.name}, self.term.say)
+        self.readiness = Readiness(plan, self.resource, self.term)
 
     # -- the shift -------------------------------------------------------------------------
     def run(self) -> int:
@@ -113,6 +111,7 @@ class Station:
                 operator=self.options.operator, resource=self.resource, **owner.fields())
             self.line = Line(self.plan, self.config, self.out_dir, journal, run_id, station_id,
                              reference=self.reference)
+            self.readiness.line = self.line
             self.hooks.common["station"] = station_id
             self.hooks.fault = lambda text: journal.record_fault(
                 run_id, "HookFailed", text, action="measuring goes on")
@@ -129,14 +128,14 @@ class Station:
                 raise
             finally:
                 with deferred_interrupt():
-                    self._close_session()
+                    self.readiness.close_session()
                     journal.end_run(run_id, state, note)
                     self._goodbye(journal, run_id)
         return code
 
     def _shift(self) -> None:
         try:
-            self._connect()
+            self.readiness.connect()
             while True:
                 if self._ready():
                     self._answer(self.term.ask("serial> "))
@@ -146,7 +145,7 @@ class Station:
     def _ready(self) -> bool:
         """Calibration valid, line not stopped, no golden check due; else deal with it."""
         assert self.line is not None
-        if not self._calibration_ok():
+        if not self.readiness.calibration_ok():
             return False
         golden = self.config.golden
         if golden is None:
@@ -155,7 +154,7 @@ class Station:
             self._golden("start of the shift")
             return False
         state = line_state(self.line.journal, self.plan.name, golden,
-                           cal_created=self._cal_created())
+                           cal_created=self.readiness.cal_created())
         if state.stopped:
             self._stopped(state.stop_reason)
             return False
@@ -174,7 +173,7 @@ class Station:
         elif word == "s":
             self.term.say(f"  {run_yield(self.line.journal, self.line.run_id).line()}")
         elif word == "c":
-            self._calibrate()
+            self.readiness.calibrate()
         elif word == "g" and self.config.golden is not None:
             self._golden("on request")
         else:
@@ -192,7 +191,7 @@ class Station:
         if golden is not None and serial == golden.serial:
             self._golden("on request")
             return
-        if self._cal_problem() is not None:
+        if self.readiness.cal_problem() is not None:
             self.term.say(f"{serial} was NOT measured: the calibration is no longer valid")
             return
         before = self.line.journal.attempts(self.plan.name, serial)
@@ -232,8 +231,8 @@ class Station:
                           f"INSTRUMENT FAULT: {exc}",
                           f"  {serial} was NOT measured and nothing was saved for it; "
                           "it must be measured again")
-            self._close_session()
-            self._connect()
+            self.readiness.close_session()
+            self.readiness.connect()
             return None
 
     def _show(self, result: UnitResult, key: str | None = None) -> None:
@@ -271,7 +270,7 @@ class Station:
         if answer is None or word.lower() in QUIT:
             raise Quit
         if word.lower() == "c":
-            self._calibrate()
+            self.readiness.calibrate()
             return
         if word.lower() in ("?", "help", "h"):
             self.term.say(*HELP)
@@ -280,7 +279,7 @@ class Station:
             self.term.say(f"REFUSED: {shown(word)} is not the golden unit {golden.serial}; "
                           "the golden check comes first")
             return
-        if self._cal_problem() is not None:
+        if self.readiness.cal_problem() is not None:
             return  # the loop shows why and offers the calibration
         self.term.say(f"measuring golden unit {golden.serial} ...")
         result = self._measure(golden.serial, golden=True)
@@ -302,7 +301,7 @@ class Station:
 
     def _stop_reason(self) -> str:
         state = line_state(self.line.journal, self.plan.name, self.config.golden,
-                           cal_created=self._cal_created())
+                           cal_created=self.readiness.cal_created())
         return state.stop_reason
 
     def _stopped(self, reason: str) -> None:
@@ -321,111 +320,9 @@ class Station:
         elif word == "c":
             # the golden check says the setup moved: the new calibration must not be
             # judged against the last one, which was made before the move
-            self._calibrate(compare_last=False)
+            self.readiness.calibrate(compare_last=False)
         else:
             self.term.say(f"REFUSED: {shown(answer)}: the line is stopped; answer g, c or q")
-
-    # -- instrument and calibration ----------------------------------------------------------
-    def _connect(self) -> None:
-        from acquire.capture.session import Session
-
-        while True:
-            session = Session(self.plan, self.resource)
-            try:
-                session.open()
-            except InstrumentError as exc:
-                with contextlib.suppress(Exception):
-                    session.close()
-                self.line.journal.record_fault(self.line.run_id, type(exc).__name__, str(exc),
-                                               action="waiting for the operator")
-                self.term.say(self.term.paint(f"INSTRUMENT NOT READY: {exc}", "red+bold"),
-                              "  check the cable, power and address; Enter tries again, "
-                              "q quits")
-                if (self.term.ask("instrument> ") or "q").strip().lower() in QUIT:
-                    raise Quit from None
-                continue
-            self.line.session = session
-            self.line.cal = None
-            self.line.journal.update_run(self.line.run_id, instrument=session.identity_text)
-            self.term.say(f"instrument {session.identity_text} at {session.resource}")
-            return
-
-    def _close_session(self) -> None:
-        if self.line is not None and self.line.session is not None:
-            with contextlib.suppress(Exception):
-                self.line.session.close()
-            self.line.session = None
-
-    def _cal_problem(self) -> str | None:
-        """Choose the cal set, or check the chosen one is still valid (its age grows
-        while the operator waits); the reason it cannot be used, or None."""
-        line, spec = self.line, self.plan.calibration
-        if spec is None:
-            line.cal = line.cal or CalChoice()
-            return None
-        from acquire.calibration import ValidityPolicy, check_validity
-        from acquire.errors import CalError
-
-        try:
-            if line.cal is None:
-                line.cal = choose_calibration(self.plan, line.session)
-                self._say_cal(line.cal)
-            elif line.cal.calset is not None:
-                check_validity(line.cal.calset, line.session.applied,
-                               line.session.identity_text, policy=ValidityPolicy.from_spec(spec),
-                               plan_ref=str(self.plan.source))
-            return None
-        except CalError as exc:
-            line.cal = None
-            return str(exc)
-
-    def _calibration_ok(self) -> bool:
-        reason = self._cal_problem()
-        if reason is None:
-            return True
-        self.term.say(self.term.paint(f"CANNOT MEASURE: {reason}", "red+bold"),
-                      "  c = run the calibration procedure now   q = quit")
-        answer = self.term.ask("cal> ")
-        word = (answer or "").strip().lower()
-        if answer is None or word in QUIT:
-            raise Quit
-        if word == "c":
-            self._calibrate()
-        else:
-            self.term.say(f"REFUSED: {shown(answer)}: no valid calibration; answer c or q")
-        return False
-
-    def _say_cal(self, cal: CalChoice) -> None:
-        if cal.calset is None:
-            self.term.say("calibration: none; measuring UNCORRECTED data", *cal.warnings)
-            return
-        c = cal.calset
-        spec = self.plan.calibration
-        left = f", valid for {format_duration(spec.max_age_s - c.age_s())} more" if spec else ""
-        self.term.say(f"calibration {c.id} ({c.method}, {format_duration(c.age_s())} old"
-                      f"{left})", *(f"  note: {w}" for w in cal.warnings))
-
-    def _cal_created(self) -> datetime | None:
-        cal = self.line.cal
-        return cal.calset.created if cal is not None and cal.calset is not None else None
-
-    def _calibrate(self, *, compare_last: bool = True) -> None:
-        from acquire.guided import Options, calibrate
-
-        if self.plan.calibration is None:
-            self.term.say("this plan has no calibration section: nothing to calibrate")
-            return
-        self._close_session()
-        options = Options(resource=self.resource, compare_last=compare_last)
-        try:
-            outcome = calibrate(self.plan, options, stdin=self.term,  # type: ignore[arg-type]
-                                stdout=self.term.out)
-            if outcome.saved is None:
-                self.term.say("calibration NOT saved (the verification failed)")
-        except SweepdError as exc:
-            self.term.say(self.term.paint(f"calibration not completed: {exc}", "red+bold"))
-        finally:
-            self._connect()
 
     # -- start and end -----------------------------------------------------------------------
     def _intro(self) -> None:

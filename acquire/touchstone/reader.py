@@ -25,6 +25,7 @@ from .datasets import NOISE_NUMBERS, DataSets, SectionError, read_section
 from .header import OptionLine, parse_option_line, split_keyword
 from .keywords import HeaderError, Keywords, display, read_keywords
 from .limits import MAX_FILE_BYTES, ports_problem
+from .matrices import network_matrices, noise_data
 from .model import NoiseData, TouchstoneFile
 
 _EXTENSION = re.compile(r"\.[szyhg](\d+)p\Z", re.IGNORECASE)
@@ -212,12 +213,13 @@ class _Parser:
                              split_noise=ports == 2)
         version = "1.1" if len(resistance) > 1 else "1.0"
         z0 = tuple(np.broadcast_to(np.array(resistance), (ports,)).tolist())
-        matrix = self._matrices(sets.values, ports, column_major=ports == 2, matrix="full")
+        matrix = network_matrices(sets.values, ports, self.option.fmt,
+                                  column_major=ports == 2, matrix="full")
         if self.option.parameter != "S":
             matrix = matrix / normalisation(self.option.parameter, z0, ports)
         noise = None
         if sets.noise is not None:
-            noise = self._noise(sets.noise, rn_scale=z0[0])
+            noise = noise_data(sets.noise, rn_scale=z0[0])
         return self._result(sets, matrix, z0, version, noise, ())
 
     def _infer_ports(self, start: int, data_line: int) -> int:
@@ -297,7 +299,8 @@ class _Parser:
             raise self.error(end_line, f"expected [End] or [Noise Data], found {display(keyword)}")
         self._after_end(end)
         column_major = ports == 2 and kw.order == "21_12"
-        matrix = self._matrices(sets.values, ports, column_major=column_major, matrix=kw.matrix)
+        matrix = network_matrices(sets.values, ports, self.option.fmt,
+                                  column_major=column_major, matrix=kw.matrix)
         return self._result(sets, matrix, z0, kw.version, noise, kw.mixed)
 
     def _v2_noise(self, kw: Keywords, at: int, line: int) -> tuple[NoiseData, int, int]:
@@ -318,7 +321,7 @@ class _Parser:
             raise self.error(kw.lines["number of noise frequencies"],
                              f"[Number of Noise Frequencies] is {declared} but [Noise Data] "
                              f"holds {len(sets.values)} lines")
-        return self._noise(sets.values, rn_scale=1.0), end, end_line
+        return noise_data(sets.values, rn_scale=1.0), end, end_line
 
     def _next_keyword(self, start: int) -> tuple[int, int]:
         """Offset and 1-based line of the next keyword line at or after ``start``."""
@@ -373,29 +376,6 @@ class _Parser:
             raise self.error(self.option.line, f"{self.option.parameter} parameters need a "
                                                f"2-port file, this one has {ports} ports")
 
-    def _matrices(self, values: np.ndarray, ports: int, *, column_major: bool,
-                  matrix: str) -> np.ndarray:
-        n = values.shape[0]
-        a, b = values[:, 1::2], values[:, 2::2]
-        fmt = self.option.fmt
-        if fmt == "RI":                     # pairs are (re, im) already: exact, keeps -0.0
-            flat = np.ascontiguousarray(values[:, 1:]).view(np.complex128)
-        else:
-            mag = 10.0 ** (a / 20.0) if fmt == "DB" else a
-            flat = mag * _unit_phasor(b)
-        if matrix == "full":
-            out = flat.reshape(n, ports, ports)
-            return np.ascontiguousarray(out.transpose(0, 2, 1)) if column_major else out
-        rows, cols = np.tril_indices(ports) if matrix == "lower" else np.triu_indices(ports)
-        out = np.zeros((n, ports, ports), dtype=np.complex128)
-        out[:, rows, cols] = flat
-        out[:, cols, rows] = flat
-        return out
-
-    def _noise(self, values: np.ndarray, rn_scale: float) -> NoiseData:
-        return NoiseData(values[:, 0], values[:, 1], values[:, 2] * _unit_phasor(values[:, 3]),
-                         values[:, 4] * rn_scale)
-
     def _result(self, sets: DataSets, matrix: np.ndarray, z0: tuple[float, ...], version: str,
                 noise: NoiseData | None, mixed: tuple[str, ...]) -> TouchstoneFile:
         meta, comments = split_meta(self.comments)
@@ -404,13 +384,3 @@ class _Parser:
             version=version, fmt=self.option.fmt, comments=tuple(comments), meta=meta,
             noise=noise, warnings=tuple(self.warnings), mixed_mode=mixed, name=self.name)
 
-
-def _unit_phasor(degrees: np.ndarray) -> np.ndarray:
-    """exp(j*degrees) with exact values at multiples of 90 degrees."""
-    rad = np.deg2rad(degrees)
-    out = np.cos(rad) + 1j * np.sin(rad)
-    quarter = np.remainder(degrees, 90.0) == 0
-    if quarter.any():
-        k = np.remainder(degrees[quarter] // 90, 4).astype(int)
-        out[quarter] = np.array([1, 1j, -1, -1j])[k]
-    return out
