@@ -19,7 +19,8 @@ RUN_COLUMNS = ("kind", "plan", "plan_path", "station", "operator", "instrument",
 MEASUREMENT_COLUMNS = ("seq", "serial", "attempt", "golden", "time_utc", "state",
                        "touchstone", "raw_touchstone", "summary", "verdict", "exit_code",
                        "worst_margin", "metrics_json", "verdict_json", "cal_id", "cal_age_s",
-                       "instrument", "note", "capture_id")
+                       "instrument", "note", "capture_id", "touchstone_sha256",
+                       "summary_sha256")
 CHILD_COLUMNS = {
     "faults": ("seq", "time_utc", "kind", "message", "action"),
     "golden_checks": ("time_utc", "serial", "passed", "worst_db", "worst_deg", "touchstone",

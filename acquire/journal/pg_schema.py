@@ -12,7 +12,7 @@ change the schema: append a migration here, raise ``SCHEMA_VERSION``, and do the
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 # the advisory lock key that serialises migrations ("sweepd" in ASCII)
 MIGRATION_LOCK = 0x737765657064
@@ -134,4 +134,11 @@ CREATE UNIQUE INDEX alarms_source_key ON alarms(source_key);
 CREATE UNIQUE INDEX holds_source_key ON holds(source_key)
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2}
+# 3: the SHA-256 (hex) of a stored capture's Touchstone file and of its JSON summary (as
+# in the SQLite journal's version 8).
+_V3 = """
+ALTER TABLE measurements ADD COLUMN touchstone_sha256 TEXT;
+ALTER TABLE measurements ADD COLUMN summary_sha256 TEXT
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3}

@@ -16,6 +16,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from acquire.journal.sql_journal import file_sha256
 from acquire.journal.states import INTERRUPTED_NOTE
 
 if TYPE_CHECKING:
@@ -70,6 +71,8 @@ def adopted_fields(touchstone: Path) -> dict[str, Any]:
             instrument=capture.get("instrument"),
         )
     fields["note"] = ADOPTED_NOTE
+    fields["touchstone_sha256"] = file_sha256(touchstone)
+    fields["summary_sha256"] = file_sha256(summary) if summary.is_file() else None
     return fields
 
 

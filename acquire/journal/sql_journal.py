@@ -12,6 +12,7 @@ there, so a writer that retries after a lost reply never makes a duplicate.
 
 from __future__ import annotations
 
+import hashlib
 import uuid
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from contextlib import AbstractContextManager, contextmanager
@@ -33,7 +34,7 @@ from acquire.utc import utc_text
 _MEASUREMENT_COLUMNS = (
     "id, run_id, seq, serial, attempt, golden, time_utc, state, touchstone, raw_touchstone, "
     "summary, verdict, exit_code, worst_margin, metrics_json, verdict_json, cal_id, "
-    "cal_age_s, instrument, note, capture_id"
+    "cal_age_s, instrument, note, capture_id, touchstone_sha256, summary_sha256"
 )
 _STORED_ATTEMPTS = (
     "SELECT COUNT(*) FROM measurements m JOIN runs r ON r.id = m.run_id "
@@ -186,13 +187,15 @@ class SqlJournal(JournalStore):
 
     def store_measurement(self, planned: Planned, *, touchstone: Path, summary: Path | None,
                           raw_touchstone: Path | None, fields: StoredFields) -> None:
+        hashes = (file_sha256(touchstone), file_sha256(summary))  # the bytes as they landed
         with self._tx() as db:
             db.execute(
                 "UPDATE measurements SET state='stored', touchstone=?, summary=?, "
                 "raw_touchstone=?, verdict=?, exit_code=?, worst_margin=?, metrics_json=?, "
-                "verdict_json=?, cal_id=?, cal_age_s=?, instrument=?, note=? WHERE id=?",
+                "verdict_json=?, cal_id=?, cal_age_s=?, instrument=?, note=?, "
+                "touchstone_sha256=?, summary_sha256=? WHERE id=?",
                 (str(touchstone), text_or_none(summary), text_or_none(raw_touchstone),
-                 *_stored(fields),
+                 *_stored(fields), *hashes,
                  planned.id),
             )
 
@@ -368,6 +371,21 @@ class SqlJournal(JournalStore):
     def alarms(self, run_id: int) -> list[Row]:
         return self._rows("SELECT seq, time_utc, metric, value, threshold, message FROM alarms "
                           "WHERE run_id = ? ORDER BY id", (run_id,))
+
+
+def file_sha256(path: Path | None) -> str | None:
+    """The SHA-256 (hex) of a file's bytes as they are on disk; None without a file (the
+    row is journalled all the same: a missing hash is seen, a lost row is not)."""
+    if path is None:
+        return None
+    digest = hashlib.sha256()
+    try:
+        with open(path, "rb") as handle:
+            for block in iter(lambda: handle.read(1 << 20), b""):
+                digest.update(block)
+    except FileNotFoundError:
+        return None
+    return digest.hexdigest()
 
 
 def text_or_none(value: Any) -> str | None:

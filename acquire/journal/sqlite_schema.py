@@ -10,7 +10,7 @@ test (``tests/test_journal_migrations.py``).
 
 from __future__ import annotations
 
-SCHEMA_VERSION = 7
+SCHEMA_VERSION = 8
 
 _V1 = """
 CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -146,4 +146,12 @@ CREATE TABLE outbox (
 )
 """
 
-MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7}
+# 8: the SHA-256 (hex) of a stored capture's Touchstone file and of its JSON summary,
+# computed from the files as they landed, so that a copy or a shared folder can be checked.
+_V8 = """
+ALTER TABLE measurements ADD COLUMN touchstone_sha256 TEXT;
+ALTER TABLE measurements ADD COLUMN summary_sha256 TEXT
+"""
+
+MIGRATIONS: dict[int, str] = {1: _V1, 2: _V2, 3: _V3, 4: _V4, 5: _V5, 6: _V6, 7: _V7,
+                              8: _V8}

@@ -29,7 +29,8 @@ RUN_FIELDS = ("plan_path", "station", "operator", "instrument", "resource", "job
 RUN_UPDATES = ("instrument", "resource", "state", "note", "ended_utc", "station", "operator",
                "lot")
 FILL_FIELDS = ("metrics_json", "verdict", "exit_code", "worst_margin", "summary",
-               "raw_touchstone", "verdict_json", "cal_id", "cal_age_s", "instrument", "note")
+               "raw_touchstone", "verdict_json", "cal_id", "cal_age_s", "instrument", "note",
+               "touchstone_sha256", "summary_sha256")
 
 
 @dataclass(frozen=True)
