@@ -61,7 +61,10 @@ def test_a_shift_goes_on_while_the_server_is_down(pg_url, restart, tmp_path) -> 
     with open_journal(pg_url, read_only=True) as store:
         (server_run,) = {r["run_id"] for r in rows}
         assert store.run(server_run)["state"] == "finished"
-        assert [f["message"] for f in store.faults(server_run)] == ["results server down"]
+        faults = [(f["kind"], f["message"]) for f in store.faults(server_run)]
+        assert [k for k, _ in faults] == ["StoreUnreachable", "StoreUnreachable",
+                                          "StoreResumed"]  # the outage's own rows too
+        assert faults[1][1] == "results server down"
     assert {r["touchstone"] for r in rows} == {str(p) for p in out.glob("*.s1p")}
 
 
@@ -110,3 +113,55 @@ def test_runs_from_before_the_store_are_still_settled_at_the_station(pg_url, tmp
     with open_journal(pg_url, read_only=True) as store:
         (row,) = store.measurements()
         assert row["state"] == "interrupted" and row["station"] is None
+
+
+def test_an_outage_is_one_fault_row_and_one_line_each_way(pg_url, restart, tmp_path,
+                                                          capsys) -> None:
+    """Many failed attempts during one outage: one fault row in the station's own file and
+    one stderr line when it starts, one of each when forwarding resumes (common practice
+    for alarm logs: an edge, not a level)."""
+    out = tmp_path / "out"
+    j = OutboxJournal(out, pg_url, origin=station_origin(out), retry_s=0.0)
+    run = j.start_run("station", "patch-line-a", station="st-1")
+    _unit(j, run, 0, out)
+    assert capsys.readouterr().err == ""
+
+    restart.stop()
+    for seq in range(1, 5):  # each write tries to forward (retry_s=0) and fails
+        _unit(j, run, seq, out)
+    err = capsys.readouterr().err.splitlines()
+    assert len(err) == 1 and err[0].startswith("sweepd: shared store postgresql://")
+    assert "unreachable: " in err[0] and err[0].endswith("; journalling locally, will forward")
+    assert [f["kind"] for f in j.faults(run)] == ["StoreUnreachable"]
+
+    restart.start()
+    _unit(j, run, 5, out)
+    _unit(j, run, 6, out)
+    err = capsys.readouterr().err.splitlines()
+    assert len(err) == 1 and "reachable again" in err[0]
+    assert [f["kind"] for f in j.faults(run)] == ["StoreUnreachable", "StoreResumed"]
+    assert j.backlog() == 0
+    j.close()
+    with open_journal(pg_url, read_only=True) as store:
+        (server_run,) = [r for r in store.open_runs(["station"])
+                         if r["origin"] == station_origin(out)]
+        kinds = [f["kind"] for f in store.faults(server_run["id"])]
+    assert kinds == ["StoreUnreachable", "StoreResumed"]  # forwarded with the rest
+
+
+def test_a_station_that_starts_during_an_outage_says_so_once(pg_url, restart, tmp_path,
+                                                             capsys) -> None:
+    restart.stop()
+    out = tmp_path / "out"
+    j = OutboxJournal(out, pg_url, origin=station_origin(out), retry_s=0.0)
+    run = j.start_run("station", "patch-line-a", station="st-2")
+    for seq in range(3):
+        _unit(j, run, seq, out)
+    j.close()  # the last try at close is part of the same outage
+    assert len(capsys.readouterr().err.splitlines()) == 1
+    db = sqlite3.connect(out / JOURNAL_NAME)
+    try:
+        kinds = db.execute("SELECT kind FROM faults").fetchall()
+    finally:
+        db.close()
+    assert kinds == [("StoreUnreachable",)]

@@ -7,12 +7,15 @@ every changed row in the file's ``outbox`` table, in order; after each write the
 is forwarded to the server (``pg_forward``: upserts under keys the rows already had, so a
 retry never doubles a row) and the forwarded entries are removed. While the server is
 unreachable the outbox grows; forwarding is tried again at the next write once
-``retry_s`` has passed, and once more at close.
+``retry_s`` has passed, and once more at close. An outage is journalled in the station's
+file as one fault row when it starts and one when forwarding resumes, each with one line
+on stderr; the attempts in between are silent.
 """
 
 from __future__ import annotations
 
 import contextlib
+import sys
 import threading
 import time
 import uuid
@@ -27,6 +30,8 @@ from acquire.journal.sqlite import SqliteJournal
 from acquire.journal.sqlite_file import SqliteFile
 
 BATCH = 200  # outbox entries forwarded per server transaction
+STORE_UNREACHABLE = "StoreUnreachable"  # fault kinds of an outage's start and end
+STORE_RESUMED = "StoreResumed"
 
 
 class OutboxJournal(SqliteJournal):
@@ -84,19 +89,53 @@ class OutboxJournal(SqliteJournal):
         try:
             while self._forward_batch():
                 pass
+            if self.last_error is not None:
+                self._outage_ends()
+                while self._forward_batch():  # the row that says so
+                    pass
         except JournalError as exc:
-            self.last_error = str(exc)
-            self._run_ids.clear()  # ids learnt in a transaction that did not commit
-            self._next_try = time.monotonic() + self.retry_s
-            if self._server is not None:
-                with contextlib.suppress(Exception):
-                    self._server.close()
-                self._server = None
+            self._cannot_forward(exc)
             return False
         finally:
             self._forwarding.release()
-        self.last_error = None
         return True
+
+    def _cannot_forward(self, exc: JournalError) -> None:
+        """Keep the changes for later; the first failure of an outage is journalled and
+        shown once (later attempts of the same outage are silent)."""
+        first = self.last_error is None
+        self.last_error = " ".join(str(exc).split())
+        self._run_ids.clear()  # ids learnt in a transaction that did not commit
+        self._next_try = time.monotonic() + self.retry_s
+        if self._server is not None:
+            with contextlib.suppress(Exception):
+                self._server.close()
+            self._server = None
+        if first:
+            reason = self.last_error.removeprefix(f"journal {self._public_url()}: ")
+            message = (f"shared store {self._public_url()} unreachable: {reason}; "
+                       "journalling locally, will forward")
+            self._journal_store_fault(STORE_UNREACHABLE, message, "journalling locally")
+            print(f"sweepd: {message}", file=sys.stderr, flush=True)
+
+    def _outage_ends(self) -> None:
+        message = f"shared store {self._public_url()} reachable again; backlog forwarded"
+        self.last_error = None
+        self._journal_store_fault(STORE_RESUMED, message, "forwarded")
+        print(f"sweepd: {message}", file=sys.stderr, flush=True)
+
+    def _journal_store_fault(self, kind: str, message: str, action: str) -> None:
+        """A fault row in the station's own file, under its newest open run (if any);
+        forwarded with everything else."""
+        run = self._value("SELECT MAX(id) FROM runs WHERE state = 'running'")
+        with contextlib.suppress(JournalError):  # a full disk: the stderr line remains
+            self.record_fault(None if run is None else int(run), kind, message,
+                              action=action)
+
+    def _public_url(self) -> str:
+        from acquire.journal.postgres import public_url
+
+        return public_url(self.url)
 
     def _forward_batch(self) -> bool:
         """One batch in one server transaction; False when the outbox is empty."""
