@@ -65,7 +65,7 @@ def test_a_batch_over_tcp_gets_the_right_verdicts_files_and_journal(sim, tmp_pat
     out = tmp_path / "out"
     cal = install_cal(out)
     plan = write_plan(tmp_path, sim.tcp_resource)
-    with start(plan, "--operator", "Ana") as st:
+    with start(plan, "--operator", "Ana", "--lot", "LOT-2026-49") as st:
         intro = golden_ok(st, sim)
         assert "CAUTION: never connect the test port to a line that carries" in intro
         assert "CAUTION: ESD" in intro
@@ -86,8 +86,8 @@ def test_a_batch_over_tcp_gets_the_right_verdicts_files_and_journal(sim, tmp_pat
         st.send("q")
         assert st.wait() == 0
     run = rows(out, "SELECT * FROM runs")[0]
-    assert (run["kind"], run["station"], run["operator"], run["state"]) == (
-        "station", "bench-7", "Ana", "finished")
+    assert (run["kind"], run["station"], run["operator"], run["lot"], run["state"]) == (
+        "station", "bench-7", "Ana", "LOT-2026-49", "finished")
     assert run["instrument"] == "sweepd-sim,generic-2port,SIM0001,1.0"
     got = rows(out, "SELECT serial, attempt, golden, verdict, cal_id, summary FROM measurements "
                     "ORDER BY id")

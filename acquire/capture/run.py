@@ -50,7 +50,8 @@ class RunResult:
 
 
 def run_plan(plan: Plan, out_dir: Path, *, resource: str | None = None,
-             serial: str = "", kind: str = "run") -> RunResult:
+             serial: str = "", kind: str = "run", operator: str | None = None,
+             lot: str | None = None) -> RunResult:
     """The whole of ``sweepd run``: open, choose the cal set, sweep, judge, journal, store.
 
     The measurement is journalled as pending before its files are written and marked
@@ -59,7 +60,8 @@ def run_plan(plan: Plan, out_dir: Path, *, resource: str | None = None,
     sweep_stale_temps(out_dir)  # leftovers of a writer that was killed mid-write
     with journal_in(out_dir, location=plan.output.journal) as journal, journalled_run(
             journal, out_dir, kind, plan, fault_action="run stopped",
-            resource=resource or plan.instrument.resource) as run:
+            resource=resource or plan.instrument.resource, operator=operator,
+            lot=lot) as run:
         with Session(plan, resource) as session:
             journal.update_run(run.id, instrument=session.identity_text)
             cal = choose_calibration(plan, session)

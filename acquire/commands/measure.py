@@ -24,6 +24,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--output", metavar="DIR",
                         help="output folder; overrides the plan's output.dir")
     parser.add_argument("--station", metavar="ID", help="station id recorded with the run")
+    parser.add_argument("--operator", metavar="NAME", help="operator recorded with the run")
+    parser.add_argument("--lot", metavar="LOT", help="lot recorded with the run")
     parser.add_argument("--json", action="store_true", help="print one JSON object")
 
 
@@ -43,7 +45,7 @@ def run(args: argparse.Namespace) -> int:
         plan_name = plan.name
         request = Request(serial=args.serial, golden=args.golden, resource=args.resource,
                           out_dir=cli_path(args.output) if args.output else None,
-                          station_id=args.station)
+                          station_id=args.station, operator=args.operator, lot=args.lot)
         outcome = measure_one(plan, request)
     except Exception as exc:  # an error, or anything unforeseen: with --json still one object
         if not args.json:

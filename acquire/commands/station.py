@@ -21,6 +21,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="station id recorded with the shift (default: the plan's "
                              "station.id, else asked at start)")
     parser.add_argument("--operator", metavar="NAME", help="operator recorded with the shift")
+    parser.add_argument("--lot", metavar="LOT", help="lot recorded with the shift")
     parser.add_argument("--output", metavar="DIR",
                         help="output folder; overrides the plan's output.dir")
     parser.add_argument("--no-color", action="store_true", help="never use colour")
@@ -35,7 +36,7 @@ def run(args: argparse.Namespace) -> int:
 
     plan = load_plan(args.plan)
     options = StationOptions(
-        resource=args.resource, station_id=args.station, operator=args.operator,
+        resource=args.resource, station_id=args.station, operator=args.operator, lot=args.lot,
         out_dir=cli_path(args.output) if args.output else None,
     )
     term = Terminal(color=False if args.no_color else None)

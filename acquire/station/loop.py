@@ -21,6 +21,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from acquire.journal import JOURNAL_NAME, JournalStore, journal_in
+from acquire.journal.labels import check_lot, check_operator
 from acquire.journal.owner import RunOwner, settle_dead_runs
 from acquire.plan import Plan
 from acquire.station.config import StationConfig, check_station_id, station_config
@@ -56,6 +57,7 @@ class StationOptions:
     resource: str | None = None
     station_id: str | None = None
     operator: str | None = None
+    lot: str | None = None
     out_dir: Path | None = None
 
 
@@ -73,10 +75,8 @@ class Station:
         self.term = term or Terminal()
         self.out_dir = options.out_dir or plan.output.dir
         self.resource = options.resource or plan.instrument.resource
-        if options.operator is not None and not (
-                0 < len(options.operator) <= 64 and options.operator.isprintable()):
-            raise StationError(f"--operator must be 1-64 printable characters, got "
-                               f"{shown(options.operator)}")
+        check_operator(options.operator)
+        check_lot(options.lot)
         self.reference = None
         if self.config.golden is not None:
             from acquire.station.golden import load_reference
@@ -108,7 +108,8 @@ class Station:
             self._recover(journal)
             run_id = journal.start_run(
                 "station", self.plan.name, plan_path=str(self.plan.source), station=station_id,
-                operator=self.options.operator, resource=self.resource, **owner.fields())
+                operator=self.options.operator, lot=self.options.lot, resource=self.resource,
+                **owner.fields())
             self.line = Line(self.plan, self.config, self.out_dir, journal, run_id, station_id,
                              reference=self.reference)
             self.readiness.line = self.line

@@ -18,6 +18,7 @@ from acquire.capture.calchoice import choose_calibration
 from acquire.capture.records import journalled_run
 from acquire.capture.session import Session
 from acquire.journal import journal_in
+from acquire.journal.labels import check_lot, check_operator
 from acquire.plan import Plan
 from acquire.station.config import check_station_id, station_config
 from acquire.station.errors import LineStopped, StationError
@@ -42,6 +43,8 @@ class Request:
     resource: str | None = None
     out_dir: Path | None = None
     station_id: str | None = None
+    operator: str | None = None
+    lot: str | None = None
 
 
 @dataclass
@@ -71,12 +74,15 @@ def measure_one(plan: Plan, request: Request, session: Session | None = None) ->
     station_id = request.station_id or config.station_id or ""
     if station_id:
         check_station_id(station_id)
+    check_operator(request.operator)
+    check_lot(request.lot)
     reference = load_reference(golden, plan) if golden is not None else None
     out_dir = request.out_dir or plan.output.dir
     resource = request.resource or plan.instrument.resource
     with journal_in(out_dir, location=plan.output.journal) as journal, journalled_run(
             journal, out_dir, "measure", plan, fault_action="not measured",
-            station=station_id or None, resource=resource) as run, \
+            station=station_id or None, resource=resource, operator=request.operator,
+            lot=request.lot) as run, \
             _opened(session, plan, resource) as session:
         journal.update_run(run.id, instrument=session.identity_text)
         cal = choose_calibration(plan, session)
