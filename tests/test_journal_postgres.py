@@ -4,6 +4,7 @@ stations measuring at once into one database."""
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
 import sqlite3
@@ -213,6 +214,13 @@ def _check_store_against_files(pg_url: str, tmp_path: Path) -> None:
         for r in mine:
             summary = json.loads(Path(r["summary"]).read_text())
             assert summary["verdict"] == r["verdict"]
+            # the store's hashes are those of the files on the station's disk (hashlib)
+            assert r["touchstone_sha256"] == _sha256(Path(r["touchstone"]))
+            assert r["summary_sha256"] == _sha256(Path(r["summary"]))
+
+
+def _sha256(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
 
 
 def _local(out: Path, sql: str) -> list[tuple]:
