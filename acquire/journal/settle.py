@@ -16,7 +16,7 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from acquire.journal.sql_journal import file_sha256
+from acquire.journal.hashes import file_sha256
 from acquire.journal.states import INTERRUPTED_NOTE
 
 if TYPE_CHECKING:

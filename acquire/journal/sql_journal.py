@@ -12,7 +12,6 @@ there, so a writer that retries after a lost reply never makes a duplicate.
 
 from __future__ import annotations
 
-import hashlib
 import uuid
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from contextlib import AbstractContextManager, contextmanager
@@ -20,6 +19,7 @@ from pathlib import Path
 from typing import Any, Protocol
 
 from acquire.errors import JournalError
+from acquire.journal.hashes import file_sha256
 from acquire.journal.store import (
     FILL_FIELDS,
     RUN_FIELDS,
@@ -371,21 +371,6 @@ class SqlJournal(JournalStore):
     def alarms(self, run_id: int) -> list[Row]:
         return self._rows("SELECT seq, time_utc, metric, value, threshold, message FROM alarms "
                           "WHERE run_id = ? ORDER BY id", (run_id,))
-
-
-def file_sha256(path: Path | None) -> str | None:
-    """The SHA-256 (hex) of a file's bytes as they are on disk; None without a file (the
-    row is journalled all the same: a missing hash is seen, a lost row is not)."""
-    if path is None:
-        return None
-    digest = hashlib.sha256()
-    try:
-        with open(path, "rb") as handle:
-            for block in iter(lambda: handle.read(1 << 20), b""):
-                digest.update(block)
-    except FileNotFoundError:
-        return None
-    return digest.hexdigest()
 
 
 def text_or_none(value: Any) -> str | None:
