@@ -11,8 +11,8 @@ from test_station_support import install_cal, write_plan
 
 from acquire.cli import main
 from acquire.journal import journal_in, open_journal
-from acquire.journal.settle import adopted_fields
 from acquire.journal.hashes import file_sha256
+from acquire.journal.settle import adopted_fields
 from simulators.server import SimServer
 
 
