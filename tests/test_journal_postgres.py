@@ -269,3 +269,26 @@ def test_summary_filters_by_lot_and_refuses_a_dead_store(pg_url, capsys) -> None
     assert main(["summary", dead]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "server unreachable" in err and ":pw@" not in err
+
+
+def test_a_soak_plan_that_names_the_store_journals_there(pg_url, tmp_path) -> None:
+    """The plan key reaches soak jobs too (not only SWEEPD_JOURNAL): every sweep of the
+    job is a row of its run in the shared store, found by the job's uid."""
+    from test_soak_support import soak_plan, submit
+
+    from acquire.soak.spool import Spool
+    from acquire.soak.worker import SoakWorker, StopSignal
+    from simulators.server import SimServer
+
+    with SimServer(time_scale=0.0) as sim:
+        plan = soak_plan(tmp_path / "soak.yaml", sim.tcp_resource, tmp_path / "out", count=6)
+        data = yaml.safe_load(plan.read_text())
+        data["output"]["journal"] = pg_url
+        plan.write_text(yaml.safe_dump(data, sort_keys=False))
+        job = submit(Spool(tmp_path / "spool").ensure(), plan)
+        assert SoakWorker(job, StopSignal()).run() == "finished"
+    with open_journal(pg_url, read_only=True) as store:
+        run = store.soak_run(job.uid)
+        assert run is not None and run["state"] == "finished"
+        rows = store.run_measurements(int(run["id"]))
+    assert len(rows) == 6 and {r["state"] for r in rows} <= {"stored", "measured"}

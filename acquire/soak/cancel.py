@@ -30,7 +30,8 @@ def cancel_without_daemon(spool: Spool, job: Job) -> bool:
         reason = f"cancelled by {who()} while sweepd serve was not running"
         run_id = state.get("run_id")
         if run_id and (job.output_dir / JOURNAL_NAME).is_file():
-            with journal_in(job.output_dir) as journal:
+            with journal_in(job.output_dir,
+                            location=job.load_plan().output.journal) as journal:
                 journal.reconcile(run_id=int(run_id))
                 journal.record_fault(int(run_id), "cancel", reason, action="job stopped")
                 journal.end_run(int(run_id), "stopped", note=reason)

@@ -109,7 +109,7 @@ class SoakWorker:
                         self.spec.alarms.command)
         job.claim_data_dir()
         sweep_stale_temps(job.data_dir)
-        self.journal = journal = journal_in(job.output_dir)
+        self.journal = journal = journal_in(job.output_dir, location=plan.output.journal)
         state = job.read_state()
         run = history.find_run(journal, job)
         now = self.clock.now()
