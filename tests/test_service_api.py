@@ -210,3 +210,20 @@ def test_listen_rules(tmp_path) -> None:
     with pytest.raises(AccessError, match="at least 16 characters"):
         check_access(parse_listen("127.0.0.1:1"), short)
     assert json.dumps(check_access(parse_listen("localhost:1"), None)) == "null"
+
+
+def test_lot_and_operator_are_recorded_and_checked(world, sim, tmp_path) -> None:
+    from acquire.journal import journal_in
+
+    client, _, _ = world
+    sim.bench.select_unit(GOOD[0])
+    done = client.post("/api/v1/measure", json={"plan": "patch-station", "serial": GOOD[0],
+                                                 "lot": "LOT-2026-12", "operator": "Ana K"})
+    assert done.status_code == 200, done.text
+    run_id = done.json()["journal"]["run_id"]
+    with journal_in(tmp_path / "out", read_only=True) as journal:
+        run = journal.run(run_id)
+    assert (run["lot"], run["operator"]) == ("LOT-2026-12", "Ana K")
+    bad = client.post("/api/v1/measure", json={"plan": "patch-station", "serial": GOOD[0],
+                                                "lot": "../etc"})
+    assert bad.status_code == 422 and "lot must be 1-64 letters" in one_line(bad)

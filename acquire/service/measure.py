@@ -14,6 +14,7 @@ log = logging.getLogger(__name__)
 
 def measure_unit(service: Any, body: MeasureRequest) -> tuple[int, dict[str, Any]]:
     """(HTTP status, measure document) for one request; never raises a ``SweepdError``."""
+    from acquire.journal.labels import check_lot, check_operator
     from acquire.service.statuses import status_for
     from acquire.station.measure import Request, measure_one, result_dict, unit_serial
     from drivers.resources import resource_problem
@@ -29,7 +30,9 @@ def measure_unit(service: Any, body: MeasureRequest) -> tuple[int, dict[str, Any
 
             raise PlanError(f"resource: {problem}")
         request = Request(serial=body.serial, golden=body.golden, resource=resource,
-                          station_id=body.station)
+                          station_id=body.station,
+                          operator=check_operator(body.operator, "operator"),
+                          lot=check_lot(body.lot, "lot"))
         unit_serial(plan, request)  # refused before the instrument is touched
         who = "measurement of the golden unit" if body.golden else \
             f"measurement of unit {body.serial or '(no serial)'}"

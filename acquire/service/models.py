@@ -26,6 +26,10 @@ class MeasureRequest(_Strict):
     resource: str | None = Field(None, pattern=RESOURCE,
                                  description="VISA resource; overrides the plan's")
     station: str | None = Field(None, pattern=STATION, description="station id recorded")
+    operator: str | None = Field(None, min_length=1, max_length=64,
+                                 description="operator recorded with the run")
+    lot: str | None = Field(None, min_length=1, max_length=64,
+                            description="production lot recorded with the run")
     wait_s: float = Field(10.0, ge=0.0, le=MAX_WAIT_S,
                           description="how long to wait for a busy instrument")
 
