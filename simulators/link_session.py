@@ -129,17 +129,10 @@ class Session(ABC):
         return message
 
     def _process(self, message: bytes) -> None:
-        core = self.core
-        try:
-            with core.lock:
-                if core.stopping:
-                    raise Stopped
-                core.apply_due()
-                outcome = self.interp.execute(message)
-        except LinkDown:
+        outcome = execute_message(self.core, self.interp, message)
+        if outcome is None:
             self.drop_link()
-            return
-        if outcome.response is not None:
+        elif outcome.response is not None:
             self._deliver(outcome)
 
     def _deliver(self, outcome: Outcome) -> None:
@@ -256,3 +249,16 @@ def find_message_end(buf: bytearray) -> int | None:
             continue
         i += 1
     return None
+
+
+def execute_message(core: AnalyzerCore, interp: Interpreter, message: bytes) -> Outcome | None:
+    """Run one program message under the instrument's lock (due settings applied first);
+    None when a fault took the link down meanwhile. ``Stopped`` once the simulator stops."""
+    try:
+        with core.lock:
+            if core.stopping:
+                raise Stopped
+            core.apply_due()
+            return interp.execute(message)
+    except LinkDown:
+        return None

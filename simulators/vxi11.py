@@ -29,8 +29,8 @@ import time
 from typing import Any
 
 from simulators.endpoints import TcpEndpoint
-from simulators.instrument import LinkDown, Stopped
-from simulators.link_session import find_message_end
+from simulators.instrument import Stopped
+from simulators.link_session import execute_message, find_message_end
 from simulators.scpi_parser import Interpreter
 
 CORE_PROG, CORE_VERS = 0x0607AF, 1
@@ -246,17 +246,10 @@ class VxiLink:
 
     # -- the instrument ------------------------------------------------------------------
     def _execute(self, message: bytes) -> None:
-        core = self.core
-        try:
-            with core.lock:
-                if core.stopping:
-                    raise Stopped
-                core.apply_due()
-                outcome = self.interp.execute(message)
-        except LinkDown:
+        outcome = execute_message(self.core, self.interp, message)
+        if outcome is None:
             self._drop_at_read = True
-            return
-        if outcome.response is not None:
+        elif outcome.response is not None:
             self._deliver(outcome.response, outcome.data)
 
     def _deliver(self, payload: bytes, data: bool) -> None:
