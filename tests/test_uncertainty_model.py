@@ -101,19 +101,32 @@ def test_monte_carlo_with_an_independent_solver_agrees() -> None:
 
 
 @pytest.mark.parametrize("name", list(BUDGETS))
-def test_near_a_match_the_radius_covers_95_percent(name: str) -> None:
-    """At |Γ| = 0 U is the 95 % radius of the complex error. It must cover at least 95 %
-    of the trials; where the load's uniform tolerance dominates, the normal assumption
-    makes it up to about 13 % larger than the Monte Carlo radius (a uniform disc of
-    radius r holds 95 % within 0.975·r, a normal of the same variance needs 1.22·r)."""
+def test_near_a_match_the_radius_agrees_with_monte_carlo(name: str) -> None:
+    """At |Γ| = 0 U is the 95 % radius of the complex error, taken from the inputs' own
+    distributions (JCGM 102:2011, 7): within 10 % of the full model's Monte Carlo radius
+    over 20 000 trials, the issue's rule, also where the load's uniform tolerance
+    dominates (the normal approximation was up to 13 % too large there)."""
     budget = BUDGETS[name]
     dev = _device(0.0)
     unc = reflection_uncertainty(dev, MODELS, budget, BOX.source_match)
     assert unc.near_match.all()
     mc = simulate(dev, MODELS, BOX, budget, 20_000, np.random.default_rng(4))
     _, q_vec = coverage_radius(mc, dev)
-    assert np.all(unc.expanded >= 0.98 * q_vec)
-    assert np.all(unc.expanded <= 1.15 * q_vec)
+    assert np.all(np.abs(unc.expanded - q_vec) <= 0.10 * unc.expanded), (unc.expanded, q_vec)
+
+
+@pytest.mark.parametrize("mag", [0.002, 0.005, 0.01])
+def test_just_off_a_match_u_still_agrees_with_monte_carlo(mag: float) -> None:
+    """Where |Γ| is about the size of U the rule switches from the radius to k·u; on
+    either side U stays within 10 % of the Monte Carlo's 95 % figure of the quantity it
+    states (the complex error's radius near a match, ||Γ_m| − |Γ|| away from it)."""
+    budget = BUDGETS["defaults, 2 h after the cal"]
+    dev = _device(mag)
+    unc = reflection_uncertainty(dev, MODELS, budget, BOX.source_match)
+    mc = simulate(dev, MODELS, BOX, budget, 20_000, np.random.default_rng(5))
+    q_mag, q_vec = coverage_radius(mc, dev)
+    want = np.where(unc.near_match, q_vec, q_mag)
+    assert np.all(np.abs(unc.expanded - want) <= 0.10 * unc.expanded), (unc.expanded, want)
 
 
 def test_return_loss_and_swr_intervals_worked_example() -> None:

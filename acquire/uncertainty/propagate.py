@@ -23,7 +23,11 @@ about 95 % for a near-normal result).
 
 Near a perfect match (|Γ| < U) the linearisation of |Γ| fails (GUM 5.1.2: significant
 non-linearity); there U is the radius that holds the complex error with 95 % probability,
-2.448·√λ_max of the covariance (bivariate normal coverage, JCGM 102:2011, 5.7). Return
+taken from the inputs' own distributions (``coverage``: the load's uniform disc holds
+95 % within a smaller radius than a normal of the same variance, JCGM 102:2011, 7).
+Only points inside the normal approximation's radius 2.448·√λ_max of the covariance
+(bivariate normal coverage, JCGM 102:2011, 5.7; an upper bound for these inputs) need
+it. Return
 loss and SWR are reported as the intervals that the |Γ| interval maps to, never as a
 symmetric ±, since they blow up near a match and near |Γ| = 1 respectively.
 """
@@ -38,10 +42,10 @@ import numpy as np
 
 from acquire.jsonclean import finite_or_none
 from acquire.uncertainty.budget import COVERAGE_FACTOR, Budget
+from acquire.uncertainty.coverage import Contribution, radius95
 
 BIVARIATE_95 = float(np.sqrt(-2.0 * np.log(0.05)))  # 2.448: √χ²₂(0.95)
 STANDARDS = ("open", "short", "load")
-Inputs = list[tuple[np.ndarray, np.ndarray]]
 
 
 @dataclass(frozen=True, eq=False)
@@ -109,54 +113,71 @@ def lagrange(gamma: np.ndarray, nodes: Mapping[str, np.ndarray]) -> dict[str, np
     return out
 
 
-def sensitivities(gamma: np.ndarray, models: Mapping[str, np.ndarray], budget: Budget,
-                  source_match: np.ndarray | float = 0.0) -> tuple[Inputs, Inputs]:
-    """Inputs as (complex sensitivity, standard uncertainty) pairs.
-
-    Returns (real inputs, circular inputs); a circular input's uncertainty is the
-    standard deviation of each of its real and imaginary parts.
-    """
+def contributions(gamma: np.ndarray, models: Mapping[str, np.ndarray], budget: Budget,
+                  source_match: np.ndarray | float = 0.0) -> list[Contribution]:
+    """Every input of the budget with its complex sensitivity and its distribution."""
     g = np.asarray(gamma, np.complex128)
     nodes = {k: np.broadcast_to(np.asarray(models[k], np.complex128), g.shape) for k in STANDARDS}
     lag = lagrange(g, nodes)
     e11 = np.asarray(source_match, np.complex128)
     noise = np.broadcast_to(np.asarray(budget.noise, np.float64), g.shape) / np.sqrt(2)
     rep = budget.repeatability / np.sqrt(2)
-    rect = 1 / np.sqrt(3)
-    real = []
+    out = []
     for k in ("open", "short"):
-        real.append((-lag[k] * 1j * nodes[k], np.radians(budget.phase_error_deg) * rect))
-        real.append((-lag[k] * nodes[k], budget.magnitude_error * rect))
-    circ = [(-lag["load"], np.asarray(budget.load_error / 2))]
+        out.append(Contribution(-lag[k] * 1j * nodes[k], "rect",
+                                np.radians(budget.phase_error_deg)))
+        out.append(Contribution(-lag[k] * nodes[k], "rect", budget.magnitude_error))
+    out.append(Contribution(-lag["load"], "disc", budget.load_error))
     for k in STANDARDS:
-        circ.append((-lag[k], np.asarray(rep)))
-        circ.append((-lag[k] * (1 - e11 * nodes[k]) ** 2, noise))
-    circ.append((np.ones_like(g), np.asarray(rep)))
-    circ.append(((1 - e11 * g) ** 2, noise))
-    circ.append((np.ones_like(g), np.asarray(budget.drift / np.sqrt(2))))
-    return real, circ
+        out.append(Contribution(-lag[k], "normal", rep))
+        out.append(Contribution(-lag[k] * (1 - e11 * nodes[k]) ** 2, "normal", noise))
+    out.append(Contribution(np.ones_like(g), "normal", rep))
+    out.append(Contribution((1 - e11 * g) ** 2, "normal", noise))
+    out.append(Contribution(np.ones_like(g), "normal", budget.drift / np.sqrt(2)))
+    return out
 
 
 def reflection_uncertainty(gamma: np.ndarray, models: Mapping[str, np.ndarray], budget: Budget,
                            source_match: np.ndarray | float = 0.0) -> ReflectionUncertainty:
     """Per-point uncertainty of the corrected reflection ``gamma`` (see module doc)."""
+    return reflection_from_contributions(
+        gamma, contributions(gamma, models, budget, source_match))
+
+
+def reflection_from_contributions(gamma: np.ndarray, contribs: list[Contribution]
+                                  ) -> ReflectionUncertainty:
+    """U of |Γ| from independent inputs: k·u by the law of propagation, or near a match
+    (|Γ| below the complex error's 95 % radius) that radius (``coverage.radius95``)."""
     g = np.asarray(gamma, np.complex128)
     mag = np.abs(g)
     unit = np.where(mag > 0, g / np.where(mag > 0, mag, 1.0), 1.0 + 0j)
     var = np.zeros(g.shape)
     cov = np.zeros((*g.shape, 2, 2))
-    real, circ = sensitivities(g, models, budget, source_match)
-    for a, u in real:
-        var += (np.real(np.conj(unit) * a) * u) ** 2
-        vec = np.stack([a.real, a.imag], axis=-1) * np.asarray(u)[..., None]
-        cov += vec[..., :, None] * vec[..., None, :]
-    for a, u in circ:
-        both = np.abs(a) ** 2 * np.asarray(u) ** 2
-        var += both
-        cov += both[..., None, None] * np.eye(2)
+    for c in contribs:
+        a = np.broadcast_to(np.asarray(c.sensitivity, np.complex128), g.shape)
+        u = np.asarray(c.part_sd())
+        if c.kind == "rect":
+            var += (np.real(np.conj(unit) * a) * u) ** 2
+            vec = np.stack([a.real, a.imag], axis=-1) * u[..., None]
+            cov += vec[..., :, None] * vec[..., None, :]
+        else:
+            both = np.abs(a) ** 2 * u ** 2
+            var += both
+            cov += both[..., None, None] * np.eye(2)
     u_abs = np.sqrt(var)
-    radius = BIVARIATE_95 * np.sqrt(np.linalg.eigvalsh(cov)[..., -1])
-    linear = COVERAGE_FACTOR * u_abs
+    # the normal approximation bounds the radius from above for these (platykurtic or
+    # normal) inputs, so only points inside it (with room for the draws' 1 % standard
+    # error) need the radius from the distributions
+    bound = BIVARIATE_95 * np.sqrt(np.linalg.eigvalsh(cov)[..., -1])
+    candidate = mag < 1.05 * bound
+    radius = np.zeros(g.shape)
+    if candidate.any():
+        picked = [Contribution(np.broadcast_to(np.asarray(c.sensitivity, np.complex128),
+                                               g.shape)[candidate], c.kind,
+                               np.broadcast_to(np.asarray(c.size, np.float64),
+                                               g.shape)[candidate])
+                  for c in contribs]
+        radius[candidate] = radius95(picked, (int(candidate.sum()),))
     near = mag < radius
-    expanded = np.where(near, radius, linear)
+    expanded = np.where(near, radius, COVERAGE_FACTOR * u_abs)
     return ReflectionUncertainty(mag, u_abs, expanded, near, cov)
