@@ -138,6 +138,19 @@ def switch_terms(terms: TwelveTerms) -> tuple[np.ndarray, np.ndarray]:
             dr / (p1.reflection_tracking + p1.directivity * dr))
 
 
+def eight_term_misfit(terms: TwelveTerms) -> float:
+    """Largest relative misfit of e10e32(1 − e33'Γf)·e23'e01'(1 − e00Γr) = e10e01·e23'e32'
+    (Marks 1997) with the switch terms the 12 terms imply."""
+    gf, gr = switch_terms(terms)
+    p1, p2 = terms.port1, terms.port2
+    lhs = terms.forward.transmission_tracking * (1 - p2.directivity * gf) * \
+        terms.reverse.transmission_tracking * (1 - p1.directivity * gr)
+    rhs = p1.reflection_tracking * p2.reflection_tracking
+    with np.errstate(divide="ignore", invalid="ignore"):
+        misfit = np.abs(lhs / rhs - 1)
+    return float(np.max(np.where(np.isfinite(misfit), misfit, np.inf), initial=0.0))
+
+
 def _actual_standard(setup: FullSetup, kind: str, port: int, x: Mapping[str, Any]
                      ) -> np.ndarray:
     model = setup.kit.reflection(setup.names[kind], setup.freq_hz)
@@ -314,6 +327,9 @@ def setup_from_calset(sweep: Any, calset: Any, kit: Any) -> FullSetup | str:
     f = np.asarray(sweep.freq_hz, np.float64)
     if terms.port1.directivity.shape != f.shape:
         return "the cal set's error terms are on another frequency grid than the sweep"
+    if calset.method == UNKNOWN and eight_term_misfit(terms) > 1e-6:
+        return ("the cal set's 12 terms do not obey the 8-term relation its "
+                f"{calset.method} method gives them")
     load = names["load"]
     isolation = f"{load}.S21" in calset.raw and f"{load}.S12" in calset.raw
     return FullSetup(calset.method, kit, f, names, terms, np.asarray(sweep.s, np.complex128),
