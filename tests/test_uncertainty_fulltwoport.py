@@ -14,18 +14,24 @@ U at 95 % of points or more.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 import skrf as rf
 from skrf.calibration import SOLT, UnknownThru
 
-from acquire.calibration import OnePortTerms, load_kit
+from acquire.calibration import CalSet, OnePortTerms, load_kit, solve
 from acquire.calibration.twoport import TWO_PORT_PARAMS, _from_eight_term, correct_twelve
+from acquire.sweep import Sweep
 from acquire.uncertainty.budget import Budget
+from acquire.uncertainty.capture import sweep_uncertainty
+from acquire.uncertainty.decision import DecisionRule
 from acquire.uncertainty.fulltwoport import (
     DEFINED,
     METHODS,
     SWITCH,
+    UNKNOWN,
     FullSetup,
     Input,
     corrected,
@@ -34,6 +40,8 @@ from acquire.uncertainty.fulltwoport import (
     project_solver,
     readings,
 )
+from drivers.stimulus import Stimulus
+from simulators.bench import Bench, noise_sigma
 
 KIT = load_kit("generic-sma-50")
 F = np.linspace(10e6, 6e9, 7)
@@ -203,3 +211,71 @@ def test_an_independent_solver_corrects_the_trials_alike(method: str) -> None:
             worst = max(worst, float(np.abs(ours[p][part] - theirs[:, i, j]).max()))
     assert worst < 1e-9
     assert np.abs(ours["S21"] - big.device[:, 1, 0]).max() > 1e-3  # the trials really vary
+
+
+# -- end to end on the simulator -----------------------------------------------------------
+
+ROOT = Path(__file__).resolve().parents[1]
+SIM_F = np.linspace(10e6, 6e9, 201)
+SIM_SWEEP = {"power_dbm": -10.0, "if_bandwidth_hz": 1e3}
+
+
+def _coverage(sweep, unc, truth: np.ndarray) -> float:
+    """Share of the 4·F points whose error lies within U (|S| error, or the complex error
+    where U is the near-zero radius)."""
+    inside = []
+    for p, (i, j) in INDEX.items():
+        u = unc.reflection.get(p) or unc.transmission[p]
+        got, want = sweep.param(p), truth[:, i, j]
+        err = np.where(u.near_match, np.abs(got - want), np.abs(np.abs(got) - np.abs(want)))
+        inside.append(err <= u.expanded)
+    return float(np.mean(inside))
+
+
+def _bench_calset(method: str, seed: int, device: str) -> tuple[Bench, CalSet]:
+    """Readings of the noisy bench's standards (as tests/test_sim_twoport.py takes them),
+    solved and stored as a cal set (the guided calibration cannot read switch terms)."""
+    bench = Bench(noise=True, seed=seed, device=device)
+    raw = {}
+    for name in ("open", "short", "load"):
+        bench.connect(name)
+        m = bench.sweep(SIM_F, **SIM_SWEEP)
+        raw[f"{name}.S11"], raw[f"{name}.S22"] = m[:, 0, 0], m[:, 1, 1]
+    bench.connect("thru")
+    m = bench.sweep(SIM_F, **SIM_SWEEP)
+    raw.update({f"thru.S{i + 1}{j + 1}": m[:, i, j] for i in range(2) for j in range(2)})
+    if method == UNKNOWN:
+        raw[SWITCH[0]], raw[SWITCH[1]] = bench.switch_terms(SIM_F)
+    model = solve(method, SIM_F, raw, KIT).model
+    stim = Stimulus(SIM_F[0], SIM_F[-1], SIM_F.size, -10.0, 1e3)
+    return bench, CalSet("feeder-line", model, stim, "a,b,c,d", KIT.name, KIT.sha256,
+                         "test cable ends", raw=raw)
+
+
+@pytest.mark.parametrize("method", METHODS)
+def test_u_is_the_right_size_for_the_simulators_noise(method: str) -> None:
+    """The simulator's only error is receiver noise (its standards are the kit's models,
+    no drift); with a budget of that noise alone (σ per component of the bench's model,
+    referred to the reference plane), the truth lies within U at close to 95 % of the
+    points: pooled over four seeds and three devices 0.953 (defined thru) and 0.955
+    (unknown thru) when written; per device and seed 0.944 to 0.965. With the
+    default budget (plus connector repeatability and standards' tolerances the bench
+    does not have) every point is covered."""
+    shares, default = [], []
+    for device in ("cable-1m", "bandpass-2g45", "attenuator-10db"):
+        for seed in range(1, 5):
+            bench, cal = _bench_calset(method, seed, device)
+            bench.connect("device")
+            sweep = cal.correct(Sweep(SIM_F, bench.sweep(SIM_F, **SIM_SWEEP)))
+            truth = bench.truth(SIM_F)
+            tracking = np.abs(cal.model.reflection["S11"].reflection_tracking)
+            noise = noise_sigma(-10.0, 1e3, 1) * np.sqrt(2) / tracking
+            only = DecisionRule(budget=Budget(load_error=0, phase_error_deg=0, repeatability=0,
+                                              drift_per_hour=0, noise=noise), noise_auto=False)
+            unc = sweep_uncertainty(sweep, cal, KIT, only)
+            assert unc.unavailable is None and set(unc.transmission) == {"S21", "S12"}
+            shares.append(_coverage(sweep, unc, truth))
+            if seed == 1:
+                default.append(_coverage(sweep, sweep_uncertainty(sweep, cal, KIT), truth))
+    assert 0.935 <= np.mean(shares) <= 0.965, shares
+    assert min(default) >= 0.95
