@@ -14,18 +14,26 @@ U at 95 % of points or more.
 
 from __future__ import annotations
 
+import io
+import json
 from pathlib import Path
 
 import numpy as np
 import pytest
 import skrf as rf
+import yaml
 from skrf.calibration import SOLT, UnknownThru
 
 from acquire.calibration import CalSet, OnePortTerms, load_kit, solve
 from acquire.calibration.twoport import TWO_PORT_PARAMS, _from_eight_term, correct_twelve
+from acquire.cli import main
+from acquire.guided import Options, calibrate
+from acquire.plan import load_plan
+from acquire.plots import render
 from acquire.sweep import Sweep
+from acquire.touchstone import read_touchstone
 from acquire.uncertainty.budget import Budget
-from acquire.uncertainty.capture import sweep_uncertainty
+from acquire.uncertainty.capture import from_summary, sweep_uncertainty
 from acquire.uncertainty.decision import DecisionRule
 from acquire.uncertainty.fulltwoport import (
     DEFINED,
@@ -40,8 +48,11 @@ from acquire.uncertainty.fulltwoport import (
     project_solver,
     readings,
 )
+from acquire.uncertainty.plot import attach_from_summary
 from drivers.stimulus import Stimulus
 from simulators.bench import Bench, noise_sigma
+from simulators.server import SimServer
+from tests.schema_support import validate
 
 KIT = load_kit("generic-sma-50")
 F = np.linspace(10e6, 6e9, 7)
@@ -279,3 +290,72 @@ def test_u_is_the_right_size_for_the_simulators_noise(method: str) -> None:
                 default.append(_coverage(sweep, sweep_uncertainty(sweep, cal, KIT), truth))
     assert 0.935 <= np.mean(shares) <= 0.965, shares
     assert min(default) >= 0.95
+
+
+def _cable_plan(tmp_path: Path, **changes: object) -> Path:
+    data = yaml.safe_load((ROOT / "configs" / "plans" / "cable-assembly.yaml").read_text())
+    data["stimulus"]["points"] = SIM_F.size
+    data.update(output={"dir": str(tmp_path / "out")}, **changes)
+    path = tmp_path / "plans" / "cable-assembly.yaml"
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(yaml.safe_dump(data))
+    return path
+
+
+def _band_labels(fig) -> set[str]:
+    return {str(c.get_label()) for ax in fig.axes for c in ax.collections}
+
+
+def test_guided_calibration_and_run_carry_u_for_all_four(tmp_path: Path,
+                                                          capsys: pytest.CaptureFixture) -> None:
+    """A real full two-port calibration (guided, the simulator's standard switch, noise
+    on) and ``sweepd run`` of the cable: the JSON holds U of all four parameters (schema
+    checked), the Touchstone comments summarise them, the truth lies within U at every
+    point (1.0 when written: the default budget is wider than the bench's noise).
+    Guarded acceptance of a |S21| mask whose limit is the measured worst value is
+    indeterminate (exit 3), live and offline (``sweepd check --plan`` reads U back), and
+    the plot shades |S21| ± U."""
+    plan = _cable_plan(tmp_path, checks=[{"insertion_loss": {"band": ["10 MHz", "6 GHz"],
+                                                             "at_most": "2.5 dB"}}])
+    with SimServer(personality="generic", time_scale=0.0, noise=True, seed=3) as sim:
+        sim.bench.set_device("cable-1m")
+        outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
+                                                     prompt="switch"), stdout=io.StringIO())
+        assert outcome.exit_code == 0
+        sim.bench.connect("device")
+        assert main(["run", str(plan), "--resource", sim.tcp_resource, "--json"]) == 0
+        summary = json.loads(capsys.readouterr().out)
+        truth = sim.bench.truth(SIM_F)
+        validate(summary, "capture")
+        block = summary["uncertainty"]
+        assert block["available"] and set(block["parameters"]) == set(INDEX)
+        assert block["parameters"]["S21"]["quantity"] == "s21_abs"
+        assert "max_load_match_bias" not in block["parameters"]["S21"]
+        capture = Path(summary["capture"]["touchstone"])
+        ts = read_touchstone(capture)
+        sweep = Sweep(ts.freq_hz, ts.data)
+        unc = from_summary(sweep, capture)
+        assert set(unc.reflection) == {"S11", "S22"} and set(unc.transmission) == {"S21", "S12"}
+        assert _coverage(sweep, unc, truth) >= 0.95
+        comments = [c.strip() for c in ts.comments]
+        for p in INDEX:
+            assert any(c.startswith(f"sweepd uncertainty (k=2) |{p}|: max U") for c in comments)
+
+        worst = float(np.min(20 * np.log10(np.abs(ts.data[:, 1, 0]))))
+        mask = tmp_path / "jumper-s21.yaml"
+        mask.write_text(yaml.safe_dump({
+            "name": "jumper-s21", "quantity": "magnitude_db",
+            "segments": [{"name": "insertion", "parameter": "S21", "from": "10 MHz",
+                          "to": "6 GHz", "lower": f"{worst - 1e-6:.7f} dB"}]}))
+        guarded = _cable_plan(tmp_path, checks=[{"mask": str(mask)}],
+                              decision={"rule": "guarded"})
+        code = main(["run", str(guarded), "--resource", sim.tcp_resource, "--json"])
+        summary = json.loads(capsys.readouterr().out)
+        assert (code, summary["verdict"]) == (3, "indeterminate"), summary["checks"]
+    capture = Path(summary["capture"]["touchstone"])
+    assert main(["check", str(capture), "--plan", str(guarded), "--json"]) == 3
+    assert json.loads(capsys.readouterr().out)["verdict"] == "indeterminate"
+    ts = read_touchstone(capture)
+    shown = attach_from_summary(Sweep(ts.freq_hz, ts.data), capture)
+    assert "S21 uncertainty U (k=2)" in _band_labels(render(shown))
+    assert main(["plot", str(capture), "-o", str(tmp_path / "cable.png")]) == 0
