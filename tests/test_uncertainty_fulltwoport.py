@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import io
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -24,7 +25,7 @@ import skrf as rf
 import yaml
 from skrf.calibration import SOLT, UnknownThru
 
-from acquire.calibration import CalSet, OnePortTerms, load_kit, solve
+from acquire.calibration import CalSet, ErrorModel, OnePortTerms, load_kit, solve
 from acquire.calibration.twoport import TWO_PORT_PARAMS, _from_eight_term, correct_twelve
 from acquire.cli import main
 from acquire.guided import Options, calibrate
@@ -33,7 +34,7 @@ from acquire.plots import render
 from acquire.sweep import Sweep
 from acquire.touchstone import read_touchstone
 from acquire.uncertainty.budget import Budget
-from acquire.uncertainty.capture import from_summary, sweep_uncertainty
+from acquire.uncertainty.capture import SweepUncertainty, from_summary, sweep_uncertainty
 from acquire.uncertainty.decision import DecisionRule
 from acquire.uncertainty.fulltwoport import (
     DEFINED,
@@ -359,3 +360,59 @@ def test_guided_calibration_and_run_carry_u_for_all_four(tmp_path: Path,
     shown = attach_from_summary(Sweep(ts.freq_hz, ts.data), capture)
     assert "S21 uncertainty U (k=2)" in _band_labels(render(shown))
     assert main(["plot", str(capture), "-o", str(tmp_path / "cable.png")]) == 0
+
+
+def _without(cal: CalSet, *keys: str) -> CalSet:
+    return replace(cal, raw={k: v for k, v in cal.raw.items() if k not in keys})
+
+
+def test_missing_pieces_give_a_one_line_reason() -> None:
+    """A cal set without what the model needs says so in one line (no traceback, no
+    points); a one-port sweep corrected by a two-port cal set gets port 1's model."""
+    bench, cal = _bench_calset(DEFINED, 2, "attenuator-10db")
+    bench.connect("device")
+    raw = Sweep(SIM_F, bench.sweep(SIM_F, **SIM_SWEEP))
+    sweep = cal.correct(raw)
+    no_thru = sweep_uncertainty(sweep, _without(cal, "thru.S21", "thru.S12"), KIT)
+    assert no_thru.unavailable == ("the cal set holds no raw reading 'thru.S21' (the model "
+                                   "solves its two-port calibration again from the readings)")
+    assert not no_thru.reflection and not no_thru.transmission
+    assert no_thru.comment_lines() == [f"sweepd uncertainty: not available ({no_thru.unavailable})"]
+    _, unknown = _bench_calset(UNKNOWN, 2, "attenuator-10db")
+    no_switch = sweep_uncertainty(unknown.correct(raw), _without(unknown, *SWITCH), KIT)
+    assert no_switch.unavailable is not None and "'switch.forward'" in no_switch.unavailable
+    terms = unknown.model.flat_terms()
+    terms["S21.transmission_tracking"] = terms["S21.transmission_tracking"] * 1.01
+    odd = replace(unknown, model=ErrorModel.from_flat(UNKNOWN, SIM_F, terms))
+    broken = sweep_uncertainty(odd.correct(raw), odd, KIT)
+    assert broken.unavailable == ("the cal set's 12 terms do not obey the 8-term relation its "
+                                  "two-port-unknown-thru method gives them")
+    no_port2 = sweep_uncertainty(sweep, _without(cal, "load.S22"), KIT)
+    assert "'load.S22'" in (no_port2.unavailable or "")
+    for unc in (no_thru, no_switch, broken, no_port2):
+        assert "\n" not in unc.unavailable and unc.to_dict()["available"] is False
+    one_port = Sweep(SIM_F, raw.s[:, :1, :1])
+    unc = sweep_uncertainty(cal.correct(one_port), cal, KIT)
+    assert unc.unavailable is None and set(unc.reflection) == {"S11"} and not unc.transmission
+
+
+def test_the_json_block_round_trips_through_from_summary(tmp_path: Path) -> None:
+    """U of S21 near zero transmission (stop band): the stored near-zero flags and U come
+    back as they were written, and the guarded interval of |S21| dB is open below."""
+    setup = _setup(DEFINED, "near-reflective stop band")
+    reflection, transmission = full_two_port_uncertainty(setup, BUDGETS["defaults, 2 h"])
+    sweep = Sweep(F, DEVICES["near-reflective stop band"])
+    unc = SweepUncertainty(F, reflection, BUDGETS["defaults, 2 h"], transmission=transmission)
+    block = unc.to_dict()
+    assert block["parameters"]["S21"]["points_near_zero"] == F.size
+    ts = tmp_path / "stopband.s2p"
+    ts.with_suffix(".json").write_text(json.dumps({"uncertainty": block}))
+    back = from_summary(sweep, ts)
+    for p in ("S21", "S12"):
+        assert np.allclose(back.transmission[p].expanded, transmission[p].expanded, rtol=1e-12)
+        assert np.array_equal(back.transmission[p].near_match, transmission[p].near_match)
+    lo, hi = back.interval("S21", "magnitude_db")
+    assert np.all(np.isneginf(lo))  # |S21| - U < 0: no lower end
+    assert np.allclose(hi, 20 * np.log10(np.abs(sweep.param("S21")) + transmission["S21"].expanded))
+    assert any(line.startswith("sweepd uncertainty (k=2) |S12|") and "load match corrected"
+               in line for line in unc.comment_lines())
