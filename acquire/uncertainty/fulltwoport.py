@@ -114,11 +114,8 @@ class FullSetup:
 
     def tiled(self, n: int) -> FullSetup:
         """The same setup repeated ``n`` times along the frequency axis."""
-        t = self.terms
         return replace(self, freq_hz=np.tile(self.freq_hz, n),
-                       terms=TwelveTerms(*(_tile_terms(p, n) for p in
-                                           (t.port1, t.port2, t.forward, t.reverse))),
-                       device=np.tile(self.device, (n, 1, 1)))
+                       terms=_tile_twelve(self.terms, n), device=np.tile(self.device, (n, 1, 1)))
 
 
 def _tile_terms(terms: Any, n: int) -> Any:
@@ -253,11 +250,15 @@ def corrected(setup: FullSetup, x: Mapping[str, Any], noise: np.ndarray,
 def sensitivities(setup: FullSetup, table: Mapping[str, Input], noise: np.ndarray
                   ) -> tuple[dict[str, np.ndarray], dict[str, dict[str, np.ndarray]]]:
     """(the corrected values at x = 0, {input: {param: ∂param/∂x (F,)}}), by central
-    differences with step 1e-6, ``_CHUNK`` inputs per batched evaluation."""
+    differences with step 1e-6, ``_CHUNK`` inputs per batched evaluation. The device's
+    own inputs (``dut.*``) do not reach the calibration, so their chunks reuse the
+    calibration solved at x = 0 (the same numbers, one solve fewer per chunk)."""
     size = setup.freq_hz.size
     noise = np.broadcast_to(np.asarray(noise, np.float64), (size,))
-    centre = corrected(setup, {}, noise)
-    names = list(table)
+    raw, dut = readings(setup, {}, noise)
+    solved = project_solver(setup, raw)
+    centre = correct_twelve(solved, dut)
+    names = sorted(table, key=_device_only)  # calibration inputs first, then the device's
     deriv: dict[str, dict[str, np.ndarray]] = {}
     for start in range(0, len(names), _CHUNK):
         chunk = names[start:start + _CHUNK]
@@ -267,12 +268,24 @@ def sensitivities(setup: FullSetup, table: Mapping[str, Input], noise: np.ndarra
             step = np.zeros((blocks, size), np.complex128)
             step[2 * i], step[2 * i + 1] = _H, -_H
             x[name] = step.reshape(-1)
-        out = corrected(setup.tiled(blocks), x, np.tile(noise, blocks))
+        big = setup.tiled(blocks)
+        raw, dut = readings(big, x, np.tile(noise, blocks))
+        terms = (_tile_twelve(solved, blocks) if all(map(_device_only, chunk))
+                 else project_solver(big, raw))
+        out = {p: v.reshape(blocks, size) for p, v in correct_twelve(terms, dut).items()}
         for i, name in enumerate(chunk):
-            deriv[name] = {p: (out[p].reshape(blocks, size)[2 * i]
-                               - out[p].reshape(blocks, size)[2 * i + 1]) / (2 * _H)
+            deriv[name] = {p: (out[p][2 * i] - out[p][2 * i + 1]) / (2 * _H)
                            for p in TWO_PORT_PARAMS}
     return centre, deriv
+
+
+def _device_only(name: str) -> bool:
+    return name.startswith("dut.")
+
+
+def _tile_twelve(terms: TwelveTerms, n: int) -> TwelveTerms:
+    return TwelveTerms(*(_tile_terms(p, n) for p in
+                         (terms.port1, terms.port2, terms.forward, terms.reverse)))
 
 
 @dataclass(frozen=True, eq=False)
