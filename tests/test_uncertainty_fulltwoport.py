@@ -27,12 +27,14 @@ from skrf.calibration import SOLT, UnknownThru
 
 from acquire.calibration import CalSet, ErrorModel, OnePortTerms, load_kit, solve
 from acquire.calibration.twoport import TWO_PORT_PARAMS, _from_eight_term, correct_twelve
+from acquire.checks import evaluate_checks
 from acquire.cli import main
 from acquire.guided import Options, calibrate
 from acquire.plan import load_plan
 from acquire.plots import render
 from acquire.sweep import Sweep
 from acquire.touchstone import read_touchstone
+from acquire.twoport_checks import InsertionLossCheck, ReturnLossCheck
 from acquire.uncertainty.budget import Budget
 from acquire.uncertainty.capture import SweepUncertainty, from_summary, sweep_uncertainty
 from acquire.uncertainty.decision import DecisionRule
@@ -416,3 +418,28 @@ def test_the_json_block_round_trips_through_from_summary(tmp_path: Path) -> None
     assert np.allclose(hi, 20 * np.log10(np.abs(sweep.param("S21")) + transmission["S21"].expanded))
     assert any(line.startswith("sweepd uncertainty (k=2) |S12|") and "load match corrected"
                in line for line in unc.comment_lines())
+
+
+def test_insertion_and_return_loss_checks_take_the_guard_band() -> None:
+    """The two-port limits under guarded acceptance (ILAC-G8:09/2019): an insertion loss
+    limit at the measured worst value is indeterminate, 1 dB away it passes or fails;
+    a return loss limit that the matched ports meet by less than U is indeterminate, and
+    the verdict says so for each port."""
+    setup = _setup(DEFINED, "matched 6 dB attenuator")
+    budget = BUDGETS["defaults, 2 h"]
+    reflection, transmission = full_two_port_uncertainty(setup, budget)
+    sweep = Sweep(F, DEVICES["matched 6 dB attenuator"])
+    unc = SweepUncertainty(F, reflection, budget, transmission=transmission)
+    rule = DecisionRule(rule="guarded")
+    worst = float(np.max(-20 * np.log10(np.abs(sweep.param("S21")))))
+    band = (float(F[0]), float(F[-1]))
+    verdicts = [evaluate_checks([InsertionLossCheck(*band, worst + d)], sweep, decision=rule,
+                                uncertainty=unc, metrics=False).results[0].verdict
+                for d in (1e-9, 1.0, -1.0)]
+    assert verdicts == ["indeterminate", "pass", "fail"]
+    rl = evaluate_checks([ReturnLossCheck(*band, 40.0)], sweep, decision=rule, uncertainty=unc,
+                         metrics=False).results[0]
+    assert rl.verdict == "indeterminate"
+    assert set(rl.details["guarded"]) == {"S11", "S22"}
+    assert evaluate_checks([ReturnLossCheck(*band, 40.0)], sweep, metrics=False
+                           ).results[0].verdict == "pass"
