@@ -443,3 +443,32 @@ def test_insertion_and_return_loss_checks_take_the_guard_band() -> None:
     assert set(rl.details["guarded"]) == {"S11", "S22"}
     assert evaluate_checks([ReturnLossCheck(*band, 40.0)], sweep, metrics=False
                            ).results[0].verdict == "pass"
+
+
+def test_a_model_that_breaks_down_never_stops_the_capture(monkeypatch: pytest.MonkeyPatch
+                                                          ) -> None:
+    """A singular solve or a non-finite U inside the model becomes a one-line
+    ``unavailable`` (the capture goes on and is stored), never a traceback."""
+    import acquire.uncertainty.fulltwoport as model
+
+    bench, cal = _bench_calset(DEFINED, 4, "cable-1m")
+    bench.connect("device")
+    sweep = cal.correct(Sweep(SIM_F, bench.sweep(SIM_F, **SIM_SWEEP)))
+    real = model.full_two_port_uncertainty
+
+    def singular(setup, budget):
+        raise np.linalg.LinAlgError("Singular matrix\nmore")
+
+    monkeypatch.setattr(model, "full_two_port_uncertainty", singular)
+    assert sweep_uncertainty(sweep, cal, KIT).unavailable == (
+        "the two-port calibration cannot be modelled: Singular matrix")
+
+    def not_finite(setup, budget):
+        reflection, transmission = real(setup, budget)
+        u = transmission["S12"].expanded.copy()
+        u[7] = np.nan
+        return reflection, {**transmission, "S12": replace(transmission["S12"], expanded=u)}
+
+    monkeypatch.setattr(model, "full_two_port_uncertainty", not_finite)
+    assert sweep_uncertainty(sweep, cal, KIT).unavailable == (
+        "the uncertainty of S12 is not finite at 219.65 MHz")

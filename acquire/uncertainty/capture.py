@@ -259,8 +259,14 @@ def _full_two_port(sweep: Sweep, calset: Any, kit: Any, rule: DecisionRule) -> S
                               setup.names["load"], p) for p in ("S11", "S22")),
                      key=lambda b: float(np.max(b.noise)))
         reflection, transmission = full_two_port_uncertainty(setup, budget)
-    except CalError as exc:
-        return unavailable(sweep, f"the {calset.method} calibration cannot be modelled: {exc}")
+    except (CalError, ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        first = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        return unavailable(sweep, f"the {calset.method} calibration cannot be modelled: {first}")
+    for name, unc in (*reflection.items(), *transmission.items()):
+        bad = ~np.isfinite(unc.expanded)
+        if bad.any():
+            at = format_frequency(float(sweep.freq_hz[int(np.argmax(bad))]))
+            return unavailable(sweep, f"the uncertainty of {name} is not finite at {at}")
     return SweepUncertainty(np.asarray(sweep.freq_hz), reflection, budget,
                             transmission=transmission)
 
