@@ -246,7 +246,8 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
 def _full_two_port(sweep: Sweep, calset: Any, kit: Any, rule: DecisionRule) -> SweepUncertainty:
     """All four parameters of a two-port sweep after a full two-port calibration."""
     from acquire.errors import CalError
-    from acquire.uncertainty.fulltwoport import full_two_port_uncertainty, setup_from_calset
+    from acquire.uncertainty.fullcalset import setup_from_calset
+    from acquire.uncertainty.fulltwoport import full_two_port_uncertainty
 
     if sweep.ports != 2:
         return unavailable(sweep, f"a {calset.method} calibration models two ports; the sweep "

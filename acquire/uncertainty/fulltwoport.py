@@ -113,9 +113,52 @@ class FullSetup:
     isolation: bool = False
 
     def tiled(self, n: int) -> FullSetup:
-        """The same setup repeated ``n`` times along the frequency axis."""
-        return replace(self, freq_hz=np.tile(self.freq_hz, n),
+        """The same setup repeated ``n`` times along the frequency axis (the kit's models
+        computed once on the setup's own grid and repeated)."""
+        freq = np.tile(self.freq_hz, n)
+        return replace(self, freq_hz=freq, kit=KnownGridKit.of(self.kit, self.freq_hz, n,
+                                                               self.names),
                        terms=_tile_twelve(self.terms, n), device=np.tile(self.device, (n, 1, 1)))
+
+
+class KnownGridKit:
+    """A cal kit whose standards' models on one grid are already known: the same
+    numbers, asked for once per model evaluation by the readings and by the solver."""
+
+    def __init__(self, kit: Any, freq_hz: np.ndarray, reflection: Mapping[str, np.ndarray],
+                 thru: Mapping[str, tuple[np.ndarray, np.ndarray]]) -> None:
+        self.kit, self.freq_hz = kit, freq_hz
+        self._reflection, self._thru = reflection, thru
+        for a in (*reflection.values(), *(a for pair in thru.values() for a in pair)):
+            a.flags.writeable = False  # shared by every evaluation: nobody may change them
+
+    @classmethod
+    def of(cls, kit: Any, freq_hz: np.ndarray, n: int, names: Mapping[str, str]
+           ) -> KnownGridKit:
+        """``kit``'s models of the named standards on ``freq_hz`` repeated ``n`` times."""
+        kit = kit.kit if isinstance(kit, KnownGridKit) else kit
+        refl = {names[k]: np.tile(kit.reflection(names[k], freq_hz), n) for k in STANDARDS}
+        t11, t21 = kit.thru_s(names["thru"], freq_hz)
+        return cls(kit, np.tile(freq_hz, n), refl, {names["thru"]: (np.tile(t11, n),
+                                                                    np.tile(t21, n))})
+
+    def _known(self, freq_hz: np.ndarray) -> bool:
+        f = np.asarray(freq_hz)
+        return f is self.freq_hz or (f.shape == self.freq_hz.shape
+                                     and bool(np.array_equal(f, self.freq_hz)))
+
+    def reflection(self, name: str, freq_hz: np.ndarray) -> np.ndarray:
+        if name in self._reflection and self._known(freq_hz):
+            return self._reflection[name]
+        return self.kit.reflection(name, freq_hz)
+
+    def thru_s(self, name: str, freq_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        if name in self._thru and self._known(freq_hz):
+            return self._thru[name]
+        return self.kit.thru_s(name, freq_hz)
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self.kit, name)
 
 
 def _tile_terms(terms: Any, n: int) -> Any:
@@ -133,19 +176,6 @@ def switch_terms(terms: TwelveTerms) -> tuple[np.ndarray, np.ndarray]:
     dr = terms.reverse.load_match - p1.source_match
     return (df / (p2.reflection_tracking + p2.directivity * df),
             dr / (p1.reflection_tracking + p1.directivity * dr))
-
-
-def eight_term_misfit(terms: TwelveTerms) -> float:
-    """Largest relative misfit of e10e32(1 − e33'Γf)·e23'e01'(1 − e00Γr) = e10e01·e23'e32'
-    (Marks 1997) with the switch terms the 12 terms imply."""
-    gf, gr = switch_terms(terms)
-    p1, p2 = terms.port1, terms.port2
-    lhs = terms.forward.transmission_tracking * (1 - p2.directivity * gf) * \
-        terms.reverse.transmission_tracking * (1 - p1.directivity * gr)
-    rhs = p1.reflection_tracking * p2.reflection_tracking
-    with np.errstate(divide="ignore", invalid="ignore"):
-        misfit = np.abs(lhs / rhs - 1)
-    return float(np.max(np.where(np.isfinite(misfit), misfit, np.inf), initial=0.0))
 
 
 def _actual_standard(setup: FullSetup, kind: str, port: int, x: Mapping[str, Any]
@@ -319,53 +349,3 @@ def full_two_port_uncertainty(setup: FullSetup, budget: Budget
             transmission[p] = CorrectedTransmission(unc.gamma_abs, unc.u_abs, unc.expanded,
                                                     unc.near_match, unc.covariance)
     return reflection, transmission
-
-
-def setup_from_calset(sweep: Any, calset: Any, kit: Any) -> FullSetup | str:
-    """The model of a corrected two-port ``sweep``, or a one-line reason why there is none."""
-    terms = calset.model.twelve_term
-    if terms is None or calset.method not in METHODS:
-        return f"the {calset.method} cal set holds no full 12-term correction"
-    names = _standard_names(calset, kit)
-    if isinstance(names, str):
-        return names
-    wanted = [f"{names[k]}.{p}" for k in STANDARDS for p in ("S11", "S22")]
-    wanted += [f"{names['thru']}.{p}" for p in TWO_PORT_PARAMS]
-    if calset.method == UNKNOWN:
-        wanted += list(SWITCH)
-    missing = [key for key in wanted if key not in calset.raw]
-    if missing:
-        return (f"the cal set holds no raw reading '{missing[0]}' (the model solves its "
-                f"{calset.method} calibration again from the readings)")
-    f = np.asarray(sweep.freq_hz, np.float64)
-    if terms.port1.directivity.shape != f.shape:
-        return "the cal set's error terms are on another frequency grid than the sweep"
-    if calset.method == UNKNOWN and eight_term_misfit(terms) > 1e-6:
-        return ("the cal set's 12 terms do not obey the 8-term relation its "
-                f"{calset.method} method gives them")
-    load = names["load"]
-    isolation = f"{load}.S21" in calset.raw and f"{load}.S12" in calset.raw
-    return FullSetup(calset.method, kit, f, names, terms, np.asarray(sweep.s, np.complex128),
-                     isolation)
-
-
-def _standard_names(calset: Any, kit: Any) -> dict[str, str] | str:
-    """Kind -> the kit standard the cal set used (its figures' list, else its readings)."""
-    from acquire.errors import CalError
-
-    listed = calset.figures.get("standards") or [
-        n for n in kit.standards if any(k.startswith(f"{n}.") for k in calset.raw)]
-    names: dict[str, str] = {}
-    for name in listed:
-        try:
-            kind = kit.standard(str(name)).kind
-        except CalError as exc:
-            return str(exc)
-        if kind not in KINDS or kind in names:
-            return (f"the uncertainty model covers one open, short, load and thru; the cal "
-                    f"set used {', '.join(map(str, listed))}")
-        names[kind] = str(name)
-    absent = [k for k in KINDS if k not in names]
-    if absent:
-        return f"the cal set names no {absent[0]} standard"
-    return names
