@@ -47,8 +47,10 @@ from typing import Any
 
 import numpy as np
 
+from acquire.calibration.methods import solve
 from acquire.calibration.twoport import TWO_PORT_PARAMS, TwelveTerms, correct_twelve
 from acquire.uncertainty.budget import Budget
+from acquire.uncertainty.propagate import Contribution, reflection_from_contributions
 
 STANDARDS = ("open", "short", "load")
 KINDS = ("open", "short", "load", "thru")
@@ -259,8 +261,6 @@ Calibrate = Callable[[FullSetup, Mapping[str, np.ndarray]], TwelveTerms]
 
 def project_solver(setup: FullSetup, raw: Mapping[str, np.ndarray]) -> TwelveTerms:
     """The calibration solved as the project solves it (``acquire.calibration.solve``)."""
-    from acquire.calibration.methods import solve
-
     iso = f"{setup.names['load']}.S21" if setup.isolation else None
     model = solve(setup.method, setup.freq_hz, raw, setup.kit,
                   standards=tuple(setup.names[k] for k in KINDS), isolation=iso).model
@@ -334,8 +334,6 @@ class CorrectedTransmission:
 def full_two_port_uncertainty(setup: FullSetup, budget: Budget
                               ) -> tuple[dict[str, Any], dict[str, CorrectedTransmission]]:
     """({S11, S22: ReflectionUncertainty}, {S21, S12: CorrectedTransmission}) per point."""
-    from acquire.uncertainty.propagate import Contribution, reflection_from_contributions
-
     table = inputs(budget, setup.method, setup.isolation)
     centre, deriv = sensitivities(setup, table, np.asarray(budget.noise, np.float64))
     reflection: dict[str, Any] = {}
