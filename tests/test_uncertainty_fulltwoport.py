@@ -153,18 +153,20 @@ def test_the_model_is_holomorphic_in_its_complex_inputs(method: str) -> None:
                 np.abs(along_real).max(), 1e-3), (name, p)
 
 
+@pytest.mark.parametrize("trials", [5000, pytest.param(50_000, marks=pytest.mark.long)])
 @pytest.mark.parametrize("budget", list(BUDGETS))
 @pytest.mark.parametrize("device", list(DEVICES))
 @pytest.mark.parametrize("method", METHODS)
 def test_u_agrees_with_a_monte_carlo_of_the_whole_calibration(method: str, device: str,
-                                                              budget: str) -> None:
-    """5,000 trials, each solving the whole calibration again (``project_solver``);
-    per point and parameter the 95 % quantile of ||S_m| − |S|| (or of |S_m − S| where
-    U is the near-zero radius) agrees with U within 10 % of U."""
+                                                              budget: str, trials: int) -> None:
+    """5,000 trials (50,000 with --long), each solving the whole calibration again
+    (``project_solver``); per point and parameter the 95 % quantile of ||S_m| − |S|| (or
+    of |S_m − S| where U is the near-zero radius) agrees with U within 10 % of U
+    (largest difference 5.3 % of U with 20,000 trials when written)."""
     b = BUDGETS[budget]
     setup = _setup(method, device)
     reflection, transmission = full_two_port_uncertainty(setup, b)
-    n = 5000
+    n = trials
     big, x, noise = _trials(setup, b, n, seed=7)
     mc = corrected(big, x, noise)
     for p, (i, j) in INDEX.items():
