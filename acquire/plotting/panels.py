@@ -231,7 +231,8 @@ def quantity_panel(ax: Any, traces: Sequence[Trace], quantity: str, segs: Group,
         if quantity == "phase":  # break the line at each ±180° wrap instead of a jump
             shown[1:][np.abs(np.diff(ys)) > 180.0] = np.nan
         ax.plot(t.sweep.freq_hz, shown, color=INK, linewidth=line_width(ys.size),
-                linestyle=STYLES[i % len(STYLES)], label=_quantity_name(quantity, t.name, unit))
+                linestyle=STYLES[i % len(STYLES)], label=_quantity_name(quantity, t.name, unit),
+                zorder=4)  # above an uncertainty band, as on the match panel
 
     def convert(_quantity: str, values: np.ndarray) -> np.ndarray:
         return np.asarray(values, float) / factor
