@@ -362,7 +362,13 @@ def test_guided_calibration_and_run_carry_u_for_all_four(tmp_path: Path,
     assert json.loads(capsys.readouterr().out)["verdict"] == "indeterminate"
     ts = read_touchstone(capture)
     shown = attach_from_summary(Sweep(ts.freq_hz, ts.data), capture)
-    assert "S21 uncertainty U (k=2)" in _band_labels(render(shown))
+    fig = render(shown)
+    assert "S21 uncertainty U (k=2)" in _band_labels(fig)
+    (ax,) = [a for a in fig.axes if "S21 uncertainty U (k=2)" in
+             {str(c.get_label()) for c in a.collections}]
+    band = next(c for c in ax.collections if c.get_label() == "S21 uncertainty U (k=2)")
+    line = next(ln for ln in ax.lines if ln.get_label() == "|S21| (dB)")
+    assert line.get_zorder() > band.get_zorder()  # the trace stays visible over its band
     assert main(["plot", str(capture), "-o", str(tmp_path / "cable.png")]) == 0
 
 
