@@ -30,12 +30,18 @@ plan's minimum number of sweeps and span.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike
 
+from acquire.soak import history
+from acquire.soak.drift import make_reference, reference_from_file
+from acquire.soak.spec import SoakSpec
 from acquire.soak.statistics import Minimums
+from acquire.units import format_duration
+from drivers.errors import SweepdError
 
 PLAN_KEY = "decision.uncertainty.drift_per_hour"
 MAX_LAGS = 48
@@ -147,3 +153,65 @@ def estimate_drift(values: ArrayLike, seq: ArrayLike, t_s: ArrayLike,
                          noise_rms=float(np.sqrt(max(a, 0.0) / 2.0)), sweeps=sweeps,
                          pairs=sum(p.pairs for p in points), span_s=span,
                          lags=len(points), points=int(v.shape[1]))
+
+
+# -- a soak job's sweeps --------------------------------------------------------------------
+def soak_drift(spec: SoakSpec, ser: history.Series,
+               deviation: tuple[np.ndarray, ...] | None) -> dict[str, Any]:
+    """The figure for the plan's ``decision.uncertainty.drift_per_hour`` from one soak,
+    as the report's JSON block: the estimate, or ``reason`` when there is none."""
+    block: dict[str, Any] = {"plan_key": PLAN_KEY, "parameter": spec.parameter}
+    if deviation is None or not deviation[1].size:
+        return {**block, "reason": "no figure: the job has no per-point drift records yet"}
+    freq, seq, db, deg = deviation
+    reference = _reference_magnitude(spec, ser, freq)
+    if isinstance(reference, str):
+        return {**block, "reason": reference}
+    when = {int(q): float(t) for q, t, done in zip(ser.seq, ser.t_s, ser.done_mask(),
+                                                 strict=True) if done}
+    t_s = np.array([when.get(int(q), np.nan) for q in seq])
+    values = reference * 10.0 ** (db.astype(np.float64) / 20.0) \
+        * np.exp(1j * np.radians(deg.astype(np.float64)))
+    found = estimate_drift(values, seq, t_s, spec.minimums)
+    if isinstance(found, str):
+        return {**block, "reason": found}
+    used = {int(q) for q in seq}
+    corrected = all(c for q, c in zip(ser.seq, ser.cal_id, strict=True) if int(q) in used)
+    return {**block, **found.to_dict(), "corrected": corrected}
+
+
+def _reference_magnitude(spec: SoakSpec, ser: history.Series,
+                         freq_hz: np.ndarray) -> np.ndarray | str:
+    """|S| of the sweeps' reference on the records' grid: the plan's reference file, or
+    the first stored sweep (the reference 'first' is always kept), or why it is missing."""
+    from acquire.touchstone import read_touchstone
+
+    path = spec.reference
+    if path is None:
+        stored = [p for p, st in zip(ser.touchstone, ser.state, strict=True)
+                  if st == "stored" and p]
+        if not stored:
+            return "no figure: the reference sweep was not kept as a file"
+        path = Path(stored[0])
+    try:
+        if spec.reference is not None:
+            ref = reference_from_file(path, spec.parameter, spec.band_hz, freq_hz)
+        else:
+            ref = make_reference(read_touchstone(path).to_sweep(), spec.parameter,
+                                 spec.band_hz, str(path), freq_hz)
+    except (SweepdError, OSError, ValueError) as exc:
+        return f"no figure: the reference {path} cannot be read ({exc})"
+    return np.abs(ref.values)
+
+
+def budget_line(block: dict[str, Any]) -> str:
+    """The report's one line about the figure."""
+    head = f"drift for the uncertainty budget ({block['plan_key']}): "
+    if "reason" in block:
+        return head + block["reason"]
+    line = (f"{block['per_hour']:.2g} per hour, RMS |d{block['parameter']}| (trace noise "
+            f"{block['noise_rms']:.2g} RMS; {block['sweeps']} sweeps over "
+            f"{format_duration(block['span_s'])}, {block['pairs']} pairs)")
+    if not block["corrected"]:
+        line += "; the sweeps are uncorrected: the raw instrument's figure"
+    return head + line
