@@ -61,6 +61,21 @@ def test_known_drift_and_noise_are_recovered(sweeps: int, points: int, every_s: 
     assert found.span_s == pytest.approx((sweeps - 1) * every_s)
 
 
+@pytest.mark.parametrize("r_per_hour", [5e-4, 2e-5])
+def test_the_upper_figure_covers_the_true_drift(r_per_hour: float) -> None:
+    # a k = 2 bound (JCGM 100:2008, GUM, 6.2: about 95 % for a normal estimate) must hold
+    # the true r in most series; 36 of 40 allows for the jackknife's own scatter (nine
+    # degrees of freedom from ten blocks)
+    held = 0
+    for seed in range(40):
+        found = estimate_drift(*synthetic(200 + seed, 300, 101, 60.0, r_per_hour, 5e-4),
+                               Minimums())
+        assert not isinstance(found, str) and found.per_hour_upper is not None
+        assert found.per_hour_upper >= found.per_hour
+        held += found.per_hour_upper >= r_per_hour
+    assert held >= 36
+
+
 def test_missed_sweeps_leave_gaps_not_bias() -> None:
     values, seq, t = synthetic(3, 400, 61, 60.0, 8e-4, 3e-4)
     rng = np.random.default_rng(4)
@@ -98,7 +113,10 @@ def test_no_drift_gives_a_figure_near_zero(seed: int) -> None:
     found = estimate_drift(values, seq, t, Minimums())
     assert not isinstance(found, str)
     span_h = (sweeps - 1) * every_s / 3600.0
-    assert found.per_hour < 5 * sigma / ((points * sweeps) ** 0.25 * span_h)
+    floor = sigma / ((points * sweeps) ** 0.25 * span_h)
+    assert found.per_hour < 5 * floor
+    # the k = 2 upper figure: in the same 300 series at most 4.3 floors
+    assert found.per_hour <= found.per_hour_upper < 6 * floor
     assert found.noise_rms == pytest.approx(sigma, rel=0.05)
 
 
@@ -137,7 +155,8 @@ def test_a_soak_on_the_simulator_reports_its_noise(tmp_path: Path,
     assert block["plan_key"] == PLAN_KEY
     line = next(x for x in report.text.splitlines() if "uncertainty budget" in x)
     assert line.startswith(f"  drift for the uncertainty budget ({PLAN_KEY}): ")
-    shown = re.search(rf"per hour, RMS \|dS11\| \(trace noise (\S+) RMS; {done} sweeps over", line)
+    shown = re.search(r"per hour \(at most \S+ at k = 2\), RMS \|dS11\| \(trace noise "
+                      rf"(\S+) RMS; {done} sweeps over", line)
     assert shown and float(shown[1]) == pytest.approx(expected, rel=0.10), line
     assert line.endswith("; the sweeps are uncorrected: the raw instrument's figure")
     code = main(["report", job.id, "--spool", str(tmp_path / "spool"), "--json",

@@ -18,7 +18,10 @@ b = r² by least squares over the lags, weighted by the number of sweep pairs at
 lag, is common practice; so is taking about 48 roughly log-spaced lags instead of all of
 them (every lag up to about 16, then sparser), which keeps an overnight soak of
 thousands of sweeps to a second or two. Negative fitted terms (noise, or no drift at
-all) are reported as zero.
+all) are reported as zero. How far noise alone moves the fitted r² is estimated by a
+jackknife over ten blocks of neighbouring frequency points; r² plus twice that standard
+error gives the upper figure ("at most ... at k = 2"), the one to use when the drift is
+too small for this soak to resolve.
 
 The sweeps come from the soak's per-point drift records (change of |S| in dB and of
 phase against the reference, ``acquire.soak.devfile``) scaled by the reference's |S|,
@@ -29,7 +32,7 @@ plan's minimum number of sweeps and span.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -45,7 +48,8 @@ from drivers.errors import SweepdError
 
 PLAN_KEY = "decision.uncertainty.drift_per_hour"
 MAX_LAGS = 48
-_CHUNK_ROWS = 256  # sweep pairs differenced at a time (bounds the temporary arrays)
+JACKKNIFE_BLOCKS = 10
+_CHUNK_ROWS = 256  # sweeps differenced at a time (bounds the temporary arrays)
 
 
 @dataclass(frozen=True)
@@ -56,6 +60,8 @@ class LagPoint:
     tau_s: float  # RMS time between the two sweeps of the lag's pairs
     d: float  # mean |ΔΓ|² over the points and the pairs
     pairs: int
+    per_point: np.ndarray = field(repr=False, compare=False,
+                                  default_factory=lambda: np.zeros(0))  # mean |ΔΓ|² each
 
 
 @dataclass(frozen=True)
@@ -63,6 +69,7 @@ class DriftEstimate:
     """Drift per hour and trace noise fitted to a soak's structure function."""
 
     per_hour: float  # r: RMS |ΔΓ| per hour of linear drift
+    per_hour_upper: float | None  # √(r² + 2·its jackknife standard error): k = 2 bound
     noise_rms: float  # σ: RMS |ΔΓ| of one sweep's noise (trace noise + repeatability
     #                   without reconnection)
     sweeps: int
@@ -72,7 +79,8 @@ class DriftEstimate:
     points: int
 
     def to_dict(self) -> dict[str, Any]:
-        return {"per_hour": self.per_hour, "noise_rms": self.noise_rms,
+        return {"per_hour": self.per_hour, "per_hour_upper": self.per_hour_upper,
+                "noise_rms": self.noise_rms,
                 "sweeps": self.sweeps, "pairs": self.pairs, "span_s": self.span_s,
                 "lags": self.lags, "points": self.points}
 
@@ -91,28 +99,38 @@ def structure_function(values: ArrayLike, seq: ArrayLike, t_s: ArrayLike,
     (increasing, gaps allowed: only pairs whose two sweeps exist count), times ``t_s``."""
     v = np.asarray(values, dtype=np.complex128)
     idx = np.asarray(seq, dtype=np.int64)
-    t = np.asarray(t_s, dtype=np.float64)
+    rows = idx - idx[0]  # the sweeps on a full grid of indices, missing ones left empty
+    full = np.zeros((int(rows[-1]) + 1, v.shape[1]), dtype=np.complex128)
+    full[rows] = v - v.mean(axis=0)  # centred: differences keep their digits
+    have = np.zeros(full.shape[0], dtype=bool)
+    have[rows] = True
+    times = np.full(full.shape[0], np.nan)
+    times[rows] = np.asarray(t_s, dtype=np.float64)
     found = []
     for lag in np.asarray(lags, dtype=np.int64):
-        first, second = _pairs(idx, int(lag))
-        if not first.size:
+        both = have[lag:] & have[:-lag] if 0 < lag < full.shape[0] else np.zeros(0, bool)
+        pairs = int(both.sum())
+        if not pairs:
             continue
-        total = 0.0
-        for start in range(0, first.size, _CHUNK_ROWS):
-            diff = v[second[start:start + _CHUNK_ROWS]] - v[first[start:start + _CHUNK_ROWS]]
-            total += float(np.sum(diff.real ** 2 + diff.imag ** 2))
-        tau = float(np.sqrt(np.mean((t[second] - t[first]) ** 2)))
-        found.append(LagPoint(int(lag), tau, total / (first.size * v.shape[1]), first.size))
+        per_point = _pair_sums(full, both, int(lag)) / pairs
+        gaps = (times[lag:] - times[:-lag])[both]
+        found.append(LagPoint(int(lag), float(np.sqrt(np.mean(gaps ** 2))),
+                              float(per_point.mean()), pairs, per_point))
     return found
 
 
-def _pairs(seq: np.ndarray, lag: int) -> tuple[np.ndarray, np.ndarray]:
-    """Row numbers (i, j) of every pair with seq[j] = seq[i] + lag."""
-    j = np.searchsorted(seq, seq + lag)
-    i = np.flatnonzero(j < seq.size)
-    j = j[i]
-    keep = seq[j] == seq[i] + lag
-    return i[keep], j[keep]
+def _pair_sums(full: np.ndarray, both: np.ndarray, lag: int) -> np.ndarray:
+    """Σ over the pairs (rows i, i + lag, both present) of |ΔΓ|², per point."""
+    sums = np.zeros(full.shape[1])
+    for start in range(0, both.size, _CHUNK_ROWS):
+        stop = min(start + _CHUNK_ROWS, both.size)
+        use = both[start:stop]
+        later, earlier = full[start + lag:stop + lag], full[start:stop]
+        if not use.all():
+            later, earlier = later[use], earlier[use]
+        diff = later - earlier
+        sums += (diff.real ** 2 + diff.imag ** 2).sum(axis=0)
+    return sums
 
 
 def fit_drift(points: list[LagPoint]) -> tuple[float, float]:
@@ -124,6 +142,24 @@ def fit_drift(points: list[LagPoint]) -> tuple[float, float]:
     design = np.column_stack([np.ones_like(tau2), tau2 / scale]) * root_w[:, None]
     (a, b_scaled), *_ = np.linalg.lstsq(design, d * root_w, rcond=None)
     return float(a), float(b_scaled) / scale
+
+
+def jackknife_spread(points: list[LagPoint], blocks: int = JACKKNIFE_BLOCKS) -> float | None:
+    """Standard error of the fitted r² by the delete-one-group jackknife over blocks of
+    neighbouring frequency points (Efron and Tibshirani, An Introduction to the Bootstrap,
+    1993, ch. 11, from memory); None with fewer than two points."""
+    size = points[0].per_point.size
+    groups = np.array_split(np.arange(size), min(blocks, size))
+    if len(groups) < 2:
+        return None
+    fits = []
+    for group in groups:
+        keep = np.ones(size, dtype=bool)
+        keep[group] = False
+        fits.append(fit_drift([replace(p, d=float(p.per_point[keep].mean()))
+                               for p in points])[1])
+    b = np.array(fits)
+    return float(np.sqrt((b.size - 1) / b.size * np.sum((b - b.mean()) ** 2)))
 
 
 def estimate_drift(values: ArrayLike, seq: ArrayLike, t_s: ArrayLike,
@@ -149,7 +185,10 @@ def estimate_drift(values: ArrayLike, seq: ArrayLike, t_s: ArrayLike,
         return (f"not enough data ({sweeps} sweep(s) give pairs at fewer than two "
                 "different spacings)")
     a, b = fit_drift(points)
+    spread = jackknife_spread(points)
+    upper = None if spread is None else float(np.sqrt(max(b + 2.0 * spread, 0.0))) * 3600.0
     return DriftEstimate(per_hour=float(np.sqrt(max(b, 0.0))) * 3600.0,
+                         per_hour_upper=upper,
                          noise_rms=float(np.sqrt(max(a, 0.0) / 2.0)), sweeps=sweeps,
                          pairs=sum(p.pairs for p in points), span_s=span,
                          lags=len(points), points=int(v.shape[1]))
@@ -209,7 +248,9 @@ def budget_line(block: dict[str, Any]) -> str:
     head = f"drift for the uncertainty budget ({block['plan_key']}): "
     if "reason" in block:
         return head + block["reason"]
-    line = (f"{block['per_hour']:.2g} per hour, RMS |d{block['parameter']}| (trace noise "
+    upper = block["per_hour_upper"]
+    bound = f" (at most {upper:.2g} at k = 2)" if upper is not None else ""
+    line = (f"{block['per_hour']:.2g} per hour{bound}, RMS |d{block['parameter']}| (trace noise "
             f"{block['noise_rms']:.2g} RMS; {block['sweeps']} sweeps over "
             f"{format_duration(block['span_s'])}, {block['pairs']} pairs)")
     if not block["corrected"]:
