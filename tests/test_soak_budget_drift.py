@@ -197,3 +197,58 @@ def test_a_short_soak_says_why_there_is_no_figure(tmp_path: Path) -> None:
     assert (f"drift for the uncertainty budget ({PLAN_KEY}): not enough data (8 sweep(s)"
             in report.text)
     validate(report_document(job, report), "report")
+
+
+class _Quiet:
+    def readline(self) -> str:
+        return ""
+
+    def write(self, text: str) -> int:
+        return len(text)
+
+    def flush(self) -> None:
+        pass
+
+
+def test_a_calibrated_soak_reports_the_noise_at_the_reference_plane(tmp_path: Path) -> None:
+    # source: the one-port error model Γ = (m − e00)/(e10e01 + e11(m − e00)) (EURAMET
+    # cg-12), whose derivative dΓ/dm = (1 − e11·Γ)²/e10e01 carries the simulator's raw
+    # noise (its stated law) to the reference plane, point by point
+    import yaml
+
+    from acquire.guided import Options, calibrate
+    from acquire.plan import load_plan
+
+    spool = Spool(tmp_path / "spool").ensure()
+    with SimServer(time_scale=0.0, noise=True) as sim:
+        plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out", count=30,
+                         every="0.02 s", checks=False,
+                         soak={"statistics": {"min_sweeps": 20, "min_span": "0.3 s"}})
+        data = yaml.safe_load(plan.read_text())
+        data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
+        plan.write_text(yaml.safe_dump(data, sort_keys=False))
+        calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch"),
+                  stdin=_Quiet(), stdout=_Quiet())
+        sim.bench.connect("device")
+        job = submit(spool, plan)
+        assert SoakWorker(job, StopSignal()).run() == "finished"
+        f = np.linspace(2.30e9, 2.60e9, 101)
+        terms = sim.bench.error_terms(f)
+        gamma = sim.bench.truth(f)[:, 0, 0]
+    gain = (1 - terms["e11"] * gamma) ** 2 / terms["e10e01"]
+    expected = np.sqrt(2) * noise_sigma(-10.0, 100e3, 1) * np.sqrt(np.mean(np.abs(gain) ** 2))
+    block = write_report(job, tmp_path / "rep").budget_drift
+    assert block is not None and block["corrected"] is True, block
+    assert block["noise_rms"] == pytest.approx(expected, rel=0.10)
+
+
+def test_a_lost_reference_file_is_named(tmp_path: Path) -> None:
+    with SimServer(time_scale=0.0, noise=True) as sim:
+        job = _soak(tmp_path, sim, count=25, every="0.02 s")
+    first = min(job.data_dir.glob("*.s1p"), key=lambda p: p.stat().st_mtime)
+    first.unlink()
+    report = write_report(job, tmp_path / "rep")
+    reason = report.budget_drift["reason"]
+    assert reason.startswith(f"no figure: the reference {first} cannot be read (")
+    assert f"drift for the uncertainty budget ({PLAN_KEY}): no figure: the reference" in \
+        report.text
