@@ -23,7 +23,7 @@ from acquire.soak.budget_drift import (
     structure_function,
 )
 from acquire.soak.report import report_document, write_report
-from acquire.soak.spool import Spool
+from acquire.soak.spool import Job, Spool
 from acquire.soak.statistics import Minimums
 from acquire.soak.worker import SoakWorker, StopSignal
 from simulators.bench import noise_sigma
@@ -129,11 +129,13 @@ def test_too_little_data_gives_the_reason() -> None:
     assert "needs at least 20 over 10 min" in estimate_drift(values, seq, t, Minimums())
 
 
-def _soak(tmp_path: Path, sim: SimServer, count: int, every: str) -> SoakWorker:
+def _soak(tmp_path: Path, sim: SimServer, count: int, every: str,
+          reference: str = "first") -> Job:
     spool = Spool(tmp_path / "spool").ensure()
     plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out", count=count,
                      every=every, checks=False,
-                     soak={"statistics": {"min_sweeps": 20, "min_span": "0.3 s"}})
+                     soak={"statistics": {"min_sweeps": 20, "min_span": "0.3 s"},
+                           "reference": reference})
     job = submit(spool, plan)
     assert SoakWorker(job, StopSignal()).run() == "finished"
     return job
@@ -252,3 +254,21 @@ def test_a_lost_reference_file_is_named(tmp_path: Path) -> None:
     assert reason.startswith(f"no figure: the reference {first} cannot be read (")
     assert f"drift for the uncertainty budget ({PLAN_KEY}): no figure: the reference" in \
         report.text
+
+
+def test_a_soak_against_a_reference_file_reads_it(tmp_path: Path) -> None:
+    # the records are changes against the plan's reference file; scaled by its |S11| they
+    # give the same noise (source: the simulator's noise law, as above)
+    import shutil
+
+    with SimServer(time_scale=0.0, noise=True) as sim:
+        first = _soak(tmp_path / "a", sim, count=10, every="0 s")
+        reference = tmp_path / "b" / "ref.s1p"
+        reference.parent.mkdir()
+        shutil.copy(sorted(first.data_dir.glob("*.s1p"))[0], reference)
+        job = _soak(tmp_path / "b", sim, count=30, every="0.02 s",
+                    reference="ref.s1p")
+    block = write_report(job, tmp_path / "rep").budget_drift
+    assert block is not None and "reason" not in block, block
+    assert block["noise_rms"] == pytest.approx(np.sqrt(2) * noise_sigma(-10.0, 100e3, 1),
+                                               rel=0.10)
