@@ -48,7 +48,7 @@ def build_parser() -> argparse.ArgumentParser:
         prog="sweepd",
         description="Unattended, vendor-neutral acquisition of network analyzer sweeps.",
         epilog="Exit codes: 0 ok or pass, 1 failed verdict, 2 error (also any unexpected "
-               "one), 130 interrupted.",
+               "one), 3 indeterminate (guarded decision), 130 interrupted.",
     )
     parser.add_argument("--version", action=_VersionAction, help="print the version and exit")
     parser.add_argument(
