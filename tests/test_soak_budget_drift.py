@@ -157,7 +157,7 @@ def test_a_soak_on_the_simulator_reports_its_noise(tmp_path: Path,
     assert block["plan_key"] == PLAN_KEY
     line = next(x for x in report.text.splitlines() if "uncertainty budget" in x)
     assert line.startswith(f"  drift for the uncertainty budget ({PLAN_KEY}): ")
-    shown = re.search(r"per hour \(at most \S+ at k = 2\), RMS \|dS11\| \(trace noise "
+    shown = re.search(r"RMS \|dS11\| \S+ per hour \(at most \S+ at k = 2\); trace noise "
                       rf"(\S+) RMS; {done} sweeps over", line)
     assert shown and float(shown[1]) == pytest.approx(expected, rel=0.10), line
     assert line.endswith("; the sweeps are uncorrected: the raw instrument's figure")

@@ -250,9 +250,9 @@ def budget_line(block: dict[str, Any]) -> str:
         return head + block["reason"]
     upper = block["per_hour_upper"]
     bound = f" (at most {upper:.2g} at k = 2)" if upper is not None else ""
-    line = (f"{block['per_hour']:.2g} per hour{bound}, RMS |d{block['parameter']}| (trace noise "
-            f"{block['noise_rms']:.2g} RMS; {block['sweeps']} sweeps over "
-            f"{format_duration(block['span_s'])}, {block['pairs']} pairs)")
+    line = (f"RMS |d{block['parameter']}| {block['per_hour']:.2g} per hour{bound}; trace "
+            f"noise {block['noise_rms']:.2g} RMS; {block['sweeps']} sweeps over "
+            f"{format_duration(block['span_s'])}, {block['pairs']} pairs")
     if not block["corrected"]:
         line += "; the sweeps are uncorrected: the raw instrument's figure"
     return head + line
