@@ -4,7 +4,8 @@ Writes ``drift.png``, ``allan.png``, ``deviation.png``, ``summary.txt`` and ``su
 (pictures embedded by file name) into the report folder, each atomically. The Allan
 deviation is computed here from the journalled resonance of every sweep (missed sweeps
 are gaps, see ``acquire.soak.allan``); the envelope from the per-point drift records of
-the sweeps the journal holds.
+the sweeps the journal holds, and from the same records the drift per hour for the
+uncertainty budget (``acquire.soak.budget_drift``).
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ from acquire.journal import JOURNAL_NAME
 from acquire.soak import history
 from acquire.soak.alarms import LABELS
 from acquire.soak.allan import AllanPoint
+from acquire.soak.budget_drift import budget_line, soak_drift
 from acquire.soak.devfile import read_deviation
 from acquire.soak.report_pages import report_html, report_text
 from acquire.soak.report_plots import Events, Panel, allan_plot, deviation_plot, drift_plot
@@ -39,6 +41,7 @@ class Report:
     text: str
     html: Path
     pictures: dict[str, Path]
+    budget_drift: dict[str, Any] | None = None  # see acquire.soak.budget_drift
 
 
 REPORT_FORMAT = "sweepd-report"
@@ -53,6 +56,7 @@ def report_document(job: Job, report: Report) -> dict[str, Any]:
         "text_file": str(report.folder / "summary.txt"),
         "pictures": {name: str(path) for name, path in report.pictures.items()},
         "summary": report.text.splitlines(),
+        "budget_drift": report.budget_drift,
     }
 
 
@@ -107,10 +111,12 @@ def write_report(job: Job, folder: Path) -> Report:
         pictures["deviation"] = _deviation(folder, deviation, spec, title)
     facts = _facts(job, plan, spec, run, ser, faults, alarms, t_s, deviation)
     facts["sweeps"] += _held_text(run.get("holds") or [])
+    budget = soak_drift(spec, ser, deviation)
+    facts["drift"].append(budget_line(budget))
     text = report_text(facts)
     replace_atomic(folder / "summary.txt", text + "\n")
     page = replace_atomic(folder / "summary.html", report_html(facts, pictures, folder))
-    return Report(folder, text, page, pictures)
+    return Report(folder, text, page, pictures, budget)
 
 
 # -- data ---------------------------------------------------------------------------------
