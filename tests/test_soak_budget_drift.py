@@ -272,3 +272,31 @@ def test_a_soak_against_a_reference_file_reads_it(tmp_path: Path) -> None:
     assert block is not None and "reason" not in block, block
     assert block["noise_rms"] == pytest.approx(np.sqrt(2) * noise_sigma(-10.0, 100e3, 1),
                                                rel=0.10)
+
+
+def test_only_the_sweeps_of_one_calibration_count(tmp_path: Path) -> None:
+    # a recalibration after sweep 119 moves every corrected value by a step; taken as
+    # drift it would inflate r many times. Source: the generating model (module doc)
+    from acquire.soak.budget_drift import soak_drift
+    from acquire.soak.history import Series
+    from acquire.soak.spec import Schedule, SoakSpec
+
+    sweeps, points, every_s, r = 300, 41, 60.0, 4e-4
+    values, seq, t = synthetic(9, sweeps, points, every_s, r, 2e-4)
+    values[:120] += 0.01 * np.exp(2j * np.pi * np.random.default_rng(10).random(points))
+    freq = np.linspace(2.40e9, 2.50e9, points)
+    reference = tmp_path / "ref.s1p"
+    reference.write_text("# Hz S RI R 50\n" + "".join(
+        f"{f:.1f} {g.real:.17g} {g.imag:.17g}\n" for f, g in zip(freq, values[0], strict=True)))
+    db = (20 * np.log10(np.abs(values) / np.abs(values[0]))).astype(np.float32)
+    deg = np.degrees(np.angle(values * np.conj(values[0]))).astype(np.float32)
+    n = sweeps
+    ser = Series(seq=seq, state=["stored"] + ["measured"] * (n - 1), t_s=t,
+                 verdict=[None] * n, touchstone=[str(reference)] + [None] * (n - 1),
+                 note=[None] * n, soak=[None] * n, cal_id=["cal-a"] * 120 + ["cal-b"] * 180,
+                 cal_age_s=[None] * n, instrument=[None] * n)
+    block = soak_drift(SoakSpec(Schedule(every_s)), ser, (freq, seq, db, deg))
+    assert block["per_hour"] == pytest.approx(r, rel=0.10)
+    assert block["noise_rms"] == pytest.approx(2e-4, rel=0.10)
+    assert block["calibration"] == "cal-b" and block["other_calibration_sweeps"] == 120
+    assert block["sweeps"] == 180 and block["corrected"] is True

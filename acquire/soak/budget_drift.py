@@ -27,11 +27,13 @@ The sweeps come from the soak's per-point drift records (change of |S| in dB and
 phase against the reference, ``acquire.soak.devfile``) scaled by the reference's |S|,
 so every measured sweep counts, not only those kept as Touchstone files. Like the
 soak's other statistics (``acquire.soak.statistics``), no figure is given before the
-plan's minimum number of sweeps and span.
+plan's minimum number of sweeps and span. Only the sweeps of one calibration count (the
+one most sweeps used): a recalibration during the soak would show as a step.
 """
 
 from __future__ import annotations
 
+from collections import Counter
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
@@ -206,17 +208,27 @@ def soak_drift(spec: SoakSpec, ser: history.Series,
     reference = _reference_magnitude(spec, ser, freq)
     if isinstance(reference, str):
         return {**block, "reason": reference}
+    cal_of = {int(q): c for q, c in zip(ser.seq, ser.cal_id, strict=True)}
+    chosen, rows = one_calibration([cal_of.get(int(q)) for q in seq])
     when = {int(q): float(t) for q, t, done in zip(ser.seq, ser.t_s, ser.done_mask(),
                                                  strict=True) if done}
-    t_s = np.array([when.get(int(q), np.nan) for q in seq])
-    values = reference * 10.0 ** (db.astype(np.float64) / 20.0) \
-        * np.exp(1j * np.radians(deg.astype(np.float64)))
-    found = estimate_drift(values, seq, t_s, spec.minimums)
+    t_s = np.array([when.get(int(q), np.nan) for q in seq[rows]])
+    values = reference * 10.0 ** (db[rows].astype(np.float64) / 20.0) \
+        * np.exp(1j * np.radians(deg[rows].astype(np.float64)))
+    found = estimate_drift(values, seq[rows], t_s, spec.minimums)
     if isinstance(found, str):
         return {**block, "reason": found}
-    used = {int(q) for q in seq}
-    corrected = all(c for q, c in zip(ser.seq, ser.cal_id, strict=True) if int(q) in used)
-    return {**block, **found.to_dict(), "corrected": corrected}
+    return {**block, **found.to_dict(), "corrected": bool(chosen), "calibration": chosen,
+            "other_calibration_sweeps": int(rows.size - rows.sum())}
+
+
+def one_calibration(cal_ids: list[str | None]) -> tuple[str | None, np.ndarray]:
+    """The calibration most sweeps were corrected with (the later of equals; None: raw)
+    and which rows it corrected: a recalibration mid-soak is a step, not drift."""
+    counts = Counter(cal_ids)
+    last = {cal: i for i, cal in enumerate(cal_ids)}
+    chosen = max(counts, key=lambda cal: (counts[cal], last[cal]))
+    return chosen, np.array([cal == chosen for cal in cal_ids], dtype=bool)
 
 
 def _reference_magnitude(spec: SoakSpec, ser: history.Series,
@@ -253,6 +265,9 @@ def budget_line(block: dict[str, Any]) -> str:
     line = (f"RMS |d{block['parameter']}| {block['per_hour']:.2g} per hour{bound}; trace "
             f"noise {block['noise_rms']:.2g} RMS; {block['sweeps']} sweeps over "
             f"{format_duration(block['span_s'])}, {block['pairs']} pairs")
+    if block["other_calibration_sweeps"]:
+        line += (f"; {block['other_calibration_sweeps']} sweep(s) corrected by another "
+                 "calibration left out")
     if not block["corrected"]:
         line += "; the sweeps are uncorrected: the raw instrument's figure"
     return head + line
