@@ -16,12 +16,12 @@ SP 1065, 2008, from memory: the Allan variance of phase data is a second differe
 the same kind, and a linear drift makes it grow as τ², as here). Fitting a = 2σ² and
 b = r² by least squares over the lags, weighted by the number of sweep pairs at each
 lag, is common practice; so is taking about 48 roughly log-spaced lags instead of all of
-them (every lag up to about 16, then sparser), which keeps an overnight soak of
-thousands of sweeps to a second or two. Negative fitted terms (noise, or no drift at
-all) are reported as zero. How far noise alone moves the fitted r² is estimated by a
-jackknife over ten blocks of neighbouring frequency points; r² plus twice that standard
-error gives the upper figure ("at most ... at k = 2"), the one to use when the drift is
-too small for this soak to resolve.
+them (every lag up to about 16, then sparser), which keeps a soak of thousands of
+sweeps to a few seconds (``bench/budget_drift.py``). Negative fitted terms (noise, or no
+drift at all) are reported as zero. How well the frequency points agree on r² is
+estimated by a jackknife over ten blocks of neighbouring points; r² (at least zero) plus
+twice that standard error gives the upper figure ("at most ... at k = 2"), the one to
+use when the drift is too small for this soak to resolve.
 
 The sweeps come from the soak's per-point drift records (change of |S| in dB and of
 phase against the reference, ``acquire.soak.devfile``) scaled by the reference's |S|,
@@ -71,7 +71,7 @@ class DriftEstimate:
     """Drift per hour and trace noise fitted to a soak's structure function."""
 
     per_hour: float  # r: RMS |ΔΓ| per hour of linear drift
-    per_hour_upper: float | None  # √(r² + 2·its jackknife standard error): k = 2 bound
+    per_hour_upper: float | None  # √(max(r², 0) + 2·its jackknife standard error)
     noise_rms: float  # σ: RMS |ΔΓ| of one sweep's noise (trace noise + repeatability
     #                   without reconnection)
     sweeps: int
@@ -188,7 +188,7 @@ def estimate_drift(values: ArrayLike, seq: ArrayLike, t_s: ArrayLike,
                 "different spacings)")
     a, b = fit_drift(points)
     spread = jackknife_spread(points)
-    upper = None if spread is None else float(np.sqrt(max(b + 2.0 * spread, 0.0))) * 3600.0
+    upper = None if spread is None else float(np.sqrt(max(b, 0.0) + 2.0 * spread)) * 3600.0
     return DriftEstimate(per_hour=float(np.sqrt(max(b, 0.0))) * 3600.0,
                          per_hour_upper=upper,
                          noise_rms=float(np.sqrt(max(a, 0.0) / 2.0)), sweeps=sweeps,
