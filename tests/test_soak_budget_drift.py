@@ -120,6 +120,16 @@ def test_no_drift_gives_a_figure_near_zero(seed: int) -> None:
     assert found.noise_rms == pytest.approx(sigma, rel=0.05)
 
 
+def test_a_negative_fit_still_has_a_positive_upper_figure() -> None:
+    # this series fits r² below zero by more than twice its jackknife error: the upper
+    # figure was √(max(r² + 2·error, 0)) = 0, a bound that the true r = 0 only just meets
+    # and any drift breaks; it is √(max(r², 0) + 2·error)
+    values, seq, t = synthetic(9, 60, 11, 60.0, 0.0, 5e-4)
+    found = estimate_drift(values, seq, t, Minimums())
+    assert not isinstance(found, str) and found.per_hour == 0.0
+    assert found.per_hour_upper is not None and found.per_hour_upper > 0.0
+
+
 def test_too_little_data_gives_the_reason() -> None:
     values, seq, t = synthetic(1, 12, 11, 60.0, 5e-4, 5e-4)
     shown = estimate_drift(values, seq, t, Minimums())
