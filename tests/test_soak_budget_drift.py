@@ -156,7 +156,7 @@ def test_a_soak_on_the_simulator_reports_its_noise(tmp_path: Path,
     # source: the simulator's noise law (simulators/bench.py): per-component sigma at
     # -10 dBm and 100 kHz, added to the raw values; RMS |n| is √2 times that
     with SimServer(time_scale=0.0, noise=True) as sim:
-        job = _soak(tmp_path, sim, count=30, every="0.02 s")
+        job = _soak(tmp_path, sim, count=30, every="0.03 s")
     expected = np.sqrt(2) * noise_sigma(-10.0, 100e3, 1)
     report = write_report(job, tmp_path / "rep")
     block = report.budget_drift
@@ -234,7 +234,7 @@ def test_a_calibrated_soak_reports_the_noise_at_the_reference_plane(tmp_path: Pa
     spool = Spool(tmp_path / "spool").ensure()
     with SimServer(time_scale=0.0, noise=True) as sim:
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out", count=30,
-                         every="0.02 s", checks=False,
+                         every="0.03 s", checks=False,
                          soak={"statistics": {"min_sweeps": 20, "min_span": "0.3 s"}})
         data = yaml.safe_load(plan.read_text())
         data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
@@ -276,7 +276,7 @@ def test_a_soak_against_a_reference_file_reads_it(tmp_path: Path) -> None:
         reference = tmp_path / "b" / "ref.s1p"
         reference.parent.mkdir()
         shutil.copy(sorted(first.data_dir.glob("*.s1p"))[0], reference)
-        job = _soak(tmp_path / "b", sim, count=30, every="0.02 s",
+        job = _soak(tmp_path / "b", sim, count=30, every="0.03 s",
                     reference="ref.s1p")
     block = write_report(job, tmp_path / "rep").budget_drift
     assert block is not None and "reason" not in block, block
