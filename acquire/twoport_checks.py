@@ -10,7 +10,8 @@ Definitions (Pozar, Microwave Engineering, 4th ed.): insertion loss IL = −20·
 (positive dB for a passive device, ch. 4 and 8), return loss RL = −20·log10|Sii|
 (ch. 2), group delay τ = −dφ/dω (ch. 8); flatness is its peak-to-peak spread over the
 band (common practice). Insertion and return loss are judged as one-segment masks, so
-points between the sweep points at the band ends are caught as for any mask. The plan
+points between the sweep points at the band ends are caught as for any mask, and take
+the guard band under guarded acceptance like a mask (``acquire.uncertainty.guarded``). The plan
 entries are read by ``acquire.check_parse``.
 """
 
@@ -24,6 +25,7 @@ import numpy as np
 from acquire.checks import Check, CheckError, CheckResult, _inside_sweep
 from acquire.masks import Limit, Mask, Segment, evaluate_mask
 from acquire.sweep import Sweep
+from acquire.uncertainty.guarded import guarded_result
 from acquire.units import format_frequency
 
 TRANSMISSION = ("S21", "S12")
@@ -67,6 +69,10 @@ class InsertionLossCheck(Check):
                            f"{self.name} {result.verdict}: {-worst.value:.2f} dB at "
                            f"{format_frequency(worst.freq_hz)}", details, None, result)
 
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance (``acquire.uncertainty.decision``) of the same positions."""
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
+
 
 @dataclass(frozen=True)
 class ReturnLossCheck(Check):
@@ -103,6 +109,10 @@ class ReturnLossCheck(Check):
                            f"{self.name} {result.verdict}: {worst[0]} {worst[1]['worst_db']:.2f}"
                            f" dB at {format_frequency(worst[1]['worst_hz'])}", details, None,
                            result)
+
+    def evaluate_guarded(self, sweep: Sweep, rule: Any, uncertainty: Any) -> CheckResult:
+        """Guarded acceptance of the same positions, each port on its own."""
+        return guarded_result(self, self.evaluate(sweep), rule, uncertainty)
 
 
 @dataclass(frozen=True)

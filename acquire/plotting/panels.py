@@ -239,6 +239,8 @@ def quantity_panel(ax: Any, traces: Sequence[Trace], quantity: str, segs: Group,
     ax.set_ylim(*value_range(np.concatenate(curves), limit_values(segs, convert)))
     draw_limits(ax, segs, convert, False, _span(traces))
     if quantity == "magnitude_db":
+        for t in traces:  # |Sij| +/- U, when the capture's uncertainty is known
+            draw_band(ax, t.sweep, t.param, m.db20)
         shown_params = {t.param for t in traces}
         mine = [mk for mk in marks if mk.parameter in shown_params]
         draw_marks(ax, mine, [mk.marker.db for mk in mine])

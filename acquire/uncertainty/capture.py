@@ -1,13 +1,18 @@
 """The uncertainty of one capture: built from its cal set, kit and plan; JSON and comments.
 
-``sweep_uncertainty`` needs a full one-port correction of the reflection (``one-port``
-or ``one-path-two-port``, once called ``enhanced-response``): the normalisations leave
-directivity or source match uncorrected, the full two-port methods (``two-port``,
-``two-port-unknown-thru``) are not modelled yet, and an uncorrected sweep has no budget
-at all; then the result says why
-(``unavailable``) and carries no points. Trace noise comes from the cal set's raw load
-reading (``budget.noise_from_load``) scaled to the sweep's IF bandwidth, power and
-averaging, unless the plan states a level; drift grows with the cal set's age.
+``sweep_uncertainty`` needs a full correction of the reflection: ``one-port`` or
+``one-path-two-port`` (once called ``enhanced-response``) give the corrected port's
+|Sii| (and |S21| after the one-path method, with the load match it leaves in), the full
+two-port methods (``two-port``, ``two-port-unknown-thru``) give all four parameters of a
+two-port sweep (``fulltwoport``: the whole calibration solved again from its readings;
+a one-port sweep corrected by such a cal set gets the one-port model of port 1). The
+normalisations leave directivity or source match uncorrected, an uncorrected sweep has
+no budget at all, and a full two-port cal set without the readings its model needs
+(thru, switch terms) cannot be modelled; then the result says why (``unavailable``,
+one line) and carries no points. Trace noise comes from the cal set's raw load reading
+(``budget.noise_from_load``; after a full two-port calibration the larger of the two
+ports' figures) scaled to the sweep's IF bandwidth, power and averaging, unless the
+plan states a level; drift grows with the cal set's age.
 """
 
 from __future__ import annotations
@@ -28,8 +33,9 @@ from acquire.units import format_frequency
 
 ONE_PATH = ("one-path-two-port", "enhanced-response")  # the second is the older name
 FULL_REFLECTION = ("one-port", *ONE_PATH)
-NOT_MODELLED = ("two-port", "two-port-unknown-thru")
+FULL_TWO_PORT = ("two-port", "two-port-unknown-thru")
 _PARAMS = ("S11", "S22", "S33", "S44")
+_THROUGH = ("S21", "S12")
 FORMAT = "sweepd-uncertainty"
 VERSION = 1
 
@@ -51,8 +57,9 @@ class SweepUncertainty:
         """Why ``parameter`` has no uncertainty (for error messages)."""
         if self.unavailable:
             return self.unavailable
-        return (f"no uncertainty model for {parameter} (the corrected reflection has one, and "
-                "S21 after a one-path-two-port calibration)")
+        return (f"no uncertainty model for {parameter} (the corrected reflection has one, "
+                "S21 after a one-path-two-port calibration, all four parameters after a "
+                "full two-port one)")
 
     def interval(self, parameter: str, quantity: str, guard: float = 1.0
                  ) -> tuple[np.ndarray, np.ndarray] | None:
@@ -83,10 +90,16 @@ class SweepUncertainty:
         for name, trans in self.transmission.items():
             k = int(np.argmax(trans.expanded))
             block = {"quantity": f"{name.lower()}_abs", "max_expanded": float(trans.expanded[k]),
-                     "max_at_hz": float(self.freq_hz[k]),
-                     "max_load_match_bias": float(trans.bias.max())}
+                     "max_at_hz": float(self.freq_hz[k])}
+            near = getattr(trans, "near_match", None)
+            if trans.bias is not None:
+                block["max_load_match_bias"] = float(trans.bias.max())
+            if near is not None:
+                block["points_near_zero"] = int(near.sum())
             if points:
                 block["expanded"] = [float(x) for x in trans.expanded]
+                if near is not None:
+                    block["near_match"] = [bool(x) for x in near]
             out["parameters"][name] = block
         return out
 
@@ -107,16 +120,20 @@ class SweepUncertainty:
                          f"{s['at_best_match_expanded']:.4f}, {rl_text}")
         for name, trans in self.transmission.items():
             k = int(np.argmax(trans.expanded))
-            lines.append(f"sweepd uncertainty (95 %) |{name}|: max U {trans.expanded[k]:.4f} at "
-                         f"{format_frequency(float(self.freq_hz[k]))} (|{name}| "
-                         f"{trans.s21_abs[k]:.4f}; load-match bias up to "
-                         f"{float(trans.bias.max()):.4f})")
+            where = (f"max U {trans.expanded[k]:.4f} at {format_frequency(float(self.freq_hz[k]))}"
+                     f" (|{name}| {trans.s21_abs[k]:.4f}")
+            if trans.bias is None:
+                lines.append(f"sweepd uncertainty (k=2) |{name}|: {where}; load match corrected)")
+            else:
+                lines.append(f"sweepd uncertainty (95 %) |{name}|: {where}; load-match bias up "
+                             f"to {float(trans.bias.max()):.4f})")
         if self.budget is not None:
             b = self.budget
+            thru = f", thru |S21| +/-{b.thru_error:g}" if b.thru_error else ""
             lines.append(f"  budget: load {b.load_error:.4f}, open/short phase "
                          f"+/-{b.phase_error_deg:g} deg, repeatability {b.repeatability:.4f}, "
                          f"noise {float(np.max(b.noise)):.2e} ({b.noise_source}), "
-                         f"drift {b.drift:.4f}")
+                         f"drift {b.drift:.4f}{thru}")
         return lines
 
 
@@ -155,25 +172,39 @@ def from_summary(sweep: Sweep, touchstone: Path) -> SweepUncertainty:
     if not isinstance(block, dict) or not block.get("available"):
         why = block.get("unavailable") if isinstance(block, dict) else None
         return unavailable(sweep, f"{path.name}: {why or 'no uncertainty'}")
-    out = {}
+    out: dict[str, ReflectionUncertainty] = {}
+    trans: dict[str, Any] = {}
+    through = _THROUGH if sweep.ports > 1 else ()
     for name, entry in (block.get("parameters") or {}).items():
-        u = entry.get("expanded") if isinstance(entry, dict) else None
-        if not isinstance(u, list) or len(u) != sweep.points or name not in _PARAMS[:sweep.ports]:
+        if name not in (*_PARAMS[:sweep.ports], *through) or not isinstance(entry, dict):
             continue
-        try:
-            expanded = np.asarray(u, np.float64)
-        except (TypeError, ValueError):
-            continue
-        if not np.all(np.isfinite(expanded) & (expanded >= 0)):
+        expanded = _stored_expanded(entry.get("expanded"), sweep.points)
+        if expanded is None:
             continue
         g = np.abs(sweep.param(name))
         near = np.asarray(entry.get("near_match") or [], bool)
         near = near if near.shape == g.shape else np.zeros(g.shape, bool)
-        out[name] = ReflectionUncertainty(g, expanded / 2, expanded, near,
-                                          np.zeros((g.size, 2, 2)))
-    if not out:
+        cov = np.zeros((g.size, 2, 2))
+        if name in through:
+            from acquire.uncertainty.fulltwoport import CorrectedTransmission
+
+            trans[name] = CorrectedTransmission(g, expanded / 2, expanded, near, cov)
+        else:
+            out[name] = ReflectionUncertainty(g, expanded / 2, expanded, near, cov)
+    if not out and not trans:
         return unavailable(sweep, f"{path.name}: its uncertainty does not fit this sweep")
-    return SweepUncertainty(np.asarray(sweep.freq_hz), out)
+    return SweepUncertainty(np.asarray(sweep.freq_hz), out, transmission=trans)
+
+
+def _stored_expanded(u: Any, points: int) -> np.ndarray | None:
+    """A stored U array, if it is one finite non-negative number per point."""
+    if not isinstance(u, list) or len(u) != points:
+        return None
+    try:
+        expanded = np.asarray(u, np.float64)
+    except (TypeError, ValueError):
+        return None
+    return expanded if np.all(np.isfinite(expanded) & (expanded >= 0)) else None
 
 
 def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
@@ -181,10 +212,10 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
     """The uncertainty of a corrected ``sweep`` from its ``calset`` and cal ``kit``."""
     if calset is None or kit is None:
         return unavailable(sweep, "the sweep is uncorrected")
-    if calset.method in NOT_MODELLED:
-        return unavailable(sweep, f"the uncertainty of a {calset.method} calibration is not "
-                                  "modelled yet")
-    if calset.method not in FULL_REFLECTION:
+    if calset.method in FULL_TWO_PORT:
+        if sweep.ports > 1:
+            return _full_two_port(sweep, calset, kit, rule)
+    elif calset.method not in FULL_REFLECTION:
         return unavailable(sweep, f"a {calset.method} calibration leaves directivity or source "
                                   "match uncorrected")
     port = int(calset.port)
@@ -210,6 +241,35 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
         if s21 is not None:
             trans["S21"] = s21
     return SweepUncertainty(f, {param: unc}, budget, transmission=trans)
+
+
+def _full_two_port(sweep: Sweep, calset: Any, kit: Any, rule: DecisionRule) -> SweepUncertainty:
+    """All four parameters of a two-port sweep after a full two-port calibration."""
+    from acquire.errors import CalError
+    from acquire.uncertainty.fullcalset import setup_from_calset
+    from acquire.uncertainty.fulltwoport import full_two_port_uncertainty
+
+    if sweep.ports != 2:
+        return unavailable(sweep, f"a {calset.method} calibration models two ports; the sweep "
+                                  f"has {sweep.ports}")
+    try:
+        setup = setup_from_calset(sweep, calset, kit)
+        if isinstance(setup, str):
+            return unavailable(sweep, setup)
+        budget = max((_budget(rule, calset, sweep, calset.model.reflection[p],
+                              setup.names["load"], p) for p in ("S11", "S22")),
+                     key=lambda b: float(np.max(b.noise)))
+        reflection, transmission = full_two_port_uncertainty(setup, budget)
+    except (CalError, ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        first = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        return unavailable(sweep, f"the {calset.method} calibration cannot be modelled: {first}")
+    for name, unc in (*reflection.items(), *transmission.items()):
+        bad = ~np.isfinite(unc.expanded)
+        if bad.any():
+            at = format_frequency(float(sweep.freq_hz[int(np.argmax(bad))]))
+            return unavailable(sweep, f"the uncertainty of {name} is not finite at {at}")
+    return SweepUncertainty(np.asarray(sweep.freq_hz), reflection, budget,
+                            transmission=transmission)
 
 
 def _transmission(sweep: Sweep, calset: Any, kit: Any, models: dict[str, np.ndarray],

@@ -137,8 +137,11 @@ def guarded_result(check: Any, base: Any, rule: Any, uncertainty: Any) -> Any:
     if "segments" in details:
         details["segments"] = [{**d, "guarded": g.to_dict()}
                                for d, g in zip(details["segments"], segments, strict=True)]
-    else:
+    elif len(segments) == 1:
         details["guarded"] = segments[0].to_dict()
+    else:  # one check over several parameters (return loss of S11 and S22)
+        details["guarded"] = {s.segment.parameter: g.to_dict() for s, g in
+                              zip(base.mask_result.segments, segments, strict=True)}
     details["decision"] = rule.to_dict()
     within = sum(g.positions_indeterminate for g in segments)
     rest = base.summary.removeprefix(f"{check.name} {base.verdict}:")
