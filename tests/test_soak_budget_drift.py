@@ -120,6 +120,16 @@ def test_no_drift_gives_a_figure_near_zero(seed: int) -> None:
     assert found.noise_rms == pytest.approx(sigma, rel=0.05)
 
 
+def test_a_negative_fit_still_has_a_positive_upper_figure() -> None:
+    # this series fits r² below zero by more than twice its jackknife error: the upper
+    # figure was √(max(r² + 2·error, 0)) = 0, a bound that the true r = 0 only just meets
+    # and any drift breaks; it is √(max(r², 0) + 2·error)
+    values, seq, t = synthetic(9, 60, 11, 60.0, 0.0, 5e-4)
+    found = estimate_drift(values, seq, t, Minimums())
+    assert not isinstance(found, str) and found.per_hour == 0.0
+    assert found.per_hour_upper is not None and found.per_hour_upper > 0.0
+
+
 def test_too_little_data_gives_the_reason() -> None:
     values, seq, t = synthetic(1, 12, 11, 60.0, 5e-4, 5e-4)
     shown = estimate_drift(values, seq, t, Minimums())
@@ -146,7 +156,7 @@ def test_a_soak_on_the_simulator_reports_its_noise(tmp_path: Path,
     # source: the simulator's noise law (simulators/bench.py): per-component sigma at
     # -10 dBm and 100 kHz, added to the raw values; RMS |n| is √2 times that
     with SimServer(time_scale=0.0, noise=True) as sim:
-        job = _soak(tmp_path, sim, count=30, every="0.02 s")
+        job = _soak(tmp_path, sim, count=30, every="0.03 s")
     expected = np.sqrt(2) * noise_sigma(-10.0, 100e3, 1)
     report = write_report(job, tmp_path / "rep")
     block = report.budget_drift
@@ -224,7 +234,7 @@ def test_a_calibrated_soak_reports_the_noise_at_the_reference_plane(tmp_path: Pa
     spool = Spool(tmp_path / "spool").ensure()
     with SimServer(time_scale=0.0, noise=True) as sim:
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out", count=30,
-                         every="0.02 s", checks=False,
+                         every="0.03 s", checks=False,
                          soak={"statistics": {"min_sweeps": 20, "min_span": "0.3 s"}})
         data = yaml.safe_load(plan.read_text())
         data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
@@ -266,9 +276,37 @@ def test_a_soak_against_a_reference_file_reads_it(tmp_path: Path) -> None:
         reference = tmp_path / "b" / "ref.s1p"
         reference.parent.mkdir()
         shutil.copy(sorted(first.data_dir.glob("*.s1p"))[0], reference)
-        job = _soak(tmp_path / "b", sim, count=30, every="0.02 s",
+        job = _soak(tmp_path / "b", sim, count=30, every="0.03 s",
                     reference="ref.s1p")
     block = write_report(job, tmp_path / "rep").budget_drift
     assert block is not None and "reason" not in block, block
     assert block["noise_rms"] == pytest.approx(np.sqrt(2) * noise_sigma(-10.0, 100e3, 1),
                                                rel=0.10)
+
+
+def test_only_the_sweeps_of_one_calibration_count(tmp_path: Path) -> None:
+    # a recalibration after sweep 119 moves every corrected value by a step; taken as
+    # drift it would inflate r many times. Source: the generating model (module doc)
+    from acquire.soak.budget_drift import soak_drift
+    from acquire.soak.history import Series
+    from acquire.soak.spec import Schedule, SoakSpec
+
+    sweeps, points, every_s, r = 300, 41, 60.0, 4e-4
+    values, seq, t = synthetic(9, sweeps, points, every_s, r, 2e-4)
+    values[:120] += 0.01 * np.exp(2j * np.pi * np.random.default_rng(10).random(points))
+    freq = np.linspace(2.40e9, 2.50e9, points)
+    reference = tmp_path / "ref.s1p"
+    reference.write_text("# Hz S RI R 50\n" + "".join(
+        f"{f:.1f} {g.real:.17g} {g.imag:.17g}\n" for f, g in zip(freq, values[0], strict=True)))
+    db = (20 * np.log10(np.abs(values) / np.abs(values[0]))).astype(np.float32)
+    deg = np.degrees(np.angle(values * np.conj(values[0]))).astype(np.float32)
+    n = sweeps
+    ser = Series(seq=seq, state=["stored"] + ["measured"] * (n - 1), t_s=t,
+                 verdict=[None] * n, touchstone=[str(reference)] + [None] * (n - 1),
+                 note=[None] * n, soak=[None] * n, cal_id=["cal-a"] * 120 + ["cal-b"] * 180,
+                 cal_age_s=[None] * n, instrument=[None] * n)
+    block = soak_drift(SoakSpec(Schedule(every_s)), ser, (freq, seq, db, deg))
+    assert block["per_hour"] == pytest.approx(r, rel=0.10)
+    assert block["noise_rms"] == pytest.approx(2e-4, rel=0.10)
+    assert block["calibration"] == "cal-b" and block["other_calibration_sweeps"] == 120
+    assert block["sweeps"] == 180 and block["corrected"] is True

@@ -16,22 +16,24 @@ SP 1065, 2008, from memory: the Allan variance of phase data is a second differe
 the same kind, and a linear drift makes it grow as τ², as here). Fitting a = 2σ² and
 b = r² by least squares over the lags, weighted by the number of sweep pairs at each
 lag, is common practice; so is taking about 48 roughly log-spaced lags instead of all of
-them (every lag up to about 16, then sparser), which keeps an overnight soak of
-thousands of sweeps to a second or two. Negative fitted terms (noise, or no drift at
-all) are reported as zero. How far noise alone moves the fitted r² is estimated by a
-jackknife over ten blocks of neighbouring frequency points; r² plus twice that standard
-error gives the upper figure ("at most ... at k = 2"), the one to use when the drift is
-too small for this soak to resolve.
+them (every lag up to about 16, then sparser), which keeps a soak of thousands of
+sweeps to a few seconds (``bench/budget_drift.py``). Negative fitted terms (noise, or no
+drift at all) are reported as zero. How well the frequency points agree on r² is
+estimated by a jackknife over ten blocks of neighbouring points; r² (at least zero) plus
+twice that standard error gives the upper figure ("at most ... at k = 2"), the one to
+use when the drift is too small for this soak to resolve.
 
 The sweeps come from the soak's per-point drift records (change of |S| in dB and of
 phase against the reference, ``acquire.soak.devfile``) scaled by the reference's |S|,
 so every measured sweep counts, not only those kept as Touchstone files. Like the
 soak's other statistics (``acquire.soak.statistics``), no figure is given before the
-plan's minimum number of sweeps and span.
+plan's minimum number of sweeps and span. Only the sweeps of one calibration count (the
+one most sweeps used): a recalibration during the soak would show as a step.
 """
 
 from __future__ import annotations
 
+from collections import Counter
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
@@ -69,7 +71,7 @@ class DriftEstimate:
     """Drift per hour and trace noise fitted to a soak's structure function."""
 
     per_hour: float  # r: RMS |ΔΓ| per hour of linear drift
-    per_hour_upper: float | None  # √(r² + 2·its jackknife standard error): k = 2 bound
+    per_hour_upper: float | None  # √(max(r², 0) + 2·its jackknife standard error)
     noise_rms: float  # σ: RMS |ΔΓ| of one sweep's noise (trace noise + repeatability
     #                   without reconnection)
     sweeps: int
@@ -186,7 +188,7 @@ def estimate_drift(values: ArrayLike, seq: ArrayLike, t_s: ArrayLike,
                 "different spacings)")
     a, b = fit_drift(points)
     spread = jackknife_spread(points)
-    upper = None if spread is None else float(np.sqrt(max(b + 2.0 * spread, 0.0))) * 3600.0
+    upper = None if spread is None else float(np.sqrt(max(b, 0.0) + 2.0 * spread)) * 3600.0
     return DriftEstimate(per_hour=float(np.sqrt(max(b, 0.0))) * 3600.0,
                          per_hour_upper=upper,
                          noise_rms=float(np.sqrt(max(a, 0.0) / 2.0)), sweeps=sweeps,
@@ -206,17 +208,27 @@ def soak_drift(spec: SoakSpec, ser: history.Series,
     reference = _reference_magnitude(spec, ser, freq)
     if isinstance(reference, str):
         return {**block, "reason": reference}
+    cal_of = {int(q): c for q, c in zip(ser.seq, ser.cal_id, strict=True)}
+    chosen, rows = one_calibration([cal_of.get(int(q)) for q in seq])
     when = {int(q): float(t) for q, t, done in zip(ser.seq, ser.t_s, ser.done_mask(),
                                                  strict=True) if done}
-    t_s = np.array([when.get(int(q), np.nan) for q in seq])
-    values = reference * 10.0 ** (db.astype(np.float64) / 20.0) \
-        * np.exp(1j * np.radians(deg.astype(np.float64)))
-    found = estimate_drift(values, seq, t_s, spec.minimums)
+    t_s = np.array([when.get(int(q), np.nan) for q in seq[rows]])
+    values = reference * 10.0 ** (db[rows].astype(np.float64) / 20.0) \
+        * np.exp(1j * np.radians(deg[rows].astype(np.float64)))
+    found = estimate_drift(values, seq[rows], t_s, spec.minimums)
     if isinstance(found, str):
         return {**block, "reason": found}
-    used = {int(q) for q in seq}
-    corrected = all(c for q, c in zip(ser.seq, ser.cal_id, strict=True) if int(q) in used)
-    return {**block, **found.to_dict(), "corrected": corrected}
+    return {**block, **found.to_dict(), "corrected": bool(chosen), "calibration": chosen,
+            "other_calibration_sweeps": int(rows.size - rows.sum())}
+
+
+def one_calibration(cal_ids: list[str | None]) -> tuple[str | None, np.ndarray]:
+    """The calibration most sweeps were corrected with (the later of equals; None: raw)
+    and which rows it corrected: a recalibration mid-soak is a step, not drift."""
+    counts = Counter(cal_ids)
+    last = {cal: i for i, cal in enumerate(cal_ids)}
+    chosen = max(counts, key=lambda cal: (counts[cal], last[cal]))
+    return chosen, np.array([cal == chosen for cal in cal_ids], dtype=bool)
 
 
 def _reference_magnitude(spec: SoakSpec, ser: history.Series,
@@ -253,6 +265,9 @@ def budget_line(block: dict[str, Any]) -> str:
     line = (f"RMS |d{block['parameter']}| {block['per_hour']:.2g} per hour{bound}; trace "
             f"noise {block['noise_rms']:.2g} RMS; {block['sweeps']} sweeps over "
             f"{format_duration(block['span_s'])}, {block['pairs']} pairs")
+    if block["other_calibration_sweeps"]:
+        line += (f"; {block['other_calibration_sweeps']} sweep(s) corrected by another "
+                 "calibration left out")
     if not block["corrected"]:
         line += "; the sweeps are uncorrected: the raw instrument's figure"
     return head + line
