@@ -67,7 +67,7 @@ def test_capture_uncertainty_and_guarded_verdict(tmp_path: Path,
         assert unc["available"] and unc["coverage_factor"] == 2.0
         s11 = unc["parameters"]["S11"]
         assert len(s11["expanded"]) == 601 and min(s11["expanded"]) > 0
-        assert unc["budget"]["noise_source"] == "calibration load reading"
+        assert unc["budget"]["noise_source"] == "calibration load read twice"
         ts = read_touchstone(summary["capture"]["touchstone"])
         assert any(c.strip().startswith("sweepd uncertainty (k=2) |S11|: max U")
                    for c in ts.comments)
@@ -117,3 +117,34 @@ def test_uncorrected_capture_says_why_it_has_no_uncertainty(
     assert summary["uncertainty"]["unavailable"] == "the sweep is uncorrected"
     assert code == 2 and summary["verdict"] == "error"
     assert "guarded acceptance needs the uncertainty of S11" in summary["checks"][0]["message"]
+
+
+def test_a_guided_calibration_reads_the_load_twice_for_the_noise(tmp_path: Path) -> None:
+    """On a coarse, wide sweep (201 points, 10 MHz–6 GHz, where the test cable's ripple is
+    undersampled) the calibration's second reading of the load gives the simulator's
+    trace noise at the reference plane within 15 %. Source: the simulator's noise law
+    (simulators/bench.py: per-part σ of a raw value, so RMS |n| = √2·σ), referred through
+    |e10e01| (one-port error model, EURAMET cg-12)."""
+    from acquire.calibration import CalSet
+    from acquire.guided import Options, calibrate
+    from acquire.plan import load_plan
+    from acquire.uncertainty.budget import noise_from_load, noise_from_repeat
+    from simulators.bench import noise_sigma
+
+    wide = {"start": "10 MHz", "stop": "6 GHz", "points": 201, "power": "-10 dBm",
+            "if_bandwidth": "100 kHz"}
+    plan = _plan(tmp_path, "wide", stimulus=wide, checks=[])
+    with SimServer(noise=True) as sim:
+        outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
+                                                     prompt="switch"),
+                            stdin=_Quiet(), stdout=_Quiet())
+    assert outcome.saved is not None
+    calset = CalSet.load(outcome.saved)  # as written to disk
+    assert sorted(k for k in calset.raw if k.startswith("load.")) == ["load.S11",
+                                                                      "load.S11-again"]
+    tracking = calset.model.reflection["S11"].reflection_tracking
+    expected = np.sqrt(2) * noise_sigma(-10.0, 100e3, 1) / np.median(np.abs(tracking))
+    got = noise_from_repeat(calset.raw["load.S11"], calset.raw["load.S11-again"], tracking)
+    assert got == pytest.approx(expected, rel=0.15)
+    # the one-reading estimate it replaces is far off on such a sweep
+    assert noise_from_load(calset.raw["load.S11"], tracking) > 3 * expected

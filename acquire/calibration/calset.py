@@ -19,7 +19,9 @@ compression, fixed member dates, so saving the same cal set twice gives the same
       interpolation     null, or {from, max_step_deg, coarse, ...} for an interpolated set
       figures           plausibility and residual figures (JSON values)
       terms             names of the error-term arrays, e.g. "S11.directivity"
-      raw               names of the raw standard readings, e.g. "open.S11"
+      raw               names of the raw standard readings, e.g. "open.S11"; a load's
+                        second reading without reconnecting (trace noise) is
+                        "<load>.<param>-again", e.g. "load.S11-again"
 
 - ``freq_hz.npy`` (float64), ``terms/<name>.npy`` and ``raw/<name>.npy`` (complex128):
   NumPy ``.npy`` arrays (no pickles).
@@ -54,6 +56,7 @@ from drivers.yamlnode import one_line, show
 
 FORMAT = "sweepd-calset"
 VERSION = 1
+AGAIN = "-again"  # suffix of a load's second raw reading, taken without reconnecting
 SUFFIX = ".calset"
 HEADER = "header.json"
 _ZIP_DATE = (1980, 1, 1, 0, 0, 0)

@@ -23,6 +23,7 @@ from acquire.calibration import (
     CalSet,
     method,
 )
+from acquire.calibration.calset import AGAIN
 from acquire.errors import CalError, StorageError
 from acquire.guided.backends import STEP, Backend, Prompt
 from acquire.guided.connectors import Connector, FixtureError
@@ -164,7 +165,11 @@ class Procedure(Finishing):
         self._grid(sweep.freq_hz)
         if self.partial.status.get(step.name) == REPEAT:
             self.retried.add(step.name)
-        self.partial.readings[step.name] = {p: np.array(sweep.param(p)) for p in step.params}
+        readings = {p: np.array(sweep.param(p)) for p in step.params}
+        if step.reads_twice:
+            again = self.s.session.measure(calibration_step=step.name + AGAIN)
+            readings[step.reflection + AGAIN] = np.array(again.param(step.reflection))
+        self.partial.readings[step.name] = readings
         self.partial.measured_utc[step.name] = utc_text()
         self.partial.status[step.name] = DONE
         self.last_measured = index

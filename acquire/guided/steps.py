@@ -16,6 +16,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from acquire.calibration import CalKit, method
+from acquire.calibration.calset import AGAIN
 from acquire.errors import CalError
 
 PORT = 1  # the source port every one-port and one-path method calibrates
@@ -55,6 +56,12 @@ class Step:
     def reflection(self) -> str:
         """The reflection parameter of the port this standard sits at."""
         return "S22" if self.port == 2 else REFLECTION
+
+    @property
+    def reads_twice(self) -> bool:
+        """A load at a port is read twice without reconnecting: the difference of the two
+        readings is trace noise alone (``acquire.uncertainty.budget.noise_from_repeat``)."""
+        return self.kind == "load" and self.port in (1, 2)
 
     @property
     def solve_params(self) -> tuple[str, ...]:
@@ -109,4 +116,7 @@ def flat_readings(steps: tuple[Step, ...], held: Mapping[str, Mapping[str, np.nd
         for param in step.solve_params:
             if step.name in held and param in held[step.name]:
                 out[f"{step.standard}.{param}"] = held[step.name][param]
+        again = step.reflection + AGAIN
+        if step.reads_twice and again in held.get(step.name, {}):
+            out[f"{step.standard}.{again}"] = held[step.name][again]
     return out

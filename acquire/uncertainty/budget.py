@@ -12,7 +12,9 @@ the Monte Carlo both assume (JCGM 100:2008, GUM, 4.3.7 for bounds taken as recta
   reading over repeated connect/disconnect, site data); applies to each standard during
   the calibration and to the device. Normal, circular.
 - ``noise``: RMS |ΔΓ| of trace noise at the reference plane, one value or one per
-  point (estimated from the calibration's load reading, see ``noise_from_load``);
+  point (estimated from the calibration's two readings of the load, see
+  ``noise_from_repeat``, or from its one reading for older cal sets, see
+  ``noise_from_load``, which can overstate it on coarse sweeps of long cables);
   applies to every reading. Normal, circular.
 - ``drift_per_hour`` × the calibration's age: RMS |ΔΓ| of drift since the calibration
   (site data, e.g. from the soak history). Normal, circular.
@@ -97,6 +99,23 @@ def noise_from_load(raw_load: np.ndarray, tracking: np.ndarray) -> float | None:
     mean_sq = float(np.median(np.abs(d) ** 2)) / np.log(2.0)
     t = np.abs(np.asarray(tracking, np.complex128))
     return float(np.sqrt(mean_sq / 70.0) / np.median(t))
+
+
+def noise_from_repeat(first: np.ndarray, second: np.ndarray, tracking: np.ndarray
+                      ) -> float | None:
+    """RMS trace noise at the reference plane, from two readings of the same load taken
+    one after the other without reconnecting (common practice: what repeats is the
+    standard and the error box, so the difference is noise alone, whatever the trace's
+    shape). Independent circular noise n in each: E|r1 − r2|² = 2·E|n|²; the median of
+    |d|² of a circular normal d is its mean times ln 2 (robust against a few glitches).
+    Referred to the reference plane through |tracking|. Needs at least 2 points.
+    """
+    d = np.asarray(first, np.complex128) - np.asarray(second, np.complex128)
+    if d.size < 2:
+        return None
+    mean_sq = float(np.median(np.abs(d) ** 2)) / np.log(2.0)
+    t = np.abs(np.asarray(tracking, np.complex128))
+    return float(np.sqrt(mean_sq / 2.0) / np.median(t))
 
 
 def scale_noise(noise: float, *, cal_if_hz: float, if_hz: float, cal_power_dbm: float,

@@ -9,8 +9,9 @@ a one-port sweep corrected by such a cal set gets the one-port model of port 1).
 normalisations leave directivity or source match uncorrected, an uncorrected sweep has
 no budget at all, and a full two-port cal set without the readings its model needs
 (thru, switch terms) cannot be modelled; then the result says why (``unavailable``,
-one line) and carries no points. Trace noise comes from the cal set's raw load reading
-(``budget.noise_from_load``; after a full two-port calibration the larger of the two
+one line) and carries no points. Trace noise comes from the cal set's two readings of
+the load (``budget.noise_from_repeat``), or from its one reading in older cal sets
+(``budget.noise_from_load``); after a full two-port calibration the larger of the two
 ports' figures) scaled to the sweep's IF bandwidth, power and averaging, unless the
 plan states a level; drift grows with the cal set's age.
 """
@@ -25,8 +26,9 @@ from typing import Any
 
 import numpy as np
 
+from acquire.calibration.calset import AGAIN
 from acquire.sweep import Sweep
-from acquire.uncertainty.budget import Budget, noise_from_load, scale_noise
+from acquire.uncertainty.budget import Budget, noise_from_load, noise_from_repeat, scale_noise
 from acquire.uncertainty.decision import SIMPLE, DecisionRule
 from acquire.uncertainty.propagate import STANDARDS, ReflectionUncertainty, reflection_uncertainty
 from acquire.units import format_frequency
@@ -304,7 +306,14 @@ def _budget(rule: DecisionRule, calset: Any, sweep: Sweep, terms: Any, load: str
     budget = replace(rule.budget, cal_age_s=float(sweep.meta.get("cal_age_s") or 0.0))
     if not rule.noise_auto:
         return budget
-    noise = noise_from_load(calset.raw[f"{load}.{param}"], terms.reflection_tracking)
+    again = calset.raw.get(f"{load}.{param}{AGAIN}")
+    if again is not None:
+        noise = noise_from_repeat(calset.raw[f"{load}.{param}"], again,
+                                  terms.reflection_tracking)
+        source = "calibration load read twice"
+    else:
+        noise = noise_from_load(calset.raw[f"{load}.{param}"], terms.reflection_tracking)
+        source = "calibration load reading"
     if noise is None:
         return budget
     st, now = calset.stimulus, sweep.meta.get("stimulus") or {}
@@ -314,4 +323,4 @@ def _budget(rule: DecisionRule, calset: Any, sweep: Sweep, terms: Any, load: str
         if_hz=float(now.get("if_bandwidth_hz", st.if_bandwidth_hz)),
         power_dbm=float(now.get("power_dbm", st.power_dbm)),
         averaging=int(now.get("averaging", st.averaging)))
-    return budget.with_noise(scaled, "calibration load reading")
+    return budget.with_noise(scaled, source)

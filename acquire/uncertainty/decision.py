@@ -20,7 +20,7 @@ A plan chooses the rule in its ``decision:`` section::
         phase_error: 1 deg
         magnitude_error: 0.005
         repeatability: -54 dB  # RMS |dG| of one reconnection
-        noise: auto            # from the calibration's load reading, or a level
+        noise: auto            # from the calibration's two load readings, or a level
         drift_per_hour: 0.0005
         thru_error: 0          # two-port: the thru's |S21| within +/- this (relative)
 
