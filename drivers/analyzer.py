@@ -127,6 +127,7 @@ class Analyzer:
                 except InstrumentError as exc:  # closing anyway; the link may be gone
                     log.debug("%s: measurement cleanup failed: %s", self.resource, exc)
             self._defined = False
+            self._traces.defined_extra = []  # a reopened instrument may have forgotten them
             self.transport.close()
             self._traces.sweep_pending = False
 
@@ -230,9 +231,17 @@ class Analyzer:
         return self._applied
 
     # -- sweeps ----------------------------------------------------------------------
+    @property
+    def reads_switch_terms(self) -> bool:
+        """Whether the dialect declares ``data.switch_terms`` (``sweep`` can read them)."""
+        return bool(self.dialect.switch_terms)
+
     def sweep(self, params: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
         """Trigger one sweep, wait for it and read ``params``.
 
+        ``params`` are S-parameters of the dialect's ``data.traces`` and, when it declares
+        ``data.switch_terms``, the switch terms ``switch.forward`` (a2/b2, port 1 driving)
+        and ``switch.reverse`` (a1/b1, port 2 driving), read as traces of the same sweep.
         Returns ``(freq_hz, data)``: (n,) float64 and (n, len(params)) complex128, one
         column per parameter in the order asked (column-major: each trace is received in
         place). With ``wait: wai`` the trigger, ``*WAI`` and the first trace query travel in

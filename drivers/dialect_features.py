@@ -24,12 +24,14 @@ MAX_DELAY_S = 30.0
 MAX_POLL_INTERVAL_S = 5.0
 
 
-def measurement(node: Node, traces: dict[str, str]) -> MeasurementSpec | None:
-    """``measurement:``: tokens per trace, define / select / cleanup commands."""
+def measurement(node: Node, traces: dict[str, str],
+                switch_terms: dict[str, str] | None = None) -> MeasurementSpec | None:
+    """``measurement:``: tokens per trace (and per switch term, under its reading name
+    ``switch.forward`` / ``switch.reverse``), define / select / cleanup commands."""
     if not node.present:
         return None
     node.mapping(("tokens", "define", "select", "cleanup"), required=("tokens",))
-    tokens = _measurement_tokens(node["tokens"], traces)
+    tokens = _measurement_tokens(node["tokens"], traces, switch_terms or {})
     fields = ("trace", *next(iter(tokens.values())).keys())
 
     def commands(key: str) -> tuple[Template, ...]:
@@ -42,14 +44,17 @@ def measurement(node: Node, traces: dict[str, str]) -> MeasurementSpec | None:
     return MeasurementSpec(define, select, cleanup, tokens)
 
 
-def _measurement_tokens(node: Node, traces: dict[str, str]) -> dict[str, dict[str, str]]:
-    node.mapping(tuple(traces))
-    missing = [name for name in traces if not node[name].present]
-    if missing:
-        node.fail(f"needs tokens for every trace in data.traces; missing {', '.join(missing)}")
+def _measurement_tokens(node: Node, traces: dict[str, str], switch_terms: dict[str, str]
+                        ) -> dict[str, dict[str, str]]:
+    node.mapping((*traces, *switch_terms))
+    for where, names in (("trace in data.traces", traces),
+                         ("switch term in data.switch_terms", switch_terms)):
+        missing = [name for name in names if not node[name].present]
+        if missing:
+            node.fail(f"needs tokens for every {where}; missing {', '.join(missing)}")
     tokens: dict[str, dict[str, str]] = {}
     names: tuple[str, ...] | None = None
-    for trace in traces:
+    for trace in (*traces, *switch_terms):
         entry = node[trace]
         if not isinstance(entry.value, dict) or not entry.value:
             entry.fail("must map token names to tokens, e.g. {number: 1}")
@@ -74,15 +79,19 @@ def token(node: Node) -> str:
     return node.token()
 
 
-def trace_query(node: Node, traces: dict[str, str], spec: MeasurementSpec | None) -> Template:
-    """``data.trace_query``: names the trace unless one trace or a select makes it plain."""
+def trace_query(node: Node, traces: dict[str, str], spec: MeasurementSpec | None,
+                switch_terms: int = 0) -> Template:
+    """``data.trace_query``: names the trace unless one trace or a select makes it plain
+    (``switch_terms``: how many switch-term traces ``data.switch_terms`` adds)."""
     names = tuple(next(iter(spec.tokens.values())).keys()) if spec else ()
     template = node.template(("trace", *names), query=True)
-    if template.fields or len(traces) == 1 or (spec is not None and spec.select):
+    count = len(traces) + switch_terms
+    if template.fields or count == 1 or (spec is not None and spec.select):
         return template
+    where = "data.traces and data.switch_terms list" if switch_terms else "data.traces lists"
     node.fail(
-        "template must use {trace} (or a measurement token) when data.traces lists "
-        f"{len(traces)} traces and no measurement.select is given, got {show(template.text)}"
+        f"template must use {{trace}} (or a measurement token) when {where} "
+        f"{count} traces and no measurement.select is given, got {show(template.text)}"
     )
 
 

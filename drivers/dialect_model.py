@@ -7,7 +7,7 @@ module imports neither, so the three form no cycle.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from drivers.errors import DialectError
@@ -19,6 +19,9 @@ STANDARDS: tuple[str, ...] = ("open", "short", "load", "thru", "device")
 WAIT_MODES: tuple[str, ...] = ("wai", "opc", "poll")
 IDENTITY_FIELDS: tuple[str, ...] = ("maker", "model", "serial", "firmware", "skip")
 SWITCH_REPLIES: tuple[str, ...] = ("flag", "token")
+# The analyzer's switch terms, read as traces when the dialect declares data.switch_terms:
+# a2/b2 with port 1 driving, a1/b1 with port 2 driving (the cal set's raw reading names).
+SWITCH_TERMS: tuple[str, ...] = ("switch.forward", "switch.reverse")
 
 
 @dataclass(frozen=True)
@@ -95,7 +98,9 @@ class MeasurementSpec:
     """Measurements an instrument must define and select before a trace can be read.
 
     ``tokens[S]`` holds the validated tokens of S-parameter ``S`` (e.g. a measurement
-    number and a name); every template may use them, and ``{trace}`` (``data.traces``).
+    number and a name), and of each switch term the dialect declares (``switch.forward``,
+    ``switch.reverse``); every template may use them, and ``{trace}`` (``data.traces``,
+    ``data.switch_terms``).
     """
 
     define: tuple[Template, ...]
@@ -190,6 +195,8 @@ class Dialect:
     quirks: Quirks = Quirks()
     identity_reply: IdentitySpec = IdentitySpec()
     sweep_time_scale: float = 1.0
+    # reading name in SWITCH_TERMS -> trace token; empty when the dialect declares none
+    switch_terms: Mapping[str, str] = field(default_factory=dict)
 
     @property
     def source(self) -> str:
@@ -208,8 +215,12 @@ class Dialect:
         return self.frequency.scale if self.frequency is not None else 1.0
 
     def trace_tokens(self, name: str) -> dict[str, str]:
-        """The placeholders for trace ``name``: ``{trace}`` and its measurement tokens."""
-        tokens = {"trace": self.traces[name]}
+        """The placeholders for trace ``name`` (an S-parameter of ``data.traces`` or a
+        switch term of ``data.switch_terms``): ``{trace}`` and its measurement tokens."""
+        token = self.traces.get(name) or self.switch_terms.get(name)
+        if token is None:
+            raise DialectError(f"{self.source}: no trace token for {name}")
+        tokens = {"trace": token}
         if self.measurement is not None:
             tokens.update(self.measurement.tokens[name])
         return tokens

@@ -17,6 +17,7 @@ from drivers.dialect_model import (
     SETTING_NAMES,
     STANDARDS,
     SWITCH_REPLIES,
+    SWITCH_TERMS,
     WAIT_MODES,
     ByteOrders,
     DataFormat,
@@ -33,6 +34,7 @@ from drivers.templates import Template
 from drivers.yamltext import load_yaml_file
 
 FIXABLE_SETTINGS = ("power", "if_bandwidth")
+SWITCH_TERM_KEYS = ("forward", "reverse")  # data.switch_terms keys, in SWITCH_TERMS order
 TERMINATORS = ("\n", "\r\n", "\r")
 TOP_KEYS = (
     "dialect",
@@ -73,7 +75,8 @@ def parse_dialect(raw: Any, path: Path) -> Dialect:
     formats, format_query, byte_orders = _data_formats(root["data"])
     data = root["data"]
     traces = _traces(data["traces"])
-    measurement = features.measurement(root["measurement"], traces)
+    switch_terms = _switch_terms(data["switch_terms"], traces)
+    measurement = features.measurement(root["measurement"], traces, switch_terms)
     errors = root["errors"].mapping(("query", "none_code", "max_entries"), required=("query",))
     return Dialect(
         name=name,
@@ -90,8 +93,10 @@ def parse_dialect(raw: Any, path: Path) -> Dialect:
         format_query=format_query,
         byte_orders=byte_orders,
         layout=(layout := data["layout"].text(choices=LAYOUTS)),
-        trace_query=features.trace_query(data["trace_query"], traces, measurement),
+        trace_query=features.trace_query(data["trace_query"], traces, measurement,
+                                         len(switch_terms)),
         traces=traces,
+        switch_terms=switch_terms,
         frequency=features.frequency(data["frequency"], layout),
         **trigger,
         error_query=errors["query"].template(query=True),
@@ -208,7 +213,8 @@ def _fixed_setting(entry: Node, name: str) -> SettingSpec:
 
 def _data_formats(node: Node) -> tuple[tuple[DataFormat, ...], Template | None, ByteOrders | None]:
     node.mapping(
-        ("formats", "format_query", "byte_order", "layout", "trace_query", "traces", "frequency"),
+        ("formats", "format_query", "byte_order", "layout", "trace_query", "traces", "frequency",
+         "switch_terms"),
         required=("formats", "layout", "trace_query", "traces"),
     )
     entries = node["formats"].elements()
@@ -263,6 +269,25 @@ def _traces(node: Node) -> dict[str, str]:
     if not node.value:
         node.fail(f"must map at least one of {', '.join(S_PARAMETERS)} to a trace token")
     return {name: node[name].token("trace token") for name in S_PARAMETERS if node[name].present}
+
+
+def _switch_terms(node: Node, traces: dict[str, str]) -> dict[str, str]:
+    """``data.switch_terms``: the trace tokens of the two switch terms (optional)."""
+    if not node.present:
+        return {}
+    node.mapping(SWITCH_TERM_KEYS, required=SWITCH_TERM_KEYS)
+    if set(traces) != set(S_PARAMETERS):
+        node.fail("needs data.traces to list all of S11, S21, S12, S22 (switch terms belong "
+                  "to an analyzer that drives each port in turn)")
+    terms: dict[str, str] = {}
+    seen = {token.upper(): f"data.traces.{name}" for name, token in traces.items()}
+    for key, name in zip(SWITCH_TERM_KEYS, SWITCH_TERMS, strict=True):
+        token = node[key].token("trace token")
+        if token.upper() in seen:
+            node[key].fail(f"trace token {token!r} is already the token of {seen[token.upper()]}")
+        seen[token.upper()] = f"data.switch_terms.{key}"
+        terms[name] = token
+    return terms
 
 
 def _switch(node: Node) -> SwitchSpec:

@@ -2,6 +2,12 @@
 
 Each trace is received straight into its column of the result (in place for REAL,64
 re/im pairs in the host's byte order), so a sweep costs one buffer per trace.
+
+Besides the S-parameters of ``data.traces``, a sweep may read the analyzer's switch terms
+(``switch.forward``, ``switch.reverse``) when the dialect declares ``data.switch_terms``:
+they are traces like the others (same query, format, layout). Where the dialect defines
+measurements, a switch term's measurement is defined only when it is first asked for
+(before the sweep's trigger), and removed on close with the others.
 """
 
 from __future__ import annotations
@@ -15,7 +21,7 @@ import numpy as np
 from drivers.blocks import VALUE_SIZE, check_finite, decode_ascii, decode_binary, surely_finite
 from drivers.conversation import Conversation
 from drivers.deadline import Deadline
-from drivers.dialect_model import Dialect, FrequencyAxis, PollSpec
+from drivers.dialect_model import SWITCH_TERMS, Dialect, FrequencyAxis, PollSpec
 from drivers.errors import BlockError, DialectError, InstrumentTimeout, ReplyError
 from drivers.format_choice import FormatChoice
 from drivers.layouts import FREQ_PREFIX, split_frequency, to_complex, values_per_point
@@ -41,10 +47,12 @@ class TraceReader:
         self._commands: dict[str, tuple[tuple[str, ...], str, str]] = {}
         self._grid: tuple[Stimulus, np.ndarray] | None = None
         self._trace_axis: np.ndarray | None = None  # frequencies sent inside the last trace
+        self.defined_extra: list[str] = []  # switch terms whose measurement is defined
 
     def sweep(self, params: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
         """Trigger one sweep, wait for it and read ``params`` (see ``Analyzer.sweep``)."""
         names = self.check_params(params)
+        self._define_extra(names)
         points = self.applied().points
         data = np.empty((len(names), points), dtype=np.complex128)
         first = 0
@@ -77,6 +85,7 @@ class TraceReader:
     def read_traces(self, params: Sequence[str]) -> tuple[np.ndarray, np.ndarray]:
         """Read ``params`` from the last sweep (after ``trigger``); same shapes as ``sweep``."""
         names = self.check_params(params)
+        self._define_extra(names)
         points = self.applied().points
         data = np.empty((len(names), points), dtype=np.complex128)
         for name, row in zip(names, data, strict=True):
@@ -94,6 +103,13 @@ class TraceReader:
         if not names:
             raise DialectError(f"{dialect.source}: no S-parameters asked for")
         for name in names:
+            if name in SWITCH_TERMS:
+                if name not in dialect.switch_terms:
+                    raise DialectError(
+                        f"{dialect.source}: data.switch_terms is not given, so the "
+                        f"analyzer's switch terms ({name}) cannot be read"
+                    )
+                continue
             if name not in S_PARAMETERS:
                 raise DialectError(
                     f"not an S-parameter: {name!r}; known: {', '.join(S_PARAMETERS)}"
@@ -122,17 +138,32 @@ class TraceReader:
         return pair
 
     def define_measurements(self) -> None:
-        """Send the dialect's define commands once for every trace it lists."""
+        """Send the dialect's define commands once for every trace of ``data.traces``
+        (switch terms are defined when first asked for, see ``_define_extra``)."""
         spec = self.talk.dialect.measurement
-        self._per_trace(spec.define if spec else (), self.talk.send_setting)
+        self.defined_extra = []  # defined again when next asked for (safe after a preset)
+        self._per_trace(self.talk.dialect.traces, spec.define if spec else (),
+                        self.talk.send_setting)
 
     def cleanup_measurements(self) -> None:
-        """Send the dialect's cleanup commands for every trace (on close)."""
+        """Send the dialect's cleanup commands for every trace defined (on close)."""
         spec = self.talk.dialect.measurement
-        self._per_trace(spec.cleanup if spec else (), self.talk.write)
+        names = [*self.talk.dialect.traces, *self.defined_extra]
+        self.defined_extra = []
+        self._per_trace(names, spec.cleanup if spec else (), self.talk.write)
 
-    def _per_trace(self, templates: tuple[Template, ...], send: Callable[[str], None]) -> None:
-        for name in self.talk.dialect.traces if templates else ():
+    def _define_extra(self, names: Sequence[str]) -> None:
+        """Define the measurement of each switch term in ``names`` not yet defined."""
+        spec = self.talk.dialect.measurement
+        if spec is None or not spec.define:
+            return
+        new = [n for n in names if n in SWITCH_TERMS and n not in self.defined_extra]
+        self._per_trace(new, spec.define, self.talk.send_setting)
+        self.defined_extra += new
+
+    def _per_trace(self, names: Sequence[str], templates: tuple[Template, ...],
+                   send: Callable[[str], None]) -> None:
+        for name in names if templates else ():
             tokens = trace_tokens(self.talk.dialect, name)
             for template in templates:
                 send(template.render(**tokens))

@@ -16,6 +16,12 @@ per-component sigma σ = √(10^(−90/10)/2) · 10^(−P/20) · √(IFBW / 1 kH
 (receiver noise floor −90 dB at 0 dBm and 1 kHz; noise power ∝ bandwidth / source power,
 averaging N sweeps divides the variance by N: the √ laws, common practice). Averaging
 N sweeps is simulated by one sweep with that reduced sigma.
+
+The switch terms a2/b2 and a1/b1 (``switch_readings``) are wave ratios read in the same
+sweep: the same receiver noise, relative to the received wave b2 (b1), whose level is the
+raw |S21| (|S12|) of what the fixture presents. With a thru in place the readings are good;
+with nothing joining the ports they are mostly noise, as on an analyzer (which is why
+they are read with the thru connected; common practice).
 """
 
 from __future__ import annotations
@@ -192,6 +198,27 @@ class Bench:
                      ) -> tuple[np.ndarray, np.ndarray]:
         """The switch terms (Γf = a2/b2, Γr = a1/b1) at ``freq_hz``, noise-free."""
         return switch_terms(self.error_terms(freq_hz, disturbed))
+
+    def switch_readings(self, freq_hz: np.ndarray, raw: np.ndarray, power_dbm: float = 0.0,
+                        if_bandwidth_hz: float = 1e3, averaging: int = 1,
+                        output: bool = True) -> np.ndarray:
+        """The switch terms (n, 2) = (a2/b2, a1/b1) as read in the sweep that gave ``raw``
+        (its (n, 2, 2) raw S sets the received level; see the module docstring)."""
+        f = _grid(freq_hz)
+        with self._lock:
+            dist = self._disturbance
+            sigma = self.noise_sigma(power_dbm, if_bandwidth_hz, averaging)
+            noise = None
+            if sigma > 0:
+                noise = sigma * (self._rng.standard_normal((f.shape[0], 2))
+                                 + 1j * self._rng.standard_normal((f.shape[0], 2)))
+        out = np.zeros((f.shape[0], 2), dtype=np.complex128)
+        if output:
+            out[:, 0], out[:, 1] = switch_terms(self._terms(f, dist))
+        if noise is not None:
+            level = np.abs(np.stack([raw[:, 1, 0], raw[:, 0, 1]], axis=1))
+            out += noise / np.maximum(level, sigma)
+        return out
 
     def standard(self, name: str, freq_hz: np.ndarray) -> np.ndarray:
         """What the fixture presents (n, 2, 2) for a standard, from the cal kit file."""

@@ -3,7 +3,9 @@
 ``*IDN?`` → ``sweepd-sim,generic-2port,SIM0001,1.0``; replies end in LF. Frequency
 coupling: STARt above STOP pushes STOP up (and the reverse); CENTer keeps the span and
 SPAN keeps the centre, both clipped to 10 kHz..20 GHz. ``:ROUTe:CLOSe (@n)`` drives the
-automatic standard switch: 1 open, 2 short, 3 load, 4 thru, 5 device.
+automatic standard switch: 1 open, 2 short, 3 load, 4 thru, 5 device. ``:TRACe:DATA?``
+also serves the switch terms of the last sweep under trace names of our own, ``TERMF``
+(a2/b2, port 1 driving) and ``TERMR`` (a1/b1, port 2 driving).
 """
 
 from __future__ import annotations
@@ -21,7 +23,10 @@ from simulators.scpi_tree import CommandTree
 IDENTITY = "sweepd-sim,generic-2port,SIM0001,1.0"
 TERMINATOR = b"\n"
 F_MIN, F_MAX = 10e3, 20e9
-TRACES = {"S11": (0, 0), "S21": (1, 0), "S12": (0, 1), "S22": (1, 1)}
+# trace name -> raw S (row, col), or the switch term read with the sweep: TERMF = a2/b2
+# (port 1 driving), TERMR = a1/b1 (port 2 driving); names of our own, not SCPI's
+TRACES: dict[str, tuple[int, int] | int] = {"S11": (0, 0), "S21": (1, 0), "S12": (0, 1),
+                                            "S22": (1, 1), "TERMF": 0, "TERMR": 1}
 SWITCH = {1: "open", 2: "short", 3: "load", 4: "thru", 5: "device"}
 
 
@@ -200,8 +205,7 @@ def _add_trace(tree: CommandTree, core: AnalyzerCore) -> None:
         key = (name, st.data_format, st.data_width, st.byte_order, short is not None)
         payload = data.replies.get(key)
         if payload is None:
-            row, col = TRACES[name]
-            values = data.raw[:, row, col]
+            values = core.values(data, TRACES[name])
             if short is not None:
                 values = values[:-1]
             numbers = interleaved(values)

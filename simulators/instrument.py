@@ -64,13 +64,19 @@ class Settings:
 
 @dataclass
 class SweepData:
-    """One finished (or running) sweep; ``replies`` caches encoded answers."""
+    """One finished (or running) sweep; ``replies`` caches encoded answers.
+
+    ``levels`` are the sweep's (power dBm, IF bandwidth Hz, averaging, output on);
+    ``switch`` the switch terms read with it (n, 2), made when first asked for.
+    """
 
     freq_hz: np.ndarray
     raw: np.ndarray
     index: int
     ready_at: float
     replies: dict[tuple, bytes] = field(default_factory=dict)
+    levels: tuple[float, float, int, bool] = (0.0, 1e3, 1, True)
+    switch: np.ndarray | None = None
 
 
 class AnalyzerCore:
@@ -218,9 +224,9 @@ class AnalyzerCore:
         data = self._frozen.get(key) if self.frozen else None
         if data is None:
             freq = np.linspace(s.start_hz, s.stop_hz, s.points)
-            raw = self.bench.sweep(freq, s.power_dbm, s.ifbw_hz,
-                                   s.avg_count if s.avg_on else 1, s.output_on)
-            data = SweepData(freq, raw, self.sweep_count, 0.0)
+            levels = (s.power_dbm, s.ifbw_hz, s.avg_count if s.avg_on else 1, s.output_on)
+            raw = self.bench.sweep(freq, *levels)
+            data = SweepData(freq, raw, self.sweep_count, 0.0, levels=levels)
             if self.frozen:
                 if len(self._frozen) > 16:
                     self._frozen.clear()
@@ -242,6 +248,15 @@ class AnalyzerCore:
         if time.monotonic() < data.ready_at:
             raise ScpiError(-230, "sweep in progress")
         return data
+
+    def values(self, data: SweepData, source: tuple[int, int] | int) -> np.ndarray:
+        """One trace of ``data``: raw S at (row, col), or switch term 0 (a2/b2, port 1
+        driving) or 1 (a1/b1, port 2 driving), read with that sweep."""
+        if isinstance(source, tuple):
+            return data.raw[:, source[0], source[1]]
+        if data.switch is None:
+            data.switch = self.bench.switch_readings(data.freq_hz, data.raw, *data.levels)
+        return data.switch[:, source]
 
     def has_data(self) -> bool:
         return not self._stale and self._data is not None

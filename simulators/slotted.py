@@ -1,7 +1,8 @@
 """The ``slotted`` personality: measurement slots, polling, big-endian blocks, CR LF.
 
 An invented command tree unlike the other two. A trace is read from a measurement slot:
-``SLOT<n>:DEFine S21`` binds slot n (1..4) to an S-parameter, ``SLOT:SELect <n>`` makes
+``SLOT<n>:DEFine S21`` binds slot n (1..6) to an S-parameter (or to a switch term of the
+sweep: ``A2B2`` with port 1 driving, ``A1B1`` with port 2 driving), ``SLOT:SELect <n>`` makes
 it the active one, and ``FETCh:SLOT? <n>`` returns its data only while slot n is defined
 and selected (else −221). ``ACQuire:SINGle`` starts a sweep; completion is seen by
 polling ``ACQuire:BUSY?`` (1 while sweeping, 0 when done) or ``*ESR?`` bit 0 after
@@ -32,8 +33,11 @@ from simulators.scpi_tree import CommandTree
 IDENTITY = "sweepd-sim/slotted-2port/SIM0003/0.9"
 TERMINATOR = b"\r\n"
 PRESET_S = 0.040
-SLOTS = 4
-PARAMETERS = {"S11": (0, 0), "S21": (1, 0), "S12": (0, 1), "S22": (1, 1)}
+SLOTS = 6
+# what a slot can measure: raw S (row, col), or a switch term: A2B2 (port 1 driving),
+# A1B1 (port 2 driving)
+PARAMETERS: dict[str, tuple[int, int] | int] = {"S11": (0, 0), "S21": (1, 0), "S12": (0, 1),
+                                                "S22": (1, 1), "A2B2": 0, "A1B1": 1}
 PATHS = {"OPEN": "open", "SHORT": "short", "LOAD": "load", "THRU": "thru", "DUT": "device"}
 FORMATS = {"REAL32": ("REAL", 32), "REAL64": ("REAL", 64), "TEXT": ("ASC", 64)}
 
@@ -182,8 +186,7 @@ def _slot_data(core: AnalyzerCore, call: Call, parameter: str) -> Reply:
     key = ("slot", parameter, st.data_format, st.data_width, short is not None)
     payload = data.replies.get(key)
     if payload is None:
-        row, col = PARAMETERS[parameter]
-        values = data.raw[:, row, col]
+        values = core.values(data, PARAMETERS[parameter])
         numbers = interleaved(values[:-1] if short is not None else values)
         if st.data_format == "ASC":
             payload = ascii_list(numbers)

@@ -7,7 +7,9 @@ old settings, so its dialect sends ``*OPC?`` after each setting. ``RECeiver:WIDT
 rounded to the nearest step of a 1-2-5 series (read it back). A settings change does not
 invalidate the last sweep: it stays readable until the next ``MEASure:RUN``, and
 ``MEASure:AXIS?`` tells which frequencies it has. ``MEASure:RUN`` with LOW
-above HIGH (and more than one point) queues −221 and does not sweep.
+above HIGH (and more than one point) queues −221 and does not sweep. ``MEASure:VALues?``
+also answers the switch terms of the last sweep: ``TERM2`` (a2/b2 at port 2 while port 1
+drives) and ``TERM1`` (a1/b1 at port 1 while port 2 drives).
 """
 
 from __future__ import annotations
@@ -26,7 +28,10 @@ from simulators.scpi_tree import CommandTree
 IDENTITY = "sweepd-sim,tabletop-2port,SIM0002,2.3"
 TERMINATOR = b"\r\n"
 SETTLE_S = 0.025
-TRACES = {"REFL1": (0, 0), "TRANS21": (1, 0), "TRANS12": (0, 1), "REFL2": (1, 1)}
+# TERM2: a2/b2 at port 2's termination while port 1 drives; TERM1: a1/b1 the other way
+TRACES: dict[str, tuple[int, int] | int] = {"REFL1": (0, 0), "TRANS21": (1, 0),
+                                            "TRANS12": (0, 1), "REFL2": (1, 1),
+                                            "TERM2": 0, "TERM1": 1}
 STANDARDS = {"OPEN": "open", "SHORT": "short", "LOAD": "load", "THRU": "thru", "DUT": "device"}
 WIDTHS = sorted(m * 10.0**e for e in range(7) for m in (1, 2, 5) if m * 10.0**e <= 1e6)
 
@@ -111,8 +116,7 @@ def _add_measure(tree: CommandTree, core: AnalyzerCore) -> None:
         key = (name, short is not None)
         payload = data.replies.get(key)
         if payload is None:
-            row, col = TRACES[name]
-            trace = data.raw[:, row, col]
+            trace = core.values(data, TRACES[name])
             payload = db_deg_pairs(trace[:-1] if short is not None else trace)
             if short is None:
                 data.replies[key] = payload
