@@ -2,6 +2,8 @@
 turned into a ``Sweep`` record with full metadata.
 
 Callers ask the session, never its analyzer or transport: ``measure`` (one raw sweep),
+``measure_with`` (one raw sweep plus extra readings of the same sweep, such as the
+analyzer's switch terms; ``reads_switch_terms`` says whether the dialect has them),
 ``identity_text``, ``applied`` (the stimulus the instrument accepted), ``is_open``,
 ``reconnect``, ``settings_lost`` and ``reconfigure`` (after a fault or a restart),
 ``check_errors``, and ``switch_name`` / ``select_standard`` (the analyzer's standard switch).
@@ -11,6 +13,7 @@ from __future__ import annotations
 
 import logging
 import time
+from collections.abc import Sequence
 from dataclasses import asdict
 from typing import Any
 
@@ -95,6 +98,11 @@ class Session:
         return self._analyzer.transport.is_open
 
     @property
+    def reads_switch_terms(self) -> bool:
+        """Whether the dialect declares ``data.switch_terms`` (see ``measure_with``)."""
+        return self._analyzer.reads_switch_terms
+
+    @property
     def switch_name(self) -> str | None:
         """The dialect's name when the analyzer has a standard switch, else None."""
         return self.dialect.name if self.dialect.switch is not None else None
@@ -128,7 +136,23 @@ class Session:
         started = utc_now()
         t0 = time.perf_counter()
         freq, data = self._analyzer.sweep(self.plan.measure)
-        duration = time.perf_counter() - t0
+        return self._record(freq, data, started, time.perf_counter() - t0, serial, meta)
+
+    def measure_with(self, extra: Sequence[str], serial: str = "", **meta: Any
+                     ) -> tuple[Sweep, dict[str, np.ndarray]]:
+        """One raw sweep as ``measure`` gives it, plus the ``extra`` readings of the same
+        sweep (``switch.forward``, ``switch.reverse``: the analyzer's switch terms, when
+        the dialect declares ``data.switch_terms``), each an (n,) complex array."""
+        started = utc_now()
+        t0 = time.perf_counter()
+        count = len(self.plan.measure)
+        freq, data = self._analyzer.sweep([*self.plan.measure, *extra])
+        sweep = self._record(freq, data[:, :count], started, time.perf_counter() - t0,
+                             serial, meta)
+        return sweep, {name: data[:, count + i].copy() for i, name in enumerate(extra)}
+
+    def _record(self, freq: np.ndarray, data: np.ndarray, started: Any, duration: float,
+                serial: str, meta: dict[str, Any]) -> Sweep:
         return Sweep(
             freq,
             assemble_matrix(data, self.plan.ports),

@@ -3,9 +3,10 @@
 Written after every measurement as ``<cal dir>/<plan>.partial-cal`` (replaced atomically;
 never a ``.calset``, so nothing ever applies it to a sweep) and removed once the cal set
 is saved. A ZIP archive like a cal set: ``header.json``, ``freq_hz.npy`` (float64) and
-``raw/<step>.<param>.npy`` (complex128); no pickles. Header keys: format
-``sweepd-partial-cal``, version 1, plan, method, instrument, stimulus, kit_name,
-kit_sha256, updated_utc and steps {name: {status, measured_utc}}.
+``raw/<step>.<param>.npy`` (complex128; a param may hold a dot itself, as the switch
+terms ``switch.forward`` and ``switch.reverse`` of an unknown-thru step do); no pickles.
+Header keys: format ``sweepd-partial-cal``, version 1, plan, method, instrument,
+stimulus, kit_name, kit_sha256, updated_utc and steps {name: {status, measured_utc}}.
 
 A partial file is resumed only on the same plan, method, instrument, stimulus and kit
 file, within the plan's maximum cal age; otherwise resuming is refused with the reason.
@@ -147,8 +148,8 @@ def load_partial(path: Path) -> Partial:
             for name in zf.namelist():
                 if not (name.startswith("raw/") and name.endswith(".npy")):
                     continue
-                step, _, param = name[4:-4].rpartition(".")
-                if step not in partial.readings:
+                step, param = _step_and_param(name[4:-4], partial.readings)
+                if not step:
                     raise CalError(f"{where}: member {name} belongs to no listed step")
                 arr = read_npy(zf.read(name), name, np.complex128, points)
                 partial.readings[step][param] = np.asarray(arr, np.complex128)
@@ -165,6 +166,13 @@ def load_partial(path: Path) -> Partial:
         detail = " ".join(str(exc).split())[:120]
         raise CalError(f"{where}: damaged or unreadable ({type(exc).__name__}: {detail})") \
             from None
+
+
+def _step_and_param(stem: str, steps: Mapping[str, Any]) -> tuple[str, str]:
+    """``<step>.<param>`` split after the longest listed step name (a reading's name may
+    hold a dot itself: ``thru.switch.forward``); ``("", "")`` when no step fits."""
+    step = max((s for s in steps if stem.startswith(f"{s}.")), key=len, default="")
+    return step, stem[len(step) + 1:] if step else ""
 
 
 def readings_fit(partial: Partial, steps: Mapping[str, tuple[str, ...]], points: int) -> str:

@@ -148,6 +148,8 @@ class Procedure(Finishing):
             lines.append(f"Enter connects the {step.label} standard and measures it.")
         if step.kind == "thru":
             lines.append("The thru joins port 1 and port 2 at their reference planes.")
+        if step.extra:
+            lines.append("The analyzer's switch terms are read with it.")
         action = self.s.backend.ask(Prompt(STEP, self._title(index), tuple(lines),
                                            self._keys("Enter = measure"),
                                            self.failures.get(step.name, 0) + 1, self.problem))
@@ -161,11 +163,16 @@ class Procedure(Finishing):
         position = step.kind if action.connect is None else action.connect
         if not self._connect(position, step.name):
             return
-        sweep = self.s.session.measure(calibration_step=step.name)
+        extra: dict[str, np.ndarray] = {}
+        if step.extra:  # the switch terms, read in the same sweep
+            sweep, extra = self.s.session.measure_with(step.extra, calibration_step=step.name)
+        else:
+            sweep = self.s.session.measure(calibration_step=step.name)
         self._grid(sweep.freq_hz)
         if self.partial.status.get(step.name) == REPEAT:
             self.retried.add(step.name)
         readings = {p: np.array(sweep.param(p)) for p in step.params}
+        readings.update(extra)
         if step.reads_twice:
             again = self.s.session.measure(calibration_step=step.name + AGAIN)
             readings[step.reflection + AGAIN] = np.array(again.param(step.reflection))

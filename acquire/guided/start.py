@@ -72,20 +72,22 @@ def calibrate(plan: Plan, options: Options = Options(), *, stdin: TextIO | None 
                        "in the plan or --switch-command")
     actions = parse_script(options.script) if options.script else ()
     kit = load_kit(spec.kit)
-    steps = build_steps(spec.method, kit, plan.ports, str(plan.source), spec.isolation)
+    session = Session(plan, options.resource)  # loads the dialect; opened below
+    steps = build_steps(spec.method, kit, plan.ports, str(plan.source), spec.isolation,
+                        session.dialect)
     kit.check_range(plan.stimulus.frequencies())
     verify = _verify_spec(options, spec.method, steps)
     cal_dir = cal_dir_for(plan)
     _writable(cal_dir)
     console = Console(stdout, ascii_only=options.ascii_only)
-    with Session(plan, options.resource) as session:
+    with session:
         connector = _connector(prompt, switch_command, session, spec.switch_names)
         backend = _backend(prompt, options, console, stdin, actions)
         fingerprint = Fingerprint(plan.name, spec.method, session.identity_text,
                                   session.applied, kit.name, kit.sha256)
         pfile = partial_path(cal_dir, plan.name)
         partial = _partial(pfile, fingerprint, options.resume, spec.max_age_s,
-                           {s.name: s.params for s in steps}, session.applied.points, console)
+                           {s.name: s.reads for s in steps}, session.applied.points, console)
         previous = (_previous(cal_dir, plan.name, session.identity_text, spec.method)
                     if options.compare_last else None)
         setup = Setup(plan, session, kit, steps, connector, backend, console, cal_dir, partial,
