@@ -13,6 +13,8 @@ import argparse
 from typing import Any
 
 DEFAULT_TIMEOUT_S = 2.0
+SWITCH_WORDS = {"switch.forward": "a2/b2 (port 1 driving)",
+                "switch.reverse": "a1/b1 (port 2 driving)"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -89,6 +91,9 @@ def explain(dialect: Any) -> list[dict[str, str]]:
     rows += _measurement_rows(d)
     rows += [(f"data.traces.{n}", d.trace_query.render(**trace_tokens(d, n)),
               f"reads {n} ({d.layout} pairs per point)") for n in d.traces]
+    rows += [(f"data.switch_terms.{n.split('.', 1)[1]}", d.trace_query.render(
+        **trace_tokens(d, n)), f"reads the switch term {SWITCH_WORDS[n]} for an unknown-thru "
+        "calibration") for n in d.switch_terms]
     axis = d.frequency
     if axis is not None:
         rows += [(f"data.frequency.{k}", t, f"reads the frequency axis ({axis.kind}, "
@@ -124,11 +129,12 @@ def _measurement_rows(d: Any) -> list[tuple[str, Any, str]]:
     if spec is None:
         return []
     rows = []
-    for name in d.traces:
+    for name in (*d.traces, *d.switch_terms):
         tokens = trace_tokens(d, name)
+        when = "before it is first read" if name in d.switch_terms else "at each configure"
         rows += [(f"measurement.{part}[{name}]", t.render(**tokens), purpose)
                  for part, group, purpose in (
-                     ("define", spec.define, "defines the measurement at each configure"),
+                     ("define", spec.define, f"defines the measurement {when}"),
                      ("select", spec.select, "selects it before its trace is read"),
                      ("cleanup", spec.cleanup, "removes it on close"))
                  for t in group]

@@ -5,7 +5,8 @@ Order (safe first): identity; the error queue as found (drained and shown); ever
 the very value it read and read again; each data format and byte order is selected, read
 back, and the one found is restored; one sweep is taken at the present settings and each
 trace (and the frequency axis) is read in ASCII; the switch is set to the standard it
-already had; finally the status is cleared. After every command the error queue is
+already had; finally the status is cleared. The switch terms (``data.switch_terms``) are
+read from the same sweep as the traces. After every command the error queue is
 drained, so each step shows exactly what the instrument said about that line of the file.
 Opening commands are listed but not sent: the dialect has no query to restore what they
 change (they run each time sweepd opens the instrument).
@@ -224,12 +225,12 @@ class Walker:
         self._define("define", "defined for this check")
         self.send("trigger.command", d.trigger.text, note="one sweep at the present settings")
         self._wait()
-        for name in d.traces:
+        for name in (*d.traces, *d.switch_terms):
             tokens = trace_tokens(d, name)
             if d.measurement is not None:
                 for template in d.measurement.select:
                     self.send(f"measurement.select[{name}]", template.render(**tokens))
-            self._count(f"data.traces.{name}", d.trace_query.render(**tokens),
+            self._count(reading_key(name), d.trace_query.render(**tokens),
                         None if points is None else 2 * points)
         self._axis(points)
         self._define("cleanup", "removed again")
@@ -257,7 +258,7 @@ class Walker:
         spec = self.d.measurement
         if spec is None:
             return
-        for name in self.d.traces:
+        for name in (*self.d.traces, *self.d.switch_terms):
             for template in getattr(spec, part):
                 self.send(f"measurement.{part}[{name}]",
                           template.render(**trace_tokens(self.d, name)), note=note)
@@ -330,6 +331,14 @@ class Walker:
                 "no standard was reported as connected")))
             return
         self.send("switch.set", switch.set.render(standard=current), note="the standard it had")
+
+
+def reading_key(name: str) -> str:
+    """The key of the file that gives a reading's token: ``data.traces.S21``, or
+    ``data.switch_terms.forward`` for the switch term ``switch.forward``."""
+    if name.startswith("switch."):
+        return f"data.switch_terms.{name.split('.', 1)[1]}"
+    return f"data.traces.{name}"
 
 
 def _same(before: str, after: str, spec: SettingSpec | None) -> bool:
