@@ -203,3 +203,33 @@ def test_the_switch_readings_are_kept_for_resume(tmp_path: Path) -> None:
     assert outcome.exit_code == 0 and not pfile.exists()
     for name in SWITCH_TERMS:
         assert np.array_equal(outcome.calset.raw[name], kept[name])
+
+
+def test_switch_readings_above_one_are_refused_at_the_thru(tmp_path: Path) -> None:
+    """A passive termination reflects at most what it receives: a switch reading with
+    |Γ| ≥ 1 (a dialect pointing at the wrong trace) fails the THRU step; the bench's own
+    switch terms pass."""
+    from acquire.calibration import load_kit
+    from acquire.guided.judge import Judge
+    from acquire.guided.steps import build_steps
+    from drivers.dialect import load_dialect
+    from simulators.errorbox import measure, reference_plane_terms, switch_terms
+
+    kit = load_kit("generic-sma-50")
+    f = grid(101)
+    steps = build_steps(UNKNOWN, kit, 2, dialect=load_dialect("slotted-blocks"))
+    (thru,) = [s for s in steps if s.kind == "thru"]
+    assert thru.extra == SWITCH_TERMS and thru.reads[-2:] == SWITCH_TERMS
+    terms = reference_plane_terms(f)
+    raw = measure(terms, np.tile(np.array([[0, 1], [1, 0]], complex), (f.size, 1, 1)))
+    gf, gr = switch_terms(terms)
+    readings = {f"S{i + 1}{j + 1}": raw[:, i, j] for i in range(2) for j in range(2)}
+    judge = Judge(f, kit, steps)
+    assert judge.readings({"thru": {**readings, SWITCH_TERMS[0]: gf,
+                                    SWITCH_TERMS[1]: gr}}).passed
+    bad = judge.readings({"thru": {**readings, SWITCH_TERMS[0]: gf,
+                                   SWITCH_TERMS[1]: 1.2 * gr / np.abs(gr)}})
+    (finding,) = bad.failures
+    assert finding.check == "switch-terms" and finding.steps == ("thru",)
+    assert finding.message.startswith("on the THRU step the switch term switch.reverse reads "
+                                      "|Γ| = 1.20 at ")

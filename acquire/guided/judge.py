@@ -15,7 +15,9 @@ defines them):
   raw S12 as well as S21).
 
 An isolation step (loads on both ports) must read its transmission below
-``THRU_MIN_DB``: above it, something joins the ports.
+``THRU_MIN_DB``: above it, something joins the ports. The switch terms an unknown-thru
+step reads with its thru are reflections of a passive termination: |Γ| at or above 1 on
+more than the allowed share of points means the dialect points at the wrong traces.
 
 A full two-port reads open, short and load at each port and keeps both reflections of
 every reflect step. Where one port's readings cannot be told apart (the same reading
@@ -40,6 +42,7 @@ from acquire.units import format_frequency
 
 THRU_MIN_DB = -30.0  # common practice: a joined thru reads far above this raw level
 THRU_MAX_S11 = 0.5  # common practice: same limit as the load residual
+SWITCH_MAX = 1.0  # a passive termination reflects at most what it receives
 _REFLECT_KINDS = ("open", "short", "load")
 
 Readings = Mapping[str, Mapping[str, np.ndarray]]  # step -> param -> (F,) raw values
@@ -104,7 +107,8 @@ class Judge:
             if step.name == ISOLATION and step.name in held:
                 found += _isolation(step, held[step.name], figures)
             if not step.is_reflect and step.name in held:
-                found += self._thru(step, held, reflect, figures)
+                thru = self._thru(step, held, reflect, figures)
+                found += thru or self._switch_terms(step, held[step.name], figures)
                 if step.port == 0 and "S22" in step.params:
                     found += self._thru_port2(step, held, reflect2, figures)
         likely = tuple(s for f in found if (s := self._likely(f, reflect)))
@@ -173,6 +177,25 @@ class Judge:
                         f"{format_frequency(float(self.freq[k]))} (limit {THRU_MAX_S11:g}): "
                         "the thru is loose or not connected at port 1; repeat it",
                         float(over.mean()), float(s11[k]), float(self.freq[k]), THRU_MAX_S11)]
+
+    def _switch_terms(self, step: Step, readings: Mapping[str, np.ndarray],
+                      figures: dict[str, Any]) -> list[Finding]:
+        """The switch terms read with the thru are passive reflections (|Γ| < 1)."""
+        for name in step.extra:
+            gamma = np.abs(np.asarray(readings[name]))
+            figures[f"{step.name}_max_{name}"] = float(gamma.max())
+            over = ~(gamma < SWITCH_MAX)
+            if over.mean() <= self.limits.max_fraction:
+                continue
+            k = int(np.argmax(np.where(np.isfinite(gamma), gamma, np.inf)))
+            return [Finding("switch-terms", FAIL, (step.name,),
+                            f"on the {step.label} step the switch term {name} reads |Γ| = "
+                            f"{gamma[k]:.2f} at {format_frequency(float(self.freq[k]))}: no "
+                            "passive termination reflects more than it receives; check the "
+                            "dialect's data.switch_terms, then repeat it",
+                            float(over.mean()), float(gamma[k]), float(self.freq[k]),
+                            SWITCH_MAX)]
+        return []
 
     def _thru_port2(self, step: Step, held: Readings, reflect2: Mapping[str, np.ndarray],
                     figures: dict[str, Any]) -> list[Finding]:
