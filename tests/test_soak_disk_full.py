@@ -9,10 +9,12 @@ import threading
 import time
 from pathlib import Path
 
+import numpy as np
 import pytest
 from disk_support import leave_free, small_disk
 from test_soak_support import check_invariants, holds, journal_rows, soak_plan, submit
 
+from acquire.soak.report import _held_spans
 from acquire.soak.spool import Spool
 from acquire.soak.worker import SoakWorker
 from simulators.server import SimServer
@@ -78,3 +80,7 @@ def test_a_held_soak_journals_one_hold_and_resumes_when_space_returns(
     assert kinds.count("disk-full") == len(holds(job)) and kinds.count("disk-ok") >= 1
     after = [r for r in journal_rows(job)[1] if r["seq"] > hold["last_seq"]]
     assert sum(r["state"] == "stored" for r in after) >= 3  # it captured again after it
+    # the report's drift picture hatches each hold where it happened on the time axis
+    drawn = _held_spans([dict(h) for h in holds(job)],
+                        float(job.read_state()["start_epoch"]), np.array([0.0]))
+    assert len(drawn) == len(holds(job)) and all(0 <= a < b for a, b in drawn), drawn

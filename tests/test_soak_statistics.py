@@ -98,7 +98,8 @@ def test_drift_picture_thresholds_events_and_text() -> None:
     panels = [Panel("resonance shift (kHz)", shift / 1e3, 0.8, signed=True),
               Panel("worst in-band SWR", 1.2 + 0 * t, 1.5)]
     events = Events(alarms=[(120.0, "resonance shift")], faults=np.array([50.0, 300.0]),
-                    restarts=np.array([400.0]), missed=np.array([310.0]))
+                    restarts=np.array([400.0]), missed=np.array([310.0]),
+                    held=[(200.0, 260.0)])
     fig = drift_figure(panels, t, events, "soak line-7: drift from the reference")
     FigureCanvasAgg(fig).draw()  # lays the figure out as saving it does
     shift_ax, swr_ax = fig.axes
@@ -113,9 +114,29 @@ def test_drift_picture_thresholds_events_and_text() -> None:
     assert not any("_hz" in w or "_db" in w for w in words)
     legend = " ".join(t.get_text() for t in swr_ax.get_legend().get_texts())
     assert "faults (2)" in legend and "restarts of the daemon (1)" in legend
-    assert "missed sweeps (1)" in legend
+    assert "missed sweeps (1)" in legend and "held for disk space (1)" in legend
+    for ax in fig.axes:  # the hold is a hatched span on every panel, in its place
+        spans = [p for p in ax.patches if p.get_hatch() == "//"]
+        assert len(spans) == 1
+        left, width = spans[0].get_x(), spans[0].get_width()
+        assert (left, left + width) == pytest.approx((200.0 / 60, 260.0 / 60))
     box = fig.bbox
     for text in _texts(fig):
         extent = text.get_window_extent()
         assert box.x0 - 1 <= extent.x0 and extent.x1 <= box.x1 + 1, text.get_text()
         assert box.y0 - 1 <= extent.y0 and extent.y1 <= box.y1 + 1, text.get_text()
+
+
+def test_held_spans_come_from_the_journalled_holds() -> None:
+    """A closed hold spans its start to its end; one still on reaches the last sweep; a
+    row with a broken time is left out rather than breaking the picture."""
+    from acquire.soak.report import _held_spans
+    from acquire.utc import parse_utc
+
+    start = parse_utc("2026-12-03T08:00:00Z").timestamp()
+    holds = [{"started_utc": "2026-12-03T08:10:00Z", "ended_utc": "2026-12-03T08:15:00Z"},
+             {"started_utc": "2026-12-03T08:40:00Z", "ended_utc": None},
+             {"started_utc": "not a time", "ended_utc": None}]
+    t = np.array([0.0, 600.0, 3000.0])
+    assert _held_spans(holds, start, t) == [(600.0, 900.0), (2400.0, 3000.0)]
+    assert _held_spans(holds, 0.0, t) == []

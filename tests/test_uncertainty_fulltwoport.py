@@ -457,7 +457,7 @@ def test_a_model_that_breaks_down_never_stops_the_capture(monkeypatch: pytest.Mo
                                                           ) -> None:
     """A singular solve or a non-finite U inside the model becomes a one-line
     ``unavailable`` (the capture goes on and is stored), never a traceback."""
-    import acquire.uncertainty.fulltwoport as model
+    import acquire.uncertainty.capture as model  # where the capture looks the model up
 
     bench, cal = _bench_calset(DEFINED, 4, "cable-1m")
     bench.connect("device")

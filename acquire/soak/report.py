@@ -86,11 +86,11 @@ def drift_png(job: Job) -> bytes:
     """Only the drift picture of ``job``, as PNG bytes (for the live status page)."""
     import tempfile
 
-    _, spec, state, _, ser, faults, alarms = _gather(job)
+    _, spec, state, run, ser, faults, alarms = _gather(job)
     t_s = _times(ser, spec)
     with tempfile.TemporaryDirectory(prefix="sweepd-drift-") as tmp:
         path = _drift(Path(tmp), ser, spec, t_s, alarms, faults, f"soak {job.id}",
-                      float(state.get("start_epoch") or 0.0))
+                      float(state.get("start_epoch") or 0.0), run.get("holds") or [])
         return path.read_bytes()
 
 
@@ -104,7 +104,7 @@ def write_report(job: Job, folder: Path) -> Report:
     title = f"soak {job.id}"
     pictures = {
         "drift": _drift(folder, ser, spec, t_s, alarms, faults, title,
-                        float(state.get("start_epoch") or 0.0)),
+                        float(state.get("start_epoch") or 0.0), run.get("holds") or []),
         "allan": _allan(folder, ser, spec, t_s, title),
     }
     if deviation is not None and deviation[1].size:
@@ -160,7 +160,7 @@ def _alarm_times(alarms: list[dict[str, Any]], ser: history.Series,
 
 def _drift(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
            alarms: list[dict[str, Any]], faults: list[dict[str, Any]], title: str,
-           start_epoch: float) -> Path:
+           start_epoch: float, holds: list[dict[str, Any]]) -> Path:
     done = ser.done_mask()
     th = spec.alarms
     panels: list[Panel] = []
@@ -194,7 +194,7 @@ def _drift(folder: Path, ser: history.Series, spec: SoakSpec, t_s: np.ndarray,
         alarms=[(t, LABELS.get(m, m)) for t, m in _alarm_times(alarms, ser, t_s)],
         faults=times([f for f in faults if f.get("kind") != "restart"]),
         restarts=times([f for f in faults if f.get("kind") == "restart"]),
-        missed=missed)
+        missed=missed, held=_held_spans(holds, start_epoch, t_s))
     return drift_plot(folder / "drift.png", panels, t_s, events,
                       f"{title}: drift from the reference")
 
@@ -270,6 +270,24 @@ def _facts(job: Job, plan: Any, spec: SoakSpec, run: dict[str, Any], ser: histor
                                                        strict=True) if p and st == "stored"],
     }
     return facts
+
+
+def _held_spans(holds: list[dict[str, Any]], start_epoch: float, t_s: np.ndarray
+                ) -> list[tuple[float, float]]:
+    """Each hold for disk space as (from, to) seconds since the start; a hold still on
+    ends at the last sweep's time (or where it began, if later)."""
+    if not start_epoch:
+        return []
+    last = float(np.nanmax(t_s)) if t_s.size else 0.0
+    spans = []
+    for h in holds:
+        try:
+            begin = _epoch(str(h["started_utc"])) - start_epoch
+            end = _epoch(str(h["ended_utc"])) - start_epoch if h.get("ended_utc") else None
+        except (KeyError, ValueError):
+            continue
+        spans.append((begin, max(begin, last) if end is None else end))
+    return spans
 
 
 def _held_text(holds: list[dict[str, Any]]) -> str:

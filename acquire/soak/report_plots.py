@@ -3,7 +3,7 @@
 - ``drift.png``: the tracked metrics against time since the start with their alarm
   thresholds (both signs for a shift), alarms as dashed vertical lines named in words,
   restarts of the daemon as wide grey lines, faults as crosses and missed sweeps as ticks
-  along the bottom.
+  along the bottom, spans held for disk space hatched.
 - ``allan.png``: the overlapping Allan deviation of the resonance against τ on log-log
   axes, with guide slopes −½ (white noise) and +1 (linear drift) through the first point
   (NIST SP 1065 reads the noise type from these slopes).
@@ -14,7 +14,7 @@
 from __future__ import annotations
 
 import io
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -70,6 +70,7 @@ class Events:
     faults: np.ndarray
     restarts: np.ndarray
     missed: np.ndarray
+    held: list[tuple[float, float]] = field(default_factory=list)  # (from, to): disk holds
 
 
 def drift_plot(path: Path, panels: list[Panel], t_s: np.ndarray, events: Events,
@@ -101,6 +102,9 @@ def drift_figure(panels: list[Panel], t_s: np.ndarray, events: Events, title: st
             ax.axvline(when / factor, color=INK, linestyle=(0, (2, 2)), linewidth=0.9)
         for when in events.restarts:
             ax.axvline(when / factor, color=LIGHT, linestyle="-", linewidth=2.0, alpha=0.7)
+        for start, end in events.held:
+            ax.axvspan(start / factor, end / factor, facecolor=SHADE, edgecolor=LIGHT,
+                       hatch="//", linewidth=0.0, zorder=0)
         _style(ax, panel.label)
     _mark_events(axes, events, factor)
     axes[-1].set_xlabel(xlabel)
@@ -124,7 +128,11 @@ def _mark_events(axes: Any, events: Events, factor: float) -> None:
     if events.alarms:
         bottom.plot([], [], color=INK, linestyle=(0, (2, 2)),
                     label=f"alarms ({len(events.alarms)})")
-    if events.faults.size or events.missed.size or events.alarms or events.restarts.size:
+    if events.held:
+        bottom.fill_between([], [], facecolor=SHADE, edgecolor=LIGHT, hatch="//",
+                            linewidth=0.0, label=f"held for disk space ({len(events.held)})")
+    if (events.faults.size or events.missed.size or events.alarms or events.restarts.size
+            or events.held):
         bottom.legend(loc="upper left", fontsize=8, framealpha=0.9)
     for when, label in events.alarms[:12]:
         axes[0].annotate(label, (when / factor, 0.97), xycoords=("data", "axes fraction"),

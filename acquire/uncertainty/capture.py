@@ -26,11 +26,20 @@ from typing import Any
 
 import numpy as np
 
+from acquire.calibration import load_kit
 from acquire.calibration.calset import AGAIN
+from acquire.errors import CalError
 from acquire.sweep import Sweep
 from acquire.uncertainty.budget import Budget, noise_from_load, noise_from_repeat, scale_noise
 from acquire.uncertainty.decision import SIMPLE, DecisionRule
+from acquire.uncertainty.fullcalset import setup_from_calset
+from acquire.uncertainty.fulltwoport import full_two_port_uncertainty
 from acquire.uncertainty.propagate import STANDARDS, ReflectionUncertainty, reflection_uncertainty
+from acquire.uncertainty.transmission import (
+    TwoPortSetup,
+    transmission_uncertainty,
+    with_load_match,
+)
 from acquire.units import format_frequency
 
 ONE_PATH = ("one-path-two-port", "enhanced-response")  # the second is the older name
@@ -153,7 +162,6 @@ def cached_kit(path: Path | str) -> Any:
 
 @functools.lru_cache(maxsize=8)
 def _kit(path: str, version: tuple[int, int]) -> Any:
-    from acquire.calibration import load_kit
 
     return load_kit(path)
 
@@ -236,7 +244,6 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
         if calset.method not in ONE_PATH or port != 1 or two is None:
             return unavailable(sweep, f"a {calset.method} calibration of a two-port "
                                       "measurement leaves port 2's load match unknown")
-        from acquire.uncertainty.transmission import with_load_match
 
         unc = with_load_match(unc, sweep, two.load_match)
         s21 = _transmission(sweep, calset, kit, models, budget)
@@ -247,9 +254,6 @@ def sweep_uncertainty(sweep: Sweep, calset: Any | None, kit: Any | None,
 
 def _full_two_port(sweep: Sweep, calset: Any, kit: Any, rule: DecisionRule) -> SweepUncertainty:
     """All four parameters of a two-port sweep after a full two-port calibration."""
-    from acquire.errors import CalError
-    from acquire.uncertainty.fullcalset import setup_from_calset
-    from acquire.uncertainty.fulltwoport import full_two_port_uncertainty
 
     if sweep.ports != 2:
         return unavailable(sweep, f"a {calset.method} calibration models two ports; the sweep "
@@ -276,7 +280,6 @@ def _full_two_port(sweep: Sweep, calset: Any, kit: Any, rule: DecisionRule) -> S
 
 def _transmission(sweep: Sweep, calset: Any, kit: Any, models: dict[str, np.ndarray],
                   budget: Budget) -> Any:
-    from acquire.uncertainty.transmission import TwoPortSetup, transmission_uncertainty
 
     terms = calset.model.transmission.get("S21")
     thru = [n for n in kit.names_of_kind("thru") if f"{n}.S21" in calset.raw]

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 
 from acquire.calibration.twoport import TWO_PORT_PARAMS, TwelveTerms
+from acquire.errors import CalError
 from acquire.uncertainty.fulltwoport import (
     KINDS,
     METHODS,
@@ -69,7 +70,6 @@ def setup_from_calset(sweep: Any, calset: Any, kit: Any) -> FullSetup | str:
 
 def _standard_names(calset: Any, kit: Any) -> dict[str, str] | str:
     """Kind -> the kit standard the cal set used (its figures' list, else its readings)."""
-    from acquire.errors import CalError
 
     listed = calset.figures.get("standards") or [
         n for n in kit.standards if any(k.startswith(f"{n}.") for k in calset.raw)]
