@@ -11,6 +11,7 @@ to the received wave; common practice).
 from __future__ import annotations
 
 import copy
+import re
 from pathlib import Path
 
 import numpy as np
@@ -190,3 +191,31 @@ def test_switch_readings_carry_the_receiver_noise_relative_to_the_received_wave(
     assert 0.9 < spread < 1.1
     good = np.median(np.abs(thru[:, 2:] - truth))
     assert np.median(np.abs(loads[:, 2:] - truth)) > 100 * good
+
+
+@pytest.mark.parametrize(("personality", "dialect", "tokens"), [
+    ("tabletop", "tabletop-ascii", ("MEASure:VALues? TERM2", "MEASure:VALues? TERM1")),
+    ("slotted", "slotted-blocks", ("FETCh:SLOT? 5", "FETCh:SLOT? 6")),
+])
+def test_dialect_check_lists_and_walks_the_switch_terms(
+        capsys: pytest.CaptureFixture, personality: str, dialect: str,
+        tokens: tuple[str, str]) -> None:
+    """Offline the two keys are listed with their commands; on the instrument both are read
+    from the walk's sweep (402 values at its 201 points) and, with measurements, defined
+    and removed again like the others; nothing fails."""
+    from acquire.cli import main
+
+    assert main(["dialect", "check", dialect]) == 0
+    offline = capsys.readouterr().out
+    for key, command in zip(("forward", "reverse"), tokens, strict=True):
+        assert re.search(rf"data\.switch_terms\.{key} +'{re.escape(command)}' +reads the "
+                         "switch term", offline)
+    with SimServer(personality=personality, time_scale=0.0, noise=False) as sim:
+        assert main(["dialect", "check", dialect, "--resource", sim.tcp_resource]) == 0
+    walked = capsys.readouterr().out
+    for key, command in zip(("forward", "reverse"), tokens, strict=True):
+        assert f"ok   data.switch_terms.{key}: sent '{command}' -> '402 values: " in walked
+    if personality == "slotted":
+        assert "ok   measurement.define[switch.forward]: sent 'SLOT5:DEFine A2B2'" in walked
+        assert "ok   measurement.cleanup[switch.reverse]: sent 'SLOT6:DELete'" in walked
+    assert walked.rstrip().endswith("every command worked; the instrument is as it was found")
