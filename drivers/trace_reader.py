@@ -59,13 +59,13 @@ class TraceReader:
         if self.talk.dialect.wait == "wai":
             self.sweep_pending = True
             select, chained, _query = self._command_pair(names[0])
-            self._read_trace(select, chained, data[0])
+            self._read_named(names[0], select, chained, data[0])
             first = 1
         else:
             self.trigger()
         for index in range(first, len(names)):
             select, _chained, query = self._command_pair(names[index])
-            self._read_trace(select, query, data[index])
+            self._read_named(names[index], select, query, data[index])
         return self._frequencies(points), data.T
 
     def trigger(self) -> None:
@@ -90,7 +90,7 @@ class TraceReader:
         data = np.empty((len(names), points), dtype=np.complex128)
         for name, row in zip(names, data, strict=True):
             select, _chained, query = self._command_pair(name)
-            self._read_trace(select, query, row)
+            self._read_named(name, select, query, row)
         return self._frequencies(points), data.T
 
     def check_params(self, params: Sequence[str]) -> list[str]:
@@ -170,6 +170,20 @@ class TraceReader:
 
     def sweep_timeout(self) -> float:
         return self.talk.transport.timeout_s + SWEEP_TIME_MARGIN * self.sweep_time_s
+
+    def _read_named(self, name: str, select: tuple[str, ...], command: str,
+                    row: np.ndarray) -> None:
+        """``_read_trace``; a switch term that cannot be read names its dialect key (an
+        instrument without such a trace answers nothing or an error)."""
+        if name not in SWITCH_TERMS:
+            self._read_trace(select, command, row)
+            return
+        try:
+            self._read_trace(select, command, row)
+        except (InstrumentTimeout, ReplyError) as exc:
+            key = f"data.switch_terms.{name.split('.', 1)[1]}"
+            raise type(exc)(f"{exc} (reading {name}: check {key} in "
+                            f"{self.talk.dialect.source})") from None
 
     def _read_trace(self, select: tuple[str, ...], command: str, row: np.ndarray) -> None:
         """Send ``command`` and read its trace reply into ``row`` (complex128, n points)."""

@@ -21,7 +21,7 @@ from test_dialect import DELETE, GENERIC, TABLETOP, load_error, mutated, write
 
 from drivers.analyzer import Analyzer
 from drivers.dialect import DIALECT_DIR, SWITCH_TERMS, load_dialect
-from drivers.errors import DialectError
+from drivers.errors import DialectError, InstrumentTimeout
 from drivers.stimulus import Stimulus
 from drivers.transport import Transport
 from simulators.bench import noise_sigma
@@ -219,3 +219,19 @@ def test_dialect_check_lists_and_walks_the_switch_terms(
         assert "ok   measurement.define[switch.forward]: sent 'SLOT5:DEFine A2B2'" in walked
         assert "ok   measurement.cleanup[switch.reverse]: sent 'SLOT6:DELete'" in walked
     assert walked.rstrip().endswith("every command worked; the instrument is as it was found")
+
+
+def test_a_switch_term_the_instrument_lacks_names_the_dialect_key(tmp_path: Path) -> None:
+    """The generic personality knows no trace 'XF': it queues an error and answers nothing,
+    and the timeout says which key of the dialect to check."""
+    doc = mutated(GENERIC, TERMS, {"forward": "XF", "reverse": "XR"})
+    path = write(tmp_path, doc, "wrong-tokens.yaml")
+    with SimServer(personality="generic", time_scale=0.0, noise=False) as sim, \
+            Analyzer(sim.tcp_resource, load_dialect(path), timeout_s=0.3) as an:
+        an.configure(STIM)
+        with pytest.raises(InstrumentTimeout) as info:
+            an.sweep(["S11", "switch.forward"])
+    message = str(info.value)
+    assert "\n" not in message and "':TRAC:DATA? XF'" in message
+    assert message.endswith(f"(reading switch.forward: check data.switch_terms.forward in "
+                            f"dialect {path})")
