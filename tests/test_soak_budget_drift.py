@@ -7,6 +7,7 @@ shows the figure in the report, matching the simulator's own noise law and drift
 
 from __future__ import annotations
 
+import io
 import re
 from pathlib import Path
 
@@ -211,17 +212,6 @@ def test_a_short_soak_says_why_there_is_no_figure(tmp_path: Path) -> None:
     validate(report_document(job, report), "report")
 
 
-class _Quiet:
-    def readline(self) -> str:
-        return ""
-
-    def write(self, text: str) -> int:
-        return len(text)
-
-    def flush(self) -> None:
-        pass
-
-
 def test_a_calibrated_soak_reports_the_noise_at_the_reference_plane(tmp_path: Path) -> None:
     # source: the one-port error model Γ = (m − e00)/(e10e01 + e11(m − e00)) (EURAMET
     # cg-12), whose derivative dΓ/dm = (1 − e11·Γ)²/e10e01 carries the simulator's raw
@@ -240,7 +230,7 @@ def test_a_calibrated_soak_reports_the_noise_at_the_reference_plane(tmp_path: Pa
         data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
         plan.write_text(yaml.safe_dump(data, sort_keys=False))
         calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch"),
-                  stdin=_Quiet(), stdout=_Quiet())
+                  stdin=io.StringIO(), stdout=io.StringIO())
         sim.bench.connect("device")
         job = submit(spool, plan)
         assert SoakWorker(job, StopSignal()).run() == "finished"

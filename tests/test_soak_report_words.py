@@ -4,6 +4,7 @@ syntax."""
 
 from __future__ import annotations
 
+import io
 import re
 from pathlib import Path
 
@@ -63,17 +64,6 @@ def test_report_names_instrument_calibration_files_and_faults(tmp_path: Path) ->
         assert f"<h2>{heading}" in page
 
 
-class _Quiet:
-    def readline(self) -> str:
-        return ""
-
-    def write(self, text: str) -> int:
-        return len(text)
-
-    def flush(self) -> None:
-        pass
-
-
 def test_report_names_the_calibration_used(tmp_path: Path) -> None:
     import yaml
 
@@ -87,7 +77,7 @@ def test_report_names_the_calibration_used(tmp_path: Path) -> None:
         data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
         plan.write_text(yaml.safe_dump(data, sort_keys=False))
         calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch"),
-                  stdin=_Quiet(), stdout=_Quiet())
+                  stdin=io.StringIO(), stdout=io.StringIO())
         sim.bench.connect("device")
         job = submit(spool, plan)
         assert SoakWorker(job, StopSignal()).run() == "finished"

@@ -9,6 +9,7 @@ simple acceptance passes (a value on its limit passes) while guarded acceptance
 
 from __future__ import annotations
 
+import io
 import json
 from pathlib import Path
 
@@ -24,17 +25,6 @@ from tests.schema_support import validate
 
 PLANS = library_dir("plans")
 BAND = ["2.40 GHz", "2.50 GHz"]
-
-
-class _Quiet:
-    def readline(self) -> str:
-        return ""
-
-    def write(self, text: str) -> int:
-        return len(text)
-
-    def flush(self) -> None:
-        pass
 
 
 def _plan(tmp_path: Path, name: str, **changes: object) -> Path:
@@ -58,7 +48,7 @@ def test_capture_uncertainty_and_guarded_verdict(tmp_path: Path,
     first = _plan(tmp_path, "patch-line-a")
     with SimServer() as sim:
         calibrate(load_plan(first), Options(resource=sim.tcp_resource, prompt="switch"),
-                  stdin=_Quiet(), stdout=_Quiet())
+                  stdin=io.StringIO(), stdout=io.StringIO())
         sim.bench.connect("device")
         code, summary = _run(first, sim.tcp_resource, capsys)
         assert code == 0
@@ -137,7 +127,7 @@ def test_a_guided_calibration_reads_the_load_twice_for_the_noise(tmp_path: Path)
     with SimServer(noise=True) as sim:
         outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
                                                      prompt="switch"),
-                            stdin=_Quiet(), stdout=_Quiet())
+                            stdin=io.StringIO(), stdout=io.StringIO())
     assert outcome.saved is not None
     calset = CalSet.load(outcome.saved)  # as written to disk
     assert sorted(k for k in calset.raw if k.startswith("load.")) == ["load.S11",

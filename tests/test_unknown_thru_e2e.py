@@ -15,6 +15,7 @@ from __future__ import annotations
 import io
 import json
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
@@ -122,17 +123,10 @@ def test_with_noise_unknown_thru_is_as_good_as_the_defined_thru(tmp_path: Path) 
     dialect = generic_dialect(tmp_path)
     f = grid(201)
     sigma = noise_sigma(-10.0, 1e3, 1)  # the plan's power and IF bandwidth
-    errors = {}
     with SimServer(personality="generic", time_scale=0.0, noise=True, seed=2) as sim:
         sim.bench.set_device("bandpass-2g45")
         terms = sim.bench.error_terms(f)
-        for method in ("two-port", UNKNOWN):
-            plan = plan_file(tmp_path, 201, dialect, method, folder=method)
-            outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
-                                                         prompt="switch"), stdout=io.StringIO())
-            assert outcome.exit_code == 0
-            s, _ = run_plan(plan, sim.tcp_resource, tmp_path / method / "out")
-            errors[method] = np.abs(s - sim.bench.truth(f)).max()
+        errors, outcome = _both_methods(sim, tmp_path, dialect, f)
         raw = outcome.calset.raw
         switch = sim.bench.switch_terms(f)
     for name, truth, thru in zip(SWITCH_TERMS, switch, ("thru.S21", "thru.S12"), strict=True):
@@ -156,16 +150,9 @@ def test_a_thru_unlike_the_kits_needs_the_unknown_thru(tmp_path: Path) -> None:
     kit_path.write_text(yaml.safe_dump(kit))
     dialect = generic_dialect(tmp_path)
     f = grid(101)
-    errors = {}
     with SimServer(personality="generic", time_scale=0.0, noise=False, kit=kit_path) as sim:
         sim.bench.set_device("cable-1m")
-        for method in ("two-port", UNKNOWN):
-            plan = plan_file(tmp_path, 101, dialect, method, folder=method)
-            outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
-                                                         prompt="switch"), stdout=io.StringIO())
-            assert outcome.exit_code == 0
-            s, _ = run_plan(plan, sim.tcp_resource, tmp_path / method / "out")
-            errors[method] = np.abs(s - sim.bench.truth(f)).max()
+        errors, _ = _both_methods(sim, tmp_path, dialect, f)
     assert errors["two-port"] > 0.1
     assert errors[UNKNOWN] < 1e-9
 
@@ -233,3 +220,19 @@ def test_switch_readings_above_one_are_refused_at_the_thru(tmp_path: Path) -> No
     assert finding.check == "switch-terms" and finding.steps == ("thru",)
     assert finding.message.startswith("on the THRU step the switch term switch.reverse reads "
                                       "|Γ| = 1.20 at ")
+
+
+def _both_methods(sim: SimServer, tmp_path: Path, dialect: str, f: np.ndarray
+                  ) -> tuple[dict[str, float], Any]:
+    """Calibrate with the defined and the unknown thru in turn, capture the bench's
+    device with each; the largest error against the truth per method, and the last
+    (unknown-thru) calibration's outcome."""
+    errors = {}
+    for method in ("two-port", UNKNOWN):
+        plan = plan_file(tmp_path, f.size, dialect, method, folder=method)
+        outcome = calibrate(load_plan(plan), Options(resource=sim.tcp_resource,
+                                                     prompt="switch"), stdout=io.StringIO())
+        assert outcome.exit_code == 0
+        s, _ = run_plan(plan, sim.tcp_resource, tmp_path / method / "out")
+        errors[method] = float(np.abs(s - sim.bench.truth(f)).max())
+    return errors, outcome
