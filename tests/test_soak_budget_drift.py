@@ -7,14 +7,13 @@ shows the figure in the report, matching the simulator's own noise law and drift
 
 from __future__ import annotations
 
-import io
 import re
 from pathlib import Path
 
 import numpy as np
 import pytest
 from schema_support import validate
-from test_soak_support import soak_plan, submit
+from test_soak_support import run_calibrated_soak, soak_plan, submit
 
 from acquire.cli import main
 from acquire.soak.budget_drift import (
@@ -216,24 +215,12 @@ def test_a_calibrated_soak_reports_the_noise_at_the_reference_plane(tmp_path: Pa
     # source: the one-port error model Γ = (m − e00)/(e10e01 + e11(m − e00)) (EURAMET
     # cg-12), whose derivative dΓ/dm = (1 − e11·Γ)²/e10e01 carries the simulator's raw
     # noise (its stated law) to the reference plane, point by point
-    import yaml
-
-    from acquire.guided import Options, calibrate
-    from acquire.plan import load_plan
-
     spool = Spool(tmp_path / "spool").ensure()
     with SimServer(time_scale=0.0, noise=True) as sim:
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out", count=30,
                          every="0.03 s", checks=False,
                          soak={"statistics": {"min_sweeps": 20, "min_span": "0.3 s"}})
-        data = yaml.safe_load(plan.read_text())
-        data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
-        plan.write_text(yaml.safe_dump(data, sort_keys=False))
-        calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch"),
-                  stdin=io.StringIO(), stdout=io.StringIO())
-        sim.bench.connect("device")
-        job = submit(spool, plan)
-        assert SoakWorker(job, StopSignal()).run() == "finished"
+        job = run_calibrated_soak(spool, sim, plan)
         f = np.linspace(2.30e9, 2.60e9, 101)
         terms = sim.bench.error_terms(f)
         gamma = sim.bench.truth(f)[:, 0, 0]

@@ -4,11 +4,10 @@ syntax."""
 
 from __future__ import annotations
 
-import io
 import re
 from pathlib import Path
 
-from test_soak_support import soak_plan, submit
+from test_soak_support import run_calibrated_soak, soak_plan, submit
 
 from acquire.soak.report import write_report
 from acquire.soak.sentences import fault_sentence, plain_message, show_bytes
@@ -65,22 +64,10 @@ def test_report_names_instrument_calibration_files_and_faults(tmp_path: Path) ->
 
 
 def test_report_names_the_calibration_used(tmp_path: Path) -> None:
-    import yaml
-
-    from acquire.guided import Options, calibrate
-    from acquire.plan import load_plan
-
     spool = Spool(tmp_path / "spool").ensure()
     with SimServer(time_scale=0.0) as sim:
         plan = soak_plan(tmp_path / "p.yaml", sim.tcp_resource, tmp_path / "out", count=4)
-        data = yaml.safe_load(plan.read_text())
-        data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
-        plan.write_text(yaml.safe_dump(data, sort_keys=False))
-        calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch"),
-                  stdin=io.StringIO(), stdout=io.StringIO())
-        sim.bench.connect("device")
-        job = submit(spool, plan)
-        assert SoakWorker(job, StopSignal()).run() == "finished"
+        job = run_calibrated_soak(spool, sim, plan)
     (calset,) = (tmp_path / "out" / "cal").glob("*.calset")
     text = write_report(job, tmp_path / "rep").text
     assert re.search(rf"Calibration:\n  {re.escape(calset.stem)}, method one-port, made "

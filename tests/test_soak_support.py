@@ -47,6 +47,26 @@ def submit(spool: Spool, plan: Path) -> Job:
                             loaded.output.dir.resolve(), loaded.instrument.resource)
 
 
+def run_calibrated_soak(spool: Spool, sim: Any, plan: Path) -> Job:
+    """Give ``plan`` a one-port calibration, calibrate on ``sim`` through its standard
+    switch, then submit the soak and run it to the end in this thread."""
+    import io
+
+    from acquire.guided import Options, calibrate
+    from acquire.plan import load_plan
+    from acquire.soak.worker import SoakWorker, StopSignal
+
+    data = yaml.safe_load(plan.read_text())
+    data["calibration"] = {"method": "one-port", "kit": "generic-sma-50"}
+    plan.write_text(yaml.safe_dump(data, sort_keys=False))
+    calibrate(load_plan(plan), Options(resource=sim.tcp_resource, prompt="switch"),
+              stdin=io.StringIO(), stdout=io.StringIO())
+    sim.bench.connect("device")
+    job = submit(spool, plan)
+    assert SoakWorker(job, StopSignal()).run() == "finished"
+    return job
+
+
 def journal_rows(job: Job) -> tuple[list[sqlite3.Row], list[sqlite3.Row], list[sqlite3.Row]]:
     db = sqlite3.connect(job.output_dir / "journal.sqlite")
     db.row_factory = sqlite3.Row
